@@ -1,0 +1,1 @@
+//! Labels drawn onto a `Frame` in place: date, measured/interpolated, peak height.

@@ -1,0 +1,1 @@
+//! AlignedStack -> change records: volumes, level of detection, peak and crest movement.

@@ -1,0 +1,1 @@
+//! Frames -> files: animated GIF and numbered PNG sequence, each written atomically.

@@ -1,0 +1,44 @@
+//! GeoTIFF file -> `Survey`: one dated elevation grid with its provenance.
+//!
+//! Nodata becomes NaN inside `geotiff::read_grid` and nowhere else; elevations are in metres from
+//! here on, whatever the file's vertical unit was (the original unit is kept in `GridSource`).
+
+use std::path::PathBuf;
+
+use chrono::NaiveDate;
+
+use crate::grid::{Grid, LinearUnit};
+
+/// Facts about the file a grid came from, kept for the change record.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GridSource {
+    /// The file read.
+    pub path: PathBuf,
+    /// Sample type as stored, e.g. `float32`, `int16`.
+    pub sample_type: String,
+    /// Compression as stored, e.g. `none`, `lzw`, `deflate`.
+    pub compression: String,
+    /// The nodata value written in the file (tag 42113), if any.
+    pub nodata: Option<f64>,
+    /// Vertical unit the file's values were in before conversion to metres.
+    pub vertical_unit: LinearUnit,
+    /// True when the file declared its raster as pixel-is-point (shifted to corners on reading).
+    pub pixel_is_point: bool,
+}
+
+/// One dated survey of the dune field.
+#[derive(Debug, Clone)]
+pub struct Survey {
+    /// Short identifier, unique within the job (defaults to the date).
+    pub id: String,
+    /// Survey date (ISO 8601 calendar date).
+    pub date: NaiveDate,
+    /// Optional human label, e.g. "after the winter storms".
+    pub label: Option<String>,
+    /// Vertical uncertainty (one standard deviation) in metres, if stated.
+    pub sigma_z_m: Option<f64>,
+    /// The elevations, in metres, NaN for nodata.
+    pub grid: Grid,
+    /// Where the grid came from.
+    pub source: GridSource,
+}
