@@ -1,1 +1,1 @@
-//! AlignedStack -> change records: volumes, level of detection, peak and crest movement.
+//! AlignedStack -> change records: volumes, level of detection, peak and crest movement (placeholder).

@@ -15,3 +15,7 @@ pub struct Surface {
     /// Measured or interpolated; travels to the label.
     pub kind: FrameKind,
 }
+
+pub mod flow;
+pub mod linear;
+pub mod morph;

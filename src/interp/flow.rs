@@ -1,0 +1,1 @@
+//! Displacement field between two surveys (placeholder).

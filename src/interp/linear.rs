@@ -1,0 +1,1 @@
+//! Linear blend of two surveys (placeholder, filled in by the foundation work).

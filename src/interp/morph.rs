@@ -1,0 +1,1 @@
+//! Warp-and-blend morph between two surveys (placeholder).
