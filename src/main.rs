@@ -1,1 +1,142 @@
-fn main(){}
+//! The `dunereel` command: parses arguments, loads the job, calls the library, reports, exits.
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+use dunereel::error::exit;
+use dunereel::{job, run_job, RunOptions};
+
+/// Animations and change records from repeated elevation surveys of a dune field.
+#[derive(Parser)]
+#[command(name = "dunereel", version, about, long_about = None)]
+struct Cli {
+    /// Show more detail (-v: progress notes, -vv: debug).
+    #[arg(short, long, action = clap::ArgAction::Count, global = true)]
+    verbose: u8,
+    /// Show only errors.
+    #[arg(short, long, global = true)]
+    quiet: bool,
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Render the animation and write the change record of a job.
+    Render {
+        /// The job file (YAML).
+        job: PathBuf,
+        /// Write into this folder instead of the job's output.folder.
+        #[arg(long, value_name = "FOLDER")]
+        output: Option<PathBuf>,
+        /// Replace the output folder if it exists.
+        #[arg(long)]
+        overwrite: bool,
+        /// Worker threads (default: all cores). The output is the same for any number.
+        #[arg(long, value_name = "N")]
+        threads: Option<usize>,
+    },
+    /// Check a job file and its grids without writing anything.
+    Check {
+        /// The job file (YAML).
+        job: PathBuf,
+    },
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let level = match (cli.quiet, cli.verbose) {
+        (true, _) => log::LevelFilter::Error,
+        (false, 0) => log::LevelFilter::Warn,
+        (false, 1) => log::LevelFilter::Info,
+        (false, _) => log::LevelFilter::Debug,
+    };
+    env_logger::Builder::new()
+        .filter_level(level)
+        .format_timestamp(None)
+        .init();
+
+    let outcome = match cli.command {
+        Command::Render {
+            job,
+            output,
+            overwrite,
+            threads,
+        } => render(&job, output, overwrite, threads, cli.quiet),
+        Command::Check { job } => check(&job),
+    };
+    match outcome {
+        Ok(()) => ExitCode::from(exit::OK),
+        Err(e) => {
+            eprintln!("error: {e}");
+            ExitCode::from(e.exit_code())
+        }
+    }
+}
+
+fn render(
+    path: &std::path::Path,
+    output: Option<PathBuf>,
+    overwrite: bool,
+    threads: Option<usize>,
+    quiet: bool,
+) -> dunereel::Result<()> {
+    if let Some(n) = threads {
+        // Only fails if a pool was built already, which cannot happen this early.
+        let _ = rayon::ThreadPoolBuilder::new()
+            .num_threads(n.max(1))
+            .build_global();
+    }
+    let job = job::load(path)?;
+    let bar = progress_bar(quiet);
+    let progress_bar = bar.clone();
+    let opts = RunOptions {
+        overwrite,
+        output_folder: output,
+        progress: Some(Box::new(move |done, all| {
+            progress_bar.set_length(all as u64);
+            progress_bar.set_position(done as u64);
+        })),
+    };
+    let report = run_job(&job, &opts);
+    bar.finish_and_clear();
+    let report = report?;
+    for w in &report.warnings {
+        eprintln!("warning: {w}");
+    }
+    if !quiet {
+        println!(
+            "{}: {} frames ({} surveys, {} interpolated), {} files",
+            report.folder.display(),
+            report.frames,
+            report.survey_frames,
+            report.frames - report.survey_frames,
+            report.files.len()
+        );
+    }
+    Ok(())
+}
+
+fn check(path: &std::path::Path) -> dunereel::Result<()> {
+    let job = job::load(path)?;
+    let report = dunereel::run::check_job(&job)?;
+    println!("{}: ok — {report}", path.display());
+    Ok(())
+}
+
+/// A progress bar on standard error; hidden when that is not a terminal or when quiet.
+fn progress_bar(quiet: bool) -> indicatif::ProgressBar {
+    use std::io::IsTerminal;
+    if quiet || !std::io::stderr().is_terminal() {
+        return indicatif::ProgressBar::hidden();
+    }
+    let bar = indicatif::ProgressBar::new(0);
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(
+            "{bar:40} {pos}/{len} frames  {per_sec}  {eta} left",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    bar
+}

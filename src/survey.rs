@@ -42,3 +42,19 @@ pub struct Survey {
     /// Where the grid came from.
     pub source: GridSource,
 }
+
+/// Reads the grid of one job survey.
+///
+/// # Errors
+/// `Error::Input` when the grid is missing, corrupt or unsupported (see `geotiff::read_grid`).
+pub fn read_survey(spec: &crate::job::SurveySpec) -> crate::error::Result<Survey> {
+    let (grid, source) = crate::geotiff::read_grid(&spec.grid)?;
+    Ok(Survey {
+        id: spec.id.clone(),
+        date: spec.date,
+        label: spec.label.clone(),
+        sigma_z_m: spec.sigma_z_m,
+        grid,
+        source,
+    })
+}

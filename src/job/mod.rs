@@ -1,0 +1,115 @@
+//! Job file (YAML) -> `Job`: fully resolved and checked before any grid is read.
+//!
+//! `schema` mirrors the file for serde; `validate` applies defaults, resolves paths against the job
+//! file's folder, parses dates and checks every range. Nothing after this stage reads YAML again.
+
+mod schema;
+mod validate;
+
+use std::path::{Path, PathBuf};
+
+use chrono::NaiveDate;
+
+use crate::align::AreaOfInterest;
+use crate::error::{Error, Result};
+use crate::render::{LightOptions, ViewOptions};
+use crate::timeline::FramePlan;
+
+/// The version of the job format this program reads (`format_version` in the file).
+pub const FORMAT_VERSION: u32 = 1;
+
+/// How in-between surfaces are made for one interval.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    /// Cell-by-cell blend of heights.
+    Linear,
+    /// Warp along the displacement field, then blend (falls back to linear when the field is unreliable).
+    Morph,
+}
+
+impl Method {
+    /// The name used in job files and on frames.
+    pub fn name(self) -> &'static str {
+        match self {
+            Method::Linear => "linear blend",
+            Method::Morph => "morph",
+        }
+    }
+}
+
+/// One survey as the job lists it (the grid is not read yet).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SurveySpec {
+    /// Unique short id (defaults to the date).
+    pub id: String,
+    /// Survey date.
+    pub date: NaiveDate,
+    /// Absolute path of the grid.
+    pub grid: PathBuf,
+    /// Optional label.
+    pub label: Option<String>,
+    /// Vertical uncertainty (1 σ) in metres, if stated.
+    pub sigma_z_m: Option<f64>,
+}
+
+/// Where results go.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OutputSpec {
+    /// The run's output folder (absolute).
+    pub folder: PathBuf,
+    /// File name of the animated GIF inside the folder, or None for no GIF.
+    pub gif: Option<String>,
+    /// Whether to write the numbered PNG frames.
+    pub png_frames: bool,
+    /// Whether an existing output folder may be replaced.
+    pub overwrite: bool,
+}
+
+/// A fully resolved job.
+#[derive(Debug, Clone)]
+pub struct Job {
+    /// The job file (absolute).
+    pub path: PathBuf,
+    /// The job file's text as run, kept for the archive.
+    pub text: String,
+    /// Title shown on frames and in the record.
+    pub title: String,
+    /// Surveys in date order.
+    pub surveys: Vec<SurveySpec>,
+    /// Optional crop of the analysis grid, in map coordinates.
+    pub area_of_interest: Option<AreaOfInterest>,
+    /// Frame count rule.
+    pub frame_plan: FramePlan,
+    /// Playing rate, frames per second.
+    pub fps: f64,
+    /// Extra seconds each survey frame stays on screen.
+    pub hold_s: f64,
+    /// In-between method for each interval (length = surveys − 1).
+    pub methods: Vec<Method>,
+    /// Camera.
+    pub view: ViewOptions,
+    /// Sun and shading.
+    pub sun: LightOptions,
+    /// Outputs.
+    pub output: OutputSpec,
+}
+
+/// Reads and validates a job file.
+///
+/// # Errors
+/// `Error::Job` naming the key or line at fault and the fix; `Error::Io` if the file can't be read.
+pub fn load(path: &Path) -> Result<Job> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let abs = std::path::absolute(path).map_err(|e| Error::io(path, e))?;
+    parse(&abs, text)
+}
+
+/// Validates job text as if read from `path` (relative grid paths resolve against its folder).
+///
+/// # Errors
+/// As [`load`].
+pub fn parse(path: &Path, text: String) -> Result<Job> {
+    let file: schema::JobFile =
+        serde_yaml::from_str(&text).map_err(|e| validate::yaml_error(path, &e))?;
+    validate::resolve(path, text, file)
+}

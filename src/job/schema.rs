@@ -1,0 +1,96 @@
+//! Private serde mirror of the job file. Nothing outside `job` sees these types: `validate` turns
+//! them into a resolved `Job`.
+
+use serde::Deserialize;
+
+use crate::render::{LightOptions, ViewOptions};
+
+/// The whole job file as written.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct JobFile {
+    pub format_version: u32,
+    pub title: String,
+    pub surveys: Vec<SurveyEntry>,
+    #[serde(default)]
+    pub area_of_interest: Option<AreaEntry>,
+    #[serde(default)]
+    pub timeline: TimelineEntry,
+    #[serde(default)]
+    pub in_between: InBetweenEntry,
+    #[serde(default)]
+    pub view: ViewOptions,
+    #[serde(default)]
+    pub sun: LightOptions,
+    pub output: OutputEntry,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct SurveyEntry {
+    pub date: String,
+    pub grid: String,
+    #[serde(default)]
+    pub id: Option<String>,
+    #[serde(default)]
+    pub label: Option<String>,
+    #[serde(default)]
+    pub sigma_z_m: Option<f64>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct AreaEntry {
+    pub west: f64,
+    pub south: f64,
+    pub east: f64,
+    pub north: f64,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub(super) struct TimelineEntry {
+    pub frames_per_year: Option<f64>,
+    pub total_frames: Option<usize>,
+    pub fps: f64,
+    pub hold_s: f64,
+}
+
+impl Default for TimelineEntry {
+    fn default() -> Self {
+        TimelineEntry {
+            frames_per_year: None,
+            total_frames: None,
+            fps: 12.0,
+            hold_s: 1.0,
+        }
+    }
+}
+
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub(super) struct InBetweenEntry {
+    pub method: Option<String>,
+    /// Per-interval overrides, one entry per interval: `linear` or `morph`.
+    pub per_interval: Option<Vec<String>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct OutputEntry {
+    pub folder: String,
+    #[serde(default = "default_gif")]
+    pub gif: Option<String>,
+    #[serde(default = "default_true")]
+    pub png_frames: bool,
+    #[serde(default)]
+    pub overwrite: bool,
+}
+
+fn default_gif() -> Option<String> {
+    Some("animation.gif".to_string())
+}
+
+fn default_true() -> bool {
+    true
+}

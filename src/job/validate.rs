@@ -1,0 +1,444 @@
+//! Schema mirror -> `Job`: defaults, paths, dates and ranges, with messages that name the key.
+
+use std::path::Path;
+
+use chrono::{Datelike, NaiveDate};
+
+use super::schema::{JobFile, OutputEntry};
+use super::{Job, Method, OutputSpec, SurveySpec, FORMAT_VERSION};
+use crate::align::AreaOfInterest;
+use crate::error::{Error, Result};
+use crate::timeline::FramePlan;
+
+/// Most frames a job may ask for (about 14 minutes at 12 fps): a guard against typos such as
+/// `frames_per_year: 12000`.
+pub const MAX_FRAMES: usize = 10_000;
+
+/// Turns a YAML parse error into a job error with its line, and a did-you-mean for unknown keys.
+pub(super) fn yaml_error(path: &Path, e: &serde_yaml::Error) -> Error {
+    let place = e.location().map_or_else(
+        || "job file".to_string(),
+        |l| format!("line {} column {}", l.line(), l.column()),
+    );
+    let raw = e.to_string();
+    // serde_yaml appends " at line L column C"; the place already says it.
+    let text = raw.split(" at line ").next().unwrap_or(&raw).to_string();
+    let hint = suggestion(&text)
+        .map(|s| format!("; did you mean `{s}`?"))
+        .unwrap_or_default();
+    let fix = if text.contains("missing field") {
+        "; add it (see the job file section of the README)"
+    } else if text.contains("unknown field") {
+        "; remove it or correct its spelling"
+    } else {
+        ""
+    };
+    Error::job(path, place, format!("{text}{hint}{fix}"))
+}
+
+/// For "unknown field `x`, expected one of `a`, `b`", the closest expected name, if close enough.
+fn suggestion(text: &str) -> Option<String> {
+    let rest = text.split("unknown field `").nth(1)?;
+    let unknown = rest.split('`').next()?;
+    let expected = rest.split("expected").nth(1)?;
+    let candidates: Vec<&str> = expected.split('`').skip(1).step_by(2).collect();
+    candidates
+        .into_iter()
+        .map(|c| (strsim::levenshtein(unknown, c), c))
+        .filter(|(d, c)| *d <= 2.max(c.len() / 3))
+        .min()
+        .map(|(_, c)| c.to_string())
+}
+
+pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
+    let here = path.parent().unwrap_or(Path::new("."));
+    let bad = |place: &str, msg: String| Error::job(path, place, msg);
+
+    if f.format_version != FORMAT_VERSION {
+        return Err(bad(
+            "format_version",
+            format!(
+                "this program reads job format {FORMAT_VERSION}, the file says {}; write `format_version: {FORMAT_VERSION}`",
+                f.format_version
+            ),
+        ));
+    }
+    if f.title.trim().is_empty() {
+        return Err(bad(
+            "title",
+            "the title is empty; give the animation a title".into(),
+        ));
+    }
+    if f.surveys.len() < 2 {
+        return Err(bad(
+            "surveys",
+            format!(
+                "{} survey(s) listed; at least two dated grids are needed to show change",
+                f.surveys.len()
+            ),
+        ));
+    }
+
+    let mut surveys: Vec<SurveySpec> = Vec::with_capacity(f.surveys.len());
+    for (i, s) in f.surveys.iter().enumerate() {
+        let key = |k: &str| format!("surveys[{i}].{k}");
+        let date = NaiveDate::parse_from_str(s.date.trim(), "%Y-%m-%d").map_err(|_| {
+            bad(
+                &key("date"),
+                format!(
+                    "\"{}\" is not a calendar date; write YYYY-MM-DD (ISO 8601)",
+                    s.date
+                ),
+            )
+        })?;
+        if !(1900..=2200).contains(&date.year()) {
+            return Err(bad(
+                &key("date"),
+                format!("{date} is outside the years 1900 to 2200; check the year"),
+            ));
+        }
+        if let Some(prev) = surveys.last() {
+            if date == prev.date {
+                return Err(bad(
+                    &key("date"),
+                    format!(
+                        "{date} repeats the date of surveys[{}]; keep one survey per date",
+                        i - 1
+                    ),
+                ));
+            }
+            if date < prev.date {
+                return Err(bad(
+                    &key("date"),
+                    format!(
+                        "{date} comes before surveys[{}] ({}); list surveys oldest first",
+                        i - 1,
+                        prev.date
+                    ),
+                ));
+            }
+        }
+        let grid = here.join(&s.grid);
+        if !grid.is_file() {
+            return Err(bad(
+                &key("grid"),
+                format!(
+                    "no file at {} (paths are relative to the job file's folder); correct the path",
+                    grid.display()
+                ),
+            ));
+        }
+        if let Some(sigma) = s.sigma_z_m {
+            if !(sigma > 0.0 && sigma < 10.0) {
+                return Err(bad(
+                    &key("sigma_z_m"),
+                    format!("{sigma} m is not a plausible vertical uncertainty; give one standard deviation in metres, e.g. 0.1"),
+                ));
+            }
+        }
+        let id = s.id.clone().unwrap_or_else(|| date.to_string());
+        if id.is_empty() || id.contains(['/', '\\']) {
+            return Err(bad(
+                &key("id"),
+                format!("\"{id}\" can't be used as an id; use letters, digits and dashes"),
+            ));
+        }
+        if let Some(j) = surveys.iter().position(|o| o.id == id) {
+            return Err(bad(
+                &key("id"),
+                format!("id \"{id}\" is used by surveys[{j}] too; ids must be unique"),
+            ));
+        }
+        surveys.push(SurveySpec {
+            id,
+            date,
+            grid,
+            label: s.label.clone(),
+            sigma_z_m: s.sigma_z_m,
+        });
+    }
+
+    let area_of_interest = match &f.area_of_interest {
+        None => None,
+        Some(a) => {
+            let ok = [a.west, a.south, a.east, a.north]
+                .iter()
+                .all(|v| v.is_finite());
+            if !ok || a.west >= a.east || a.south >= a.north {
+                return Err(bad(
+                    "area_of_interest",
+                    "needs west < east and south < north, in map coordinates of the grids' CRS"
+                        .into(),
+                ));
+            }
+            Some(AreaOfInterest {
+                west: a.west,
+                south: a.south,
+                east: a.east,
+                north: a.north,
+            })
+        }
+    };
+
+    let t = &f.timeline;
+    let frame_plan = match (t.frames_per_year, t.total_frames) {
+        (Some(_), Some(_)) => {
+            return Err(bad(
+                "timeline",
+                "give frames_per_year or total_frames, not both".into(),
+            ));
+        }
+        (Some(r), None) if !(r > 0.0 && r <= 1000.0) => {
+            return Err(bad(
+                "timeline.frames_per_year",
+                format!("{r} is out of range; use a number above 0 and at most 1000"),
+            ));
+        }
+        (Some(r), None) => FramePlan::PerYear(r),
+        (None, Some(n)) if n < surveys.len() || n > MAX_FRAMES => {
+            return Err(bad(
+                "timeline.total_frames",
+                format!("{n} is out of range; use at least one frame per survey ({}) and at most {MAX_FRAMES}", surveys.len()),
+            ));
+        }
+        (None, Some(n)) => FramePlan::Total(n),
+        (None, None) => FramePlan::PerYear(12.0),
+    };
+    let dates: Vec<NaiveDate> = surveys.iter().map(|s| s.date).collect();
+    let frames: usize = crate::timeline::steps_per_interval(&dates, frame_plan)
+        .iter()
+        .sum::<usize>()
+        + 1;
+    if frames > MAX_FRAMES {
+        return Err(bad(
+            "timeline.frames_per_year",
+            format!("the surveys span {} days, which would make {frames} frames (limit {MAX_FRAMES}); lower frames_per_year", (dates[dates.len() - 1] - dates[0]).num_days()),
+        ));
+    }
+    if !(t.fps > 0.0 && t.fps <= 100.0) {
+        return Err(bad(
+            "timeline.fps",
+            format!(
+                "{} frames per second is out of range; use a value in (0, 100]",
+                t.fps
+            ),
+        ));
+    }
+    if !(t.hold_s >= 0.0 && t.hold_s <= 60.0) {
+        return Err(bad(
+            "timeline.hold_s",
+            format!("{} s is out of range; use 0 to 60 seconds", t.hold_s),
+        ));
+    }
+
+    let parse_method = |place: &str, s: &str| match s {
+        "linear" => Ok(Method::Linear),
+        "morph" => Ok(Method::Morph),
+        other => Err(bad(
+            place,
+            format!("\"{other}\" is not a method; use `linear` or `morph`"),
+        )),
+    };
+    let default_method = match &f.in_between.method {
+        Some(m) => parse_method("in_between.method", m)?,
+        None => Method::Linear,
+    };
+    let intervals = surveys.len() - 1;
+    let methods = match &f.in_between.per_interval {
+        None => vec![default_method; intervals],
+        Some(list) if list.len() != intervals => {
+            return Err(bad(
+                "in_between.per_interval",
+                format!("{} entries for {intervals} intervals between {} surveys; give one method per interval", list.len(), surveys.len()),
+            ));
+        }
+        Some(list) => list
+            .iter()
+            .enumerate()
+            .map(|(i, m)| parse_method(&format!("in_between.per_interval[{i}]"), m))
+            .collect::<Result<Vec<_>>>()?,
+    };
+
+    let v = &f.view;
+    if !(16..=8192).contains(&v.width) || !(16..=8192).contains(&v.height) {
+        return Err(bad(
+            "view.width",
+            format!(
+                "a frame of {} x {} pixels is out of range; use 16 to 8192 on each side",
+                v.width, v.height
+            ),
+        ));
+    }
+    let s = &f.sun;
+    if !(s.azimuth_deg >= 0.0 && s.azimuth_deg < 360.0) {
+        return Err(bad(
+            "sun.azimuth_deg",
+            format!(
+                "{} is out of range; use compass degrees in [0, 360)",
+                s.azimuth_deg
+            ),
+        ));
+    }
+    if !(s.altitude_deg > 0.0 && s.altitude_deg <= 90.0) {
+        return Err(bad(
+            "sun.altitude_deg",
+            format!(
+                "{} puts the sun at or below the horizon; use degrees above the horizon in (0, 90]",
+                s.altitude_deg
+            ),
+        ));
+    }
+
+    let output = resolve_output(path, here, &f.output)?;
+    Ok(Job {
+        path: path.to_path_buf(),
+        text,
+        title: f.title.trim().to_string(),
+        surveys,
+        area_of_interest,
+        frame_plan,
+        fps: t.fps,
+        hold_s: t.hold_s,
+        methods,
+        view: f.view,
+        sun: f.sun,
+        output,
+    })
+}
+
+fn resolve_output(path: &Path, here: &Path, o: &OutputEntry) -> Result<OutputSpec> {
+    if o.folder.trim().is_empty() {
+        return Err(Error::job(
+            path,
+            "output.folder",
+            "is empty; name a folder for the run's outputs",
+        ));
+    }
+    if let Some(g) = &o.gif {
+        let plain = Path::new(g)
+            .file_name()
+            .map(|n| n == g.as_str())
+            .unwrap_or(false);
+        if !plain || !g.to_ascii_lowercase().ends_with(".gif") {
+            return Err(Error::job(
+                path,
+                "output.gif",
+                format!("\"{g}\" should be a plain file name ending in .gif (it is written inside output.folder)"),
+            ));
+        }
+    }
+    Ok(OutputSpec {
+        folder: here.join(&o.folder),
+        gif: o.gif.clone(),
+        png_frames: o.png_frames,
+        overwrite: o.overwrite,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::parse;
+    use super::*;
+
+    fn job_dir() -> tempfile::TempDir {
+        let d = tempfile::tempdir().unwrap();
+        std::fs::write(d.path().join("a.tif"), b"x").unwrap();
+        std::fs::write(d.path().join("b.tif"), b"x").unwrap();
+        d
+    }
+
+    const MINIMAL: &str = "format_version: 1\ntitle: Test dune\nsurveys:\n  - { date: 2030-05-01, grid: a.tif }\n  - { date: 2032-05-01, grid: b.tif }\noutput: { folder: out }\n";
+
+    #[test]
+    fn minimal_job_gets_defaults() {
+        let d = job_dir();
+        let job = parse(&d.path().join("job.yaml"), MINIMAL.into()).unwrap();
+        assert_eq!(job.surveys.len(), 2);
+        assert_eq!(job.surveys[0].id, "2030-05-01");
+        assert_eq!(job.surveys[1].grid, d.path().join("b.tif"));
+        assert_eq!(job.frame_plan, FramePlan::PerYear(12.0));
+        assert_eq!(job.methods, vec![Method::Linear]);
+        assert_eq!(job.output.gif.as_deref(), Some("animation.gif"));
+        assert!(!job.output.overwrite);
+    }
+
+    fn err(text: &str) -> String {
+        let d = job_dir();
+        parse(&d.path().join("job.yaml"), text.into())
+            .unwrap_err()
+            .to_string()
+    }
+
+    #[test]
+    fn unknown_key_suggests_the_right_one() {
+        let e = err(&MINIMAL.replace("title:", "titel:"));
+        assert!(
+            e.contains("line 2") && e.contains("did you mean `title`"),
+            "{e}"
+        );
+        let e = err(&MINIMAL.replace("grid: b.tif", "gird: b.tif"));
+        assert!(e.contains("did you mean `grid`"), "{e}");
+    }
+
+    #[test]
+    fn impossible_and_disordered_dates() {
+        let e = err(&MINIMAL.replace("2032-05-01", "2031-02-30"));
+        assert!(
+            e.contains("surveys[1].date")
+                && e.contains("not a calendar date")
+                && e.contains("YYYY-MM-DD"),
+            "{e}"
+        );
+        let e = err(&MINIMAL.replace("2032-05-01", "2029-05-01"));
+        assert!(
+            e.contains("surveys[1].date") && e.contains("oldest first"),
+            "{e}"
+        );
+        let e = err(&MINIMAL.replace("2032-05-01", "2030-05-01"));
+        assert!(e.contains("repeats"), "{e}");
+    }
+
+    #[test]
+    fn other_mistakes_name_their_key() {
+        let cases = [
+            (
+                MINIMAL.replace("b.tif }", "missing.tif }"),
+                "surveys[1].grid",
+            ),
+            (
+                MINIMAL.replace("  - { date: 2032-05-01, grid: b.tif }\n", ""),
+                "surveys",
+            ),
+            (
+                MINIMAL.replace("format_version: 1", "format_version: 7"),
+                "format_version",
+            ),
+            (
+                format!("{MINIMAL}sun: {{ altitude_deg: -5 }}\n"),
+                "sun.altitude_deg",
+            ),
+            (
+                format!("{MINIMAL}timeline: {{ frames_per_year: 5, total_frames: 9 }}\n"),
+                "timeline",
+            ),
+            (
+                format!("{MINIMAL}in_between: {{ method: wobble }}\n"),
+                "in_between.method",
+            ),
+            (
+                format!("{MINIMAL}area_of_interest: {{ west: 5, south: 0, east: 1, north: 9 }}\n"),
+                "area_of_interest",
+            ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, gif: x/y.gif"),
+                "output.gif",
+            ),
+        ];
+        for (text, key) in cases {
+            let e = err(&text);
+            assert!(e.contains(key), "expected `{key}` in: {e}");
+        }
+        let e = err(&MINIMAL.replace("title: Test dune\n", "title: 12\nview: { width: wide }\n"));
+        assert!(e.contains("line 3"), "{e}");
+    }
+}
