@@ -99,7 +99,11 @@ pub struct Job {
 /// # Errors
 /// `Error::Job` naming the key or line at fault and the fix; `Error::Io` if the file can't be read.
 pub fn load(path: &Path) -> Result<Job> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let text = std::fs::read_to_string(path).map_err(|e| match e.kind() {
+        std::io::ErrorKind::NotFound => Error::job(path, "file", "no job file here; check the path"),
+        std::io::ErrorKind::InvalidData => Error::job(path, "file", "is not UTF-8 text; save the job file as UTF-8"),
+        _ => Error::io(path, e),
+    })?;
     let abs = std::path::absolute(path).map_err(|e| Error::io(path, e))?;
     parse(&abs, text)
 }
