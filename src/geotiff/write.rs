@@ -489,7 +489,8 @@ mod tests {
         let mut dec = decode(&path);
         assert_eq!(dec.get_tag_u32(Tag::SamplesPerPixel).unwrap(), 3);
         assert_eq!(dec.get_tag_ascii_string(Tag::GdalNodata).unwrap(), "nan");
-        // No EPSG: key 3072 is left out; US survey foot is 9003 (REFERENCES.md §9, from memory).
+        // Check: OGC GeoTIFF 1.1 — without an EPSG code key 3072 is left out; EPSG unit 9003 = US survey
+        // foot, from memory (REFERENCES.md §9); exact
         assert_eq!(
             dec.get_tag_u16_vec(Tag::GeoKeyDirectoryTag).unwrap(),
             vec![1, 1, 1, 4, 1024, 0, 1, 1, 1025, 0, 1, 1, 3076, 0, 1, 9003, 4099, 0, 1, 9001]
