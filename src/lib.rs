@@ -3,6 +3,7 @@
 
 pub mod align;
 pub mod annotate;
+pub mod archive;
 pub mod change;
 pub mod encode;
 pub mod error;
