@@ -177,15 +177,12 @@ fn parse_manifest(name: &str, text: &str, problems: &mut Vec<String>) -> BTreeMa
     }
     for (i, line) in text.lines().enumerate() {
         let line = line.strip_suffix('\r').unwrap_or(line);
-        let parsed = line
-            .split_once(|c| c == ' ' || c == '\t')
-            .and_then(|(sum, rest)| {
-                let path = rest.trim_start_matches([' ', '\t']);
-                let ok = sum.len() == 64
-                    && sum.bytes().all(|b| b.is_ascii_hexdigit())
-                    && !path.is_empty();
-                ok.then(|| (sum.to_ascii_lowercase(), decode_path(path)))
-            });
+        let parsed = line.split_once([' ', '\t']).and_then(|(sum, rest)| {
+            let path = rest.trim_start_matches([' ', '\t']);
+            let ok =
+                sum.len() == 64 && sum.bytes().all(|b| b.is_ascii_hexdigit()) && !path.is_empty();
+            ok.then(|| (sum.to_ascii_lowercase(), decode_path(path)))
+        });
         match parsed {
             Some((sum, path)) => {
                 if out.insert(path.clone(), sum).is_some() {

@@ -22,9 +22,8 @@ pub fn blend(frame: &mut Frame, x: i64, y: i64, rgba: [u8; 4]) {
     }
     let i = (y as usize * frame.width as usize + x as usize) * 4;
     let a = rgba[3] as u32;
-    for k in 0..3 {
-        let old = frame.rgba[i + k] as u32;
-        frame.rgba[i + k] = ((rgba[k] as u32 * a + old * (255 - a) + 127) / 255) as u8;
+    for (dst, &src) in frame.rgba[i..i + 3].iter_mut().zip(&rgba[..3]) {
+        *dst = ((src as u32 * a + *dst as u32 * (255 - a) + 127) / 255) as u8;
     }
     frame.rgba[i + 3] = frame.rgba[i + 3].max(rgba[3]);
 }
@@ -226,7 +225,7 @@ mod tests {
             (19.0, 8.0),
             [0, 0, 255, 255],
         );
-        let j = (1 * 20 + 18) * 4;
+        let j = (20 + 18) * 4; // row 1, column 18
         assert_eq!(&f.rgba[j..j + 4], &[0, 0, 255, 255]);
     }
 }

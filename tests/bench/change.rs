@@ -23,7 +23,7 @@ fn surveys(dir: &std::path::Path) -> Vec<Survey> {
         epsg: Some(32631),
         horizontal_unit: LinearUnit::Metre,
     };
-    (0..5)
+    (0..5i32)
         .map(|k| {
             let shift = 12.0 * k as f64;
             let z = ndarray::Array2::from_shape_fn((N, N), |(r, c)| {
@@ -41,7 +41,7 @@ fn surveys(dir: &std::path::Path) -> Vec<Survey> {
             std::fs::write(&path, bytes).unwrap();
             Survey {
                 id: format!("s{k}"),
-                date: chrono::NaiveDate::from_ymd_opt(2030 + k as i32, 4, 1).unwrap(),
+                date: chrono::NaiveDate::from_ymd_opt(2030 + k, 4, 1).unwrap(),
                 label: None,
                 sigma_z_m: Some(0.08),
                 grid: Grid {
