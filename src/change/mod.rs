@@ -122,7 +122,7 @@ pub(crate) fn file_safe(id: &str) -> String {
 /// Builds the record and its figures in one call (what the pipeline usually wants).
 ///
 /// # Errors
-/// As [`record`].
+/// As [`record()`].
 pub fn record_with_figures(
     stack: &AlignedStack,
     opts: &ChangeOptions,
