@@ -16,6 +16,7 @@
 
 pub mod align;
 pub mod annotate;
+pub mod archive;
 pub mod change;
 pub mod encode;
 pub mod error;

@@ -1,0 +1,392 @@
+//! A folder with a `data/` payload -> BagIt tag files; and a bag folder -> a `VerifyReport`.
+//!
+//! Layout after IETF RFC 8493 (BagIt 1.0, REFERENCES.md §11): `bagit.txt` (version and encoding),
+//! `data/` (the payload), `manifest-sha256.txt` (one line per payload file: lower-case hex SHA-256,
+//! two spaces, the path from the bag's top with forward slashes), `bag-info.txt` (`Bagging-Date`,
+//! `Payload-Oxum` = octets.files, `Bag-Software-Agent`) and `tagmanifest-sha256.txt` (the same for
+//! the three tag files). Two spaces between checksum and path make the manifests readable by the
+//! common `sha256sum -c` as well. In paths, CR, LF and `%` are percent-encoded as the RFC asks.
+
+use std::collections::{BTreeMap, BTreeSet};
+use std::fs;
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+use sha2::{Digest, Sha256};
+
+use crate::change::record::{hex, sha256_file};
+use crate::error::{Error, Result};
+
+/// Contents of `bagit.txt`.
+pub const BAGIT_TXT: &str = "BagIt-Version: 1.0\nTag-File-Character-Encoding: UTF-8\n";
+/// Payload manifest file name.
+pub const MANIFEST: &str = "manifest-sha256.txt";
+/// Tag manifest file name.
+pub const TAG_MANIFEST: &str = "tagmanifest-sha256.txt";
+/// Bag metadata file name.
+pub const BAG_INFO: &str = "bag-info.txt";
+/// Declaration file name.
+pub const BAGIT: &str = "bagit.txt";
+
+/// SHA-256 of bytes as lower-case hex.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    hex(&Sha256::digest(bytes))
+}
+
+/// Percent-encodes CR, LF and `%` in a manifest path (RFC 8493 §2.1.3).
+pub fn encode_path(p: &str) -> String {
+    p.replace('%', "%25")
+        .replace('\r', "%0D")
+        .replace('\n', "%0A")
+}
+
+/// Reverses [`encode_path`].
+pub fn decode_path(p: &str) -> String {
+    p.replace("%0D", "\r")
+        .replace("%0d", "\r")
+        .replace("%0A", "\n")
+        .replace("%0a", "\n")
+        .replace("%25", "%")
+}
+
+/// One manifest line.
+pub fn manifest_line(sha_hex: &str, path: &str) -> String {
+    format!("{sha_hex}  {}\n", encode_path(path))
+}
+
+/// `Payload-Oxum` value: total octets, a dot, number of files.
+pub fn payload_oxum(octets: u64, files: usize) -> String {
+    format!("{octets}.{files}")
+}
+
+/// Every file under `root/sub`, as paths relative to `root` with forward slashes, sorted.
+///
+/// # Errors
+/// `Error::Io` when a folder cannot be listed.
+pub fn list_files(root: &Path, sub: &str) -> Result<Vec<String>> {
+    let mut out = Vec::new();
+    let start = if sub.is_empty() {
+        root.to_path_buf()
+    } else {
+        root.join(sub)
+    };
+    walk(&start, sub, &mut out)?;
+    out.sort();
+    Ok(out)
+}
+
+fn walk(dir: &Path, rel: &str, out: &mut Vec<String>) -> Result<()> {
+    let entries = fs::read_dir(dir).map_err(|e| Error::io(dir, e))?;
+    for entry in entries {
+        let entry = entry.map_err(|e| Error::io(dir, e))?;
+        let name = entry.file_name().to_string_lossy().into_owned();
+        let rel_name = if rel.is_empty() {
+            name
+        } else {
+            format!("{rel}/{name}")
+        };
+        let ty = entry.file_type().map_err(|e| Error::io(&entry.path(), e))?;
+        if ty.is_dir() {
+            walk(&entry.path(), &rel_name, out)?;
+        } else {
+            out.push(rel_name);
+        }
+    }
+    Ok(())
+}
+
+fn join_rel(root: &Path, rel: &str) -> PathBuf {
+    rel.split('/')
+        .fold(root.to_path_buf(), |p, part| p.join(part))
+}
+
+/// Writes the tag files of a bag whose payload already sits in `root/data`.
+///
+/// # Errors
+/// `Error::Io` on any read or write failure.
+pub fn write_tags(root: &Path, bagging_date: &str, agent: &str) -> Result<()> {
+    let files = list_files(root, "data")?;
+    let hashed: Vec<Result<(String, u64)>> = files
+        .par_iter()
+        .map(|rel| {
+            let p = join_rel(root, rel);
+            let len = fs::metadata(&p).map_err(|e| Error::io(&p, e))?.len();
+            Ok((sha256_file(&p)?, len))
+        })
+        .collect();
+    let mut manifest = String::new();
+    let mut octets = 0u64;
+    for (rel, h) in files.iter().zip(hashed) {
+        let (sha, len) = h?;
+        octets += len;
+        manifest.push_str(&manifest_line(&sha, rel));
+    }
+    let info = format!(
+        "Bagging-Date: {bagging_date}\nPayload-Oxum: {}\nBag-Software-Agent: {agent}\n",
+        payload_oxum(octets, files.len())
+    );
+    let mut tags = String::new();
+    for (name, body) in [
+        (BAGIT, BAGIT_TXT),
+        (BAG_INFO, info.as_str()),
+        (MANIFEST, manifest.as_str()),
+    ] {
+        write(&root.join(name), body.as_bytes())?;
+        tags.push_str(&manifest_line(&sha256_hex(body.as_bytes()), name));
+    }
+    write(&root.join(TAG_MANIFEST), tags.as_bytes())
+}
+
+fn write(path: &Path, bytes: &[u8]) -> Result<()> {
+    fs::write(path, bytes).map_err(|e| Error::io(path, e))
+}
+
+/// What [`verify`] found.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct VerifyReport {
+    /// Files checked against a manifest (payload and tag files).
+    pub checked: usize,
+    /// Files a manifest lists that are not there.
+    pub missing: Vec<String>,
+    /// Files present that no manifest lists.
+    pub extra: Vec<String>,
+    /// Files whose checksum differs from their manifest's.
+    pub altered: Vec<String>,
+    /// Anything else wrong: a malformed manifest line, a wrong `bagit.txt`, a `Payload-Oxum` that
+    /// does not add up.
+    pub problems: Vec<String>,
+}
+
+impl VerifyReport {
+    /// True when nothing is missing, extra, altered or otherwise wrong.
+    pub fn is_intact(&self) -> bool {
+        self.missing.is_empty()
+            && self.extra.is_empty()
+            && self.altered.is_empty()
+            && self.problems.is_empty()
+    }
+}
+
+/// Parses manifest text into path -> checksum; malformed lines go to `problems`.
+fn parse_manifest(name: &str, text: &str, problems: &mut Vec<String>) -> BTreeMap<String, String> {
+    let mut out = BTreeMap::new();
+    if !text.is_empty() && !text.ends_with('\n') {
+        problems.push(format!(
+            "{name}: the last line is not terminated by a line break"
+        ));
+    }
+    for (i, line) in text.lines().enumerate() {
+        let line = line.strip_suffix('\r').unwrap_or(line);
+        let parsed = line.split_once([' ', '\t']).and_then(|(sum, rest)| {
+            let path = rest.trim_start_matches([' ', '\t']);
+            let ok =
+                sum.len() == 64 && sum.bytes().all(|b| b.is_ascii_hexdigit()) && !path.is_empty();
+            ok.then(|| (sum.to_ascii_lowercase(), decode_path(path)))
+        });
+        match parsed {
+            Some((sum, path)) => {
+                if out.insert(path.clone(), sum).is_some() {
+                    problems.push(format!("{name} line {}: {path} is listed twice", i + 1));
+                }
+            }
+            None => problems.push(format!(
+                "{name} line {}: not a SHA-256 checksum (64 hex digits), spaces and a path",
+                i + 1
+            )),
+        }
+    }
+    out
+}
+
+fn read_text(path: &Path, name: &str, report: &mut VerifyReport) -> Option<String> {
+    match fs::read(path) {
+        Ok(bytes) => match String::from_utf8(bytes) {
+            Ok(s) => Some(s),
+            Err(_) => {
+                report.problems.push(format!("{name} is not valid UTF-8"));
+                Some(String::new())
+            }
+        },
+        Err(_) => {
+            report.missing.push(name.to_string());
+            None
+        }
+    }
+}
+
+/// Checks each listed file's checksum; files that cannot be read count as missing.
+fn check_listed(root: &Path, listed: &BTreeMap<String, String>, report: &mut VerifyReport) {
+    let results: Vec<(String, Option<bool>)> = listed
+        .par_iter()
+        .map(|(rel, sum)| {
+            let p = join_rel(root, rel);
+            let ok = if p.is_file() {
+                sha256_file(&p).ok().map(|h| &h == sum)
+            } else {
+                None
+            };
+            (rel.clone(), ok)
+        })
+        .collect();
+    for (rel, ok) in results {
+        match ok {
+            None => report.missing.push(rel),
+            Some(true) => report.checked += 1,
+            Some(false) => {
+                report.checked += 1;
+                report.altered.push(rel);
+            }
+        }
+    }
+}
+
+/// Checks a bag folder: every file listed in the manifests is present and unchanged, no file is
+/// present that is not listed, `bagit.txt` declares BagIt 1.0 and `Payload-Oxum` adds up.
+///
+/// # Errors
+/// `Error::Input` when `dir` is not a folder; `Error::Io` when it cannot be listed.
+pub fn verify(dir: &Path) -> Result<VerifyReport> {
+    if !dir.is_dir() {
+        return Err(Error::input(
+            dir,
+            "is not a folder; give the archive folder written by a run",
+        ));
+    }
+    let mut report = VerifyReport::default();
+    if let Some(text) = read_text(&dir.join(BAGIT), BAGIT, &mut report) {
+        if text != BAGIT_TXT {
+            report.problems.push(format!(
+                "{BAGIT} does not read exactly `{}`",
+                BAGIT_TXT.replace('\n', " / ")
+            ));
+        }
+    }
+    let payload = match read_text(&dir.join(MANIFEST), MANIFEST, &mut report) {
+        Some(t) => parse_manifest(MANIFEST, &t, &mut report.problems),
+        None => BTreeMap::new(),
+    };
+    for rel in payload.keys().filter(|r| !r.starts_with("data/")) {
+        report
+            .problems
+            .push(format!("{MANIFEST} lists {rel}, which is outside data/"));
+    }
+    check_listed(dir, &payload, &mut report);
+    let present = if dir.join("data").is_dir() {
+        list_files(dir, "data")?
+    } else {
+        Vec::new()
+    };
+    let listed: BTreeSet<&String> = payload.keys().collect();
+    report
+        .extra
+        .extend(present.iter().filter(|p| !listed.contains(p)).cloned());
+
+    let tags = match read_text(&dir.join(TAG_MANIFEST), TAG_MANIFEST, &mut report) {
+        Some(t) => parse_manifest(TAG_MANIFEST, &t, &mut report.problems),
+        None => BTreeMap::new(),
+    };
+    check_listed(dir, &tags, &mut report);
+    for rel in list_files(dir, "")? {
+        let is_tag = tags.contains_key(&rel)
+            || rel == TAG_MANIFEST
+            || rel == BAGIT
+            || rel == MANIFEST
+            || rel == BAG_INFO;
+        if !rel.starts_with("data/") && !is_tag {
+            report.extra.push(rel);
+        }
+    }
+    if let Ok(info) = fs::read_to_string(dir.join(BAG_INFO)) {
+        let stated = info
+            .lines()
+            .find_map(|l| l.strip_prefix("Payload-Oxum:"))
+            .map(str::trim);
+        let mut octets = 0u64;
+        for rel in &present {
+            octets += fs::metadata(join_rel(dir, rel))
+                .map(|m| m.len())
+                .unwrap_or(0);
+        }
+        let actual = payload_oxum(octets, present.len());
+        match stated {
+            Some(s) if s == actual => {}
+            Some(s) => report.problems.push(format!(
+                "{BAG_INFO}: Payload-Oxum {s} but the payload holds {actual}"
+            )),
+            None => report
+                .problems
+                .push(format!("{BAG_INFO} has no Payload-Oxum")),
+        }
+    }
+    report.missing.sort();
+    report.missing.dedup();
+    report.extra.sort();
+    report.extra.dedup();
+    report.altered.sort();
+    Ok(report)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sha256_vectors() {
+        // Check: FIPS 180-4 SHA-256 — "abc"; REFERENCES.md §11, exact
+        assert_eq!(
+            sha256_hex(b"abc"),
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+        // Check: FIPS 180-4 SHA-256 — empty message; REFERENCES.md §11, exact
+        assert_eq!(
+            sha256_hex(b""),
+            "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855"
+        );
+        // Check: FIPS 180-4 SHA-256 — 448-bit message "abcdbcde…nopq"; REFERENCES.md §11, exact
+        assert_eq!(
+            sha256_hex(b"abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq"),
+            "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1"
+        );
+    }
+
+    #[test]
+    fn one_file_bag() {
+        let dir = tempfile::tempdir().unwrap();
+        fs::create_dir(dir.path().join("data")).unwrap();
+        fs::write(dir.path().join("data/a.txt"), b"abc").unwrap();
+        write_tags(dir.path(), "2030-01-01", "test").unwrap();
+        let manifest = fs::read_to_string(dir.path().join(MANIFEST)).unwrap();
+        // Check: RFC 8493 manifest line for data/a.txt holding "abc" (FIPS 180-4 digest); REFERENCES.md §11, exact
+        assert_eq!(
+            manifest,
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad  data/a.txt\n"
+        );
+        let info = fs::read_to_string(dir.path().join(BAG_INFO)).unwrap();
+        // Check: RFC 8493 Payload-Oxum = octets.files — 3.1; REFERENCES.md §11, exact
+        assert!(info.contains("Payload-Oxum: 3.1\n"), "{info}");
+        assert!(info.contains("Bagging-Date: 2030-01-01\n"));
+        assert_eq!(
+            fs::read_to_string(dir.path().join(BAGIT)).unwrap(),
+            BAGIT_TXT
+        );
+        let report = verify(dir.path()).unwrap();
+        assert!(report.is_intact(), "{report:?}");
+        assert_eq!(report.checked, 4);
+    }
+
+    #[test]
+    fn percent_encoding_round_trips() {
+        // Check: RFC 8493 §2.1.3 — CR, LF and % in paths are percent-encoded; from memory for the clause number
+        assert_eq!(encode_path("data/a%b\nc\r"), "data/a%25b%0Ac%0D");
+        assert_eq!(decode_path(&encode_path("data/x%0A%\n")), "data/x%0A%\n");
+    }
+
+    #[test]
+    fn malformed_lines_are_reported() {
+        let mut p = Vec::new();
+        let m = parse_manifest("m", "abc data/x\nba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad  data/a.txt\n", &mut p);
+        assert_eq!(m.len(), 1);
+        assert_eq!(p.len(), 1);
+        assert!(p[0].contains("line 1"));
+    }
+}
