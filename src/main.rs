@@ -112,7 +112,7 @@ fn render(
             report.frames,
             report.survey_frames,
             report.frames - report.survey_frames,
-            report.files.len()
+            report.files
         );
     }
     Ok(())

@@ -7,6 +7,8 @@
 use std::path::{Path, PathBuf};
 
 use crate::align::{self, AlignedStack};
+use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
+use crate::change::{self, ChangeRecord};
 use crate::error::{Error, Result};
 use crate::interp::{self, Surface};
 use crate::job::{Job, Method};
@@ -34,8 +36,8 @@ pub struct RunReport {
     pub frames: usize,
     /// Of which survey frames.
     pub survey_frames: usize,
-    /// Files written, relative to the folder.
-    pub files: Vec<PathBuf>,
+    /// Number of payload files in the archive folder.
+    pub files: usize,
     /// Warnings worth showing the user (also logged).
     pub warnings: Vec<String>,
 }
@@ -47,7 +49,7 @@ pub const FRAME_MEMORY_BUDGET: usize = 6 << 30;
 ///
 /// # Errors
 /// `Error::Job`/`Error::Input` for bad input (nothing is written), `Error::Output`/`Error::Io` when
-/// writing fails (the staging folder is removed).
+/// writing fails (temporary files are removed and an existing output folder is left as it was).
 pub fn run_job(job: &Job, opts: &RunOptions) -> Result<RunReport> {
     let folder = opts
         .output_folder
@@ -56,6 +58,22 @@ pub fn run_job(job: &Job, opts: &RunOptions) -> Result<RunReport> {
     let overwrite = opts.overwrite || job.output.overwrite;
     check_output_folder(&folder, overwrite)?;
 
+    let prepared = prepare(job)?;
+    let scratch = scratch_path(&folder);
+    let result = write_outputs(job, prepared, &scratch, &folder, overwrite, opts);
+    let _ = std::fs::remove_dir_all(&scratch);
+    result
+}
+
+/// Everything computed and checked before the first write.
+struct Prepared {
+    stack: AlignedStack,
+    timeline: Timeline,
+    renderer: Renderer,
+    record: ChangeRecord,
+}
+
+fn prepare(job: &Job) -> Result<Prepared> {
     let surveys = job
         .surveys
         .iter()
@@ -67,7 +85,7 @@ pub fn run_job(job: &Job, opts: &RunOptions) -> Result<RunReport> {
     let range = stack
         .elevation_range()
         .expect("align refuses all-nodata grids");
-    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
+    let renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
         .map_err(|m| Error::job(&job.path, "view", m))?;
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
     if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
@@ -84,49 +102,51 @@ pub fn run_job(job: &Job, opts: &RunOptions) -> Result<RunReport> {
             ),
         ));
     }
+    let record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    Ok(Prepared {
+        stack,
+        timeline,
+        renderer,
+        record,
+    })
+}
 
-    let staging = staging_path(&folder);
-    let result = render_all(job, &stack, &timeline, &mut renderer, &staging, opts);
-    match result {
-        Ok(mut report) => {
-            publish(&staging, &folder, overwrite)?;
-            report.folder = folder;
-            Ok(report)
-        }
-        Err(e) => {
-            let _ = std::fs::remove_dir_all(&staging);
-            Err(e)
-        }
+/// The change stage reports job mistakes without knowing the job file's path; put it in.
+fn in_job_file(e: Error, path: &Path) -> Error {
+    match e {
+        Error::Job { place, message, .. } => Error::Job {
+            path: path.to_path_buf(),
+            place,
+            message,
+        },
+        other => other,
     }
 }
 
-fn render_all(
+fn write_outputs(
     job: &Job,
-    stack: &AlignedStack,
-    timeline: &Timeline,
-    renderer: &mut Renderer,
-    staging: &Path,
+    prepared: Prepared,
+    scratch: &Path,
+    folder: &Path,
+    overwrite: bool,
     opts: &RunOptions,
 ) -> Result<RunReport> {
-    std::fs::create_dir_all(staging).map_err(|e| Error::io(staging, e))?;
-    let mut report = RunReport {
-        folder: staging.to_path_buf(),
-        frames: timeline.frames.len(),
-        survey_frames: timeline
-            .frames
-            .iter()
-            .filter(|f| f.kind.is_measured())
-            .count(),
-        files: Vec::new(),
-        warnings: Vec::new(),
-    };
+    let Prepared {
+        stack,
+        timeline,
+        mut renderer,
+        record,
+    } = prepared;
+    let (stack, timeline, record) = (&stack, &timeline, &record);
+    std::fs::create_dir_all(scratch).map_err(|e| Error::io(scratch, e))?;
+    let mut extra = vec![ExtraFile {
+        name: "job/job.yaml".into(),
+        content: ExtraContent::Bytes(job.text.clone().into_bytes()),
+    }];
     let mut surface = Surface::for_stack(stack);
     let mut frame = Frame::new(job.view.width, job.view.height);
     let n = timeline.frames.len();
-    let frames_dir = staging.join("frames");
-    if job.output.png_frames {
-        std::fs::create_dir_all(&frames_dir).map_err(|e| Error::io(&frames_dir, e))?;
-    }
+    let mut warnings = record.warnings.clone();
     for t in &timeline.frames {
         make_surface(
             &mut surface,
@@ -142,7 +162,7 @@ fn render_all(
         let _view = renderer.render_into(&surface, orbit, &mut frame);
         if job.output.png_frames {
             let name = format!("frame-{:05}.png", t.index + 1);
-            let path = frames_dir.join(&name);
+            let path = scratch.join(&name);
             image::save_buffer(
                 &path,
                 &frame.rgba,
@@ -151,13 +171,38 @@ fn render_all(
                 image::ExtendedColorType::Rgba8,
             )
             .map_err(|e| Error::output(&path, format!("could not write the PNG frame: {e}")))?;
-            report.files.push(Path::new("frames").join(name));
+            extra.push(ExtraFile {
+                name: format!("frames/{name}"),
+                content: ExtraContent::File(path),
+            });
         }
         if let Some(cb) = &opts.progress {
             cb(t.index + 1, n);
         }
     }
-    Ok(report)
+    let figures = change::figures(stack, record, &job.change);
+    let archive = archive::write_archive(
+        folder,
+        record,
+        &figures,
+        &extra,
+        &ArchiveOptions {
+            overwrite,
+            bagging_date: None,
+        },
+    )?;
+    warnings.dedup();
+    Ok(RunReport {
+        folder: archive.dir,
+        frames: n,
+        survey_frames: timeline
+            .frames
+            .iter()
+            .filter(|f| f.kind.is_measured())
+            .count(),
+        files: archive.payload_files,
+        warnings,
+    })
 }
 
 fn make_surface(out: &mut Surface, stack: &AlignedStack, t: &FrameTime, method: Method) {
@@ -185,46 +230,13 @@ fn check_output_folder(folder: &Path, overwrite: bool) -> Result<()> {
     Ok(())
 }
 
-fn staging_path(folder: &Path) -> PathBuf {
+/// A hidden sibling of the output folder for frames on their way into the archive.
+fn scratch_path(folder: &Path) -> PathBuf {
     let name = folder
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "out".into());
-    folder.with_file_name(format!(".{name}.partial-{}", std::process::id()))
-}
-
-/// Moves the finished staging folder to its final name, replacing an old folder only when allowed.
-fn publish(staging: &Path, folder: &Path, overwrite: bool) -> Result<()> {
-    let old = folder.with_file_name(format!(
-        ".{}.old-{}",
-        folder
-            .file_name()
-            .map(|n| n.to_string_lossy().into_owned())
-            .unwrap_or_default(),
-        std::process::id()
-    ));
-    let had_old = folder.exists();
-    if had_old {
-        if !overwrite {
-            let _ = std::fs::remove_dir_all(staging);
-            return Err(Error::output(
-                folder,
-                "appeared while the job ran; run again with --overwrite to replace it",
-            ));
-        }
-        std::fs::rename(folder, &old).map_err(|e| Error::io(folder, e))?;
-    }
-    if let Err(e) = std::fs::rename(staging, folder) {
-        if had_old {
-            let _ = std::fs::rename(&old, folder);
-        }
-        let _ = std::fs::remove_dir_all(staging);
-        return Err(Error::io(folder, e));
-    }
-    if had_old {
-        let _ = std::fs::remove_dir_all(&old);
-    }
-    Ok(())
+    folder.with_file_name(format!(".{name}.frames-{}", std::process::id()))
 }
 
 /// Checks a job and its grids as `run_job` would, writing nothing. Returns a one-line summary.
@@ -232,19 +244,9 @@ fn publish(staging: &Path, folder: &Path, overwrite: bool) -> Result<()> {
 /// # Errors
 /// As `run_job` before its first write.
 pub fn check_job(job: &Job) -> Result<String> {
-    let surveys = job
-        .surveys
-        .iter()
-        .map(survey::read_survey)
-        .collect::<Result<Vec<_>>>()?;
-    let stack = align::align(surveys, job.area_of_interest)?;
-    let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
-    let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
-    let range = stack
-        .elevation_range()
-        .expect("align refuses all-nodata grids");
-    Renderer::new(stack.geometry(), &job.view, &job.sun, range)
-        .map_err(|m| Error::job(&job.path, "view", m))?;
+    let Prepared {
+        stack, timeline, ..
+    } = prepare(job)?;
     let g = stack.geometry();
     Ok(format!(
         "{} surveys on a {} x {} grid of {} m cells, {} frames, {:.1} s",

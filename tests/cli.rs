@@ -4,13 +4,22 @@ use std::path::Path;
 use std::process::Command;
 
 fn dunereel(args: &[&str], dir: &Path) -> (i32, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_dunereel")).args(args).current_dir(dir).output().unwrap();
-    (out.status.code().unwrap_or(-1), String::from_utf8_lossy(&out.stderr).into_owned())
+    let out = Command::new(env!("CARGO_BIN_EXE_dunereel"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap();
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
 }
 
 fn entries(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> =
-        std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
     v.sort();
     v
 }
@@ -20,7 +29,11 @@ const JOB: &str = "format_version: 1\ntitle: T\nsurveys:\n  - { date: 2030-01-01
 #[test]
 fn malformed_job_exits_2_and_writes_nothing() {
     let d = tempfile::tempdir().unwrap();
-    std::fs::write(d.path().join("job.yaml"), "format_version: 1\ntitle: [unclosed\n").unwrap();
+    std::fs::write(
+        d.path().join("job.yaml"),
+        "format_version: 1\ntitle: [unclosed\n",
+    )
+    .unwrap();
     let (code, err) = dunereel(&["render", "job.yaml"], d.path());
     assert_eq!(code, 2, "{err}");
     assert!(err.contains("job.yaml") && err.contains("line"), "{err}");
@@ -34,7 +47,10 @@ fn missing_grid_names_the_key_and_path() {
     std::fs::write(d.path().join("a.tif"), b"not a tiff").unwrap();
     let (code, err) = dunereel(&["render", "job.yaml"], d.path());
     assert_eq!(code, 2, "{err}");
-    assert!(err.contains("surveys[1].grid") && err.contains("b.tif"), "{err}");
+    assert!(
+        err.contains("surveys[1].grid") && err.contains("b.tif"),
+        "{err}"
+    );
     assert_eq!(entries(d.path()), vec!["a.tif", "job.yaml"]);
 }
 
@@ -55,5 +71,8 @@ fn missing_job_file_is_a_clear_error() {
     let d = tempfile::tempdir().unwrap();
     let (code, err) = dunereel(&["render", "nope.yaml"], d.path());
     assert_eq!(code, 2, "{err}");
-    assert!(err.contains("nope.yaml") && err.contains("no job file"), "{err}");
+    assert!(
+        err.contains("nope.yaml") && err.contains("no job file"),
+        "{err}"
+    );
 }

@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 use chrono::NaiveDate;
 
 use crate::align::AreaOfInterest;
+use crate::change::ChangeOptions;
 use crate::error::{Error, Result};
 use crate::render::{LightOptions, ViewOptions};
 use crate::timeline::FramePlan;
@@ -90,6 +91,8 @@ pub struct Job {
     pub view: ViewOptions,
     /// Sun and shading.
     pub sun: LightOptions,
+    /// Change record settings.
+    pub change: ChangeOptions,
     /// Outputs.
     pub output: OutputSpec,
 }
@@ -100,8 +103,14 @@ pub struct Job {
 /// `Error::Job` naming the key or line at fault and the fix; `Error::Io` if the file can't be read.
 pub fn load(path: &Path) -> Result<Job> {
     let text = std::fs::read_to_string(path).map_err(|e| match e.kind() {
-        std::io::ErrorKind::NotFound => Error::job(path, "file", "no job file here; check the path"),
-        std::io::ErrorKind::InvalidData => Error::job(path, "file", "is not UTF-8 text; save the job file as UTF-8"),
+        std::io::ErrorKind::NotFound => {
+            Error::job(path, "file", "no job file here; check the path")
+        }
+        std::io::ErrorKind::InvalidData => Error::job(
+            path,
+            "file",
+            "is not UTF-8 text; save the job file as UTF-8",
+        ),
         _ => Error::io(path, e),
     })?;
     let abs = std::path::absolute(path).map_err(|e| Error::io(path, e))?;

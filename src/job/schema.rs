@@ -3,6 +3,7 @@
 
 use serde::Deserialize;
 
+use crate::change::ChangeOptions;
 use crate::render::{LightOptions, ViewOptions};
 
 /// The whole job file as written.
@@ -22,6 +23,8 @@ pub(super) struct JobFile {
     pub view: ViewOptions,
     #[serde(default)]
     pub sun: LightOptions,
+    #[serde(default)]
+    pub change: ChangeOptions,
     pub output: OutputEntry,
 }
 

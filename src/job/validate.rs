@@ -302,6 +302,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         methods,
         view: f.view,
         sun: f.sun,
+        change: f.change,
         output,
     })
 }
