@@ -1,13 +1,10 @@
-//! GeoTIFF model tags and GeoKeys -> where the grid lies (corner origin, cell size) and its units.
+//! GeoTIFF model tags (33550, 33922, 34264) -> where the grid lies: corner origin and cell size.
 //!
 //! Raster-to-model per OGC GeoTIFF 1.1 (REFERENCES.md §9), for north-up grids only:
 //! `X = X_tp + (I − I_tp)·Sx`, `Y = Y_tp − (J − J_tp)·Sy`, or the affine ModelTransformation with
 //! zero rotation terms. The result always describes the outer corner of cell (0, 0): a PixelIsPoint
 //! raster (integer raster coordinates at cell centres) is shifted by half a cell west and north.
 //! Messages are returned as text without the file name; the caller adds it.
-
-use super::keys::{self, GeoKeys};
-use crate::grid::LinearUnit;
 
 /// North-west corner and cell size, in the CRS's horizontal unit.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -83,11 +80,13 @@ pub fn place(tags: &ModelTags, pixel_is_point: bool) -> Result<Placement, String
 fn from_scale_and_tiepoint(scale: &[f64], tie: &[f64]) -> Result<Placement, String> {
     let (sx, sy) = match scale {
         [sx, sy, ..] => (*sx, *sy),
-        _ => return Err(format!(
+        _ => {
+            return Err(format!(
             "ModelPixelScale (tag 33550) has {} values, at least 2 (Sx, Sy) are needed; write the \
                  GeoTIFF again",
             scale.len()
-        )),
+        ))
+        }
     };
     if sy < 0.0 && sy.is_finite() && sx > 0.0 {
         return Err(format!(
@@ -103,11 +102,13 @@ fn from_scale_and_tiepoint(scale: &[f64], tie: &[f64]) -> Result<Placement, Stri
     }
     let [i, j, _k, x, y, _z] = match tie.get(..6) {
         Some(&[i, j, k, x, y, z]) => [i, j, k, x, y, z],
-        _ => return Err(format!(
+        _ => {
+            return Err(format!(
             "ModelTiepoint (tag 33922) has {} values, 6 (I, J, K, X, Y, Z) are needed; write the \
                  GeoTIFF again",
             tie.len()
-        )),
+        ))
+        }
     };
     if tie.len() > 6 {
         log::warn!(
@@ -161,112 +162,6 @@ fn from_transformation(m: &[f64]) -> Result<Placement, String> {
         cell_x: a,
         cell_y: -f,
     })
-}
-
-/// The CRS facts the rest of the program needs.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Units {
-    /// EPSG code of the projected CRS, if the file gives one.
-    pub epsg: Option<u32>,
-    /// Unit of the map coordinates.
-    pub horizontal: LinearUnit,
-    /// Unit of the stored elevations.
-    pub vertical: LinearUnit,
-    /// True for PixelIsPoint rasters.
-    pub pixel_is_point: bool,
-}
-
-/// Reads model type, raster type, CRS code and units from the GeoKeys.
-///
-/// # Errors
-/// A message naming the key at fault: a geographic or geocentric model (degrees are not supported),
-/// or a unit code other than metre, foot or US survey foot.
-pub fn units(keys: &GeoKeys) -> Result<Units, String> {
-    match keys.short(keys::MODEL_TYPE) {
-        Some(2) => {
-            return Err(
-                "GTModelTypeGeoKey (1024) = 2: the grid is in geographic coordinates (degrees); \
-                        reproject it to a projected CRS in metres or feet"
-                    .into(),
-            )
-        }
-        Some(3) => {
-            return Err(
-                "GTModelTypeGeoKey (1024) = 3: geocentric coordinates are not supported; \
-                        reproject the grid to a projected CRS in metres or feet"
-                    .into(),
-            )
-        }
-        _ => {}
-    }
-    let pixel_is_point = match keys.short(keys::RASTER_TYPE) {
-        None | Some(1) => false,
-        Some(2) => true,
-        Some(other) => {
-            log::warn!(
-                "GTRasterTypeGeoKey (1025) = {other} is not defined; reading as PixelIsArea"
-            );
-            false
-        }
-    };
-    // 0 is "undefined" and 32767 "user-defined" in GeoTIFF; neither is an EPSG code.
-    let epsg = keys
-        .short(keys::PROJECTED_CRS)
-        .filter(|&c| c != 0 && c != 32767)
-        .map(u32::from);
-    let horizontal = match keys.short(keys::PROJ_LINEAR_UNITS) {
-        Some(code) => LinearUnit::from_epsg(code).ok_or_else(|| {
-            format!(
-                "ProjLinearUnitsGeoKey (3076) = {code} is not a unit this program reads; reproject the \
-                 grid to metres (9001), feet (9002) or US survey feet (9003)"
-            )
-        })?,
-        None => match epsg.and_then(unit_of_known_crs) {
-            Some(unit) => unit,
-            None => {
-                log::warn!(
-                    "no ProjLinearUnitsGeoKey (3076) and CRS {epsg:?} is not one this program knows; \
-                     assuming metres"
-                );
-                LinearUnit::Metre
-            }
-        },
-    };
-    let vertical = match keys.short(keys::VERTICAL_UNITS) {
-        Some(code) => LinearUnit::from_epsg(code).ok_or_else(|| {
-            format!(
-                "VerticalUnitsGeoKey (4099) = {code} is not a unit this program reads; convert the \
-                 elevations to metres (9001), feet (9002) or US survey feet (9003)"
-            )
-        })?,
-        None => {
-            if horizontal != LinearUnit::Metre {
-                log::warn!(
-                    "no VerticalUnitsGeoKey (4099) while the map unit is {}; taking elevations as metres",
-                    horizontal.symbol()
-                );
-            }
-            LinearUnit::Metre
-        }
-    };
-    Ok(Units {
-        epsg,
-        horizontal,
-        vertical,
-        pixel_is_point,
-    })
-}
-
-/// Unit of a few well-known metric CRS families, from their EPSG code ranges (from memory):
-/// WGS 84 / UTM north 32601–32660 and south 32701–32760, NAD83 / UTM 26901–26923,
-/// ETRS89 / UTM 25828–25838, and Web Mercator 3857.
-fn unit_of_known_crs(epsg: u32) -> Option<LinearUnit> {
-    match epsg {
-        32601..=32660 | 32701..=32760 | 26901..=26923 | 25828..=25838 | 3857 => {
-            Some(LinearUnit::Metre)
-        }
-        _ => None,
-    }
 }
 
 #[cfg(test)]
@@ -354,30 +249,5 @@ mod tests {
             ..Default::default()
         };
         assert!(place(&gcps, false).unwrap_err().contains("ground control"));
-    }
-
-    #[test]
-    fn units_from_keys() {
-        let dir = [
-            1, 1, 0, 4, 1024, 0, 1, 1, 1025, 0, 1, 2, 3072, 0, 1, 2227, 3076, 0, 1, 9003,
-        ];
-        let u = units(&GeoKeys::parse(&dir, &[], "").unwrap()).unwrap();
-        assert_eq!(u.epsg, Some(2227));
-        assert_eq!(u.horizontal, LinearUnit::UsSurveyFoot);
-        assert_eq!(u.vertical, LinearUnit::Metre);
-        assert!(u.pixel_is_point);
-        let utm =
-            GeoKeys::parse(&[1, 1, 0, 2, 3072, 0, 1, 32633, 4099, 0, 1, 9002], &[], "").unwrap();
-        let u = units(&utm).unwrap();
-        assert_eq!(
-            (u.horizontal, u.vertical, u.pixel_is_point),
-            (LinearUnit::Metre, LinearUnit::Foot, false)
-        );
-        let geographic = GeoKeys::parse(&[1, 1, 0, 1, 1024, 0, 1, 2], &[], "").unwrap();
-        assert!(units(&geographic).unwrap_err().contains("degrees"));
-        let odd = GeoKeys::parse(&[1, 1, 0, 1, 4099, 0, 1, 9036], &[], "").unwrap();
-        assert!(units(&odd)
-            .unwrap_err()
-            .contains("VerticalUnitsGeoKey (4099) = 9036"));
     }
 }

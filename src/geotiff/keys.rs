@@ -11,10 +11,18 @@
 pub const MODEL_TYPE: u16 = 1024;
 /// GTRasterTypeGeoKey: 1 PixelIsArea, 2 PixelIsPoint.
 pub const RASTER_TYPE: u16 = 1025;
+/// GTCitationGeoKey: free text, usually the CRS name.
+pub const CITATION: u16 = 1026;
 /// ProjectedCRSGeoKey (called ProjectedCSTypeGeoKey in GeoTIFF 1.0).
 pub const PROJECTED_CRS: u16 = 3072;
+/// ProjectedCitationGeoKey (PCSCitationGeoKey in 1.0): name of the projected CRS.
+pub const PROJECTED_CITATION: u16 = 3073;
 /// ProjLinearUnitsGeoKey: EPSG unit-of-measure code of the map coordinates.
 pub const PROJ_LINEAR_UNITS: u16 = 3076;
+/// VerticalGeoKey (VerticalCSTypeGeoKey in 1.0): EPSG code of the vertical CRS.
+pub const VERTICAL_CRS: u16 = 4096;
+/// VerticalCitationGeoKey: name of the vertical CRS.
+pub const VERTICAL_CITATION: u16 = 4097;
 /// VerticalUnitsGeoKey: EPSG unit-of-measure code of the elevations.
 pub const VERTICAL_UNITS: u16 = 4099;
 
@@ -135,7 +143,16 @@ impl GeoKeys {
         }
     }
 
+    /// The text of an ASCII key, if present and of that type.
+    pub fn ascii(&self, id: u16) -> Option<&str> {
+        match self.get(id) {
+            Some(KeyValue::Ascii(s)) => Some(s),
+            _ => None,
+        }
+    }
+
     /// Number of keys parsed.
+    #[cfg(test)]
     pub fn len(&self) -> usize {
         self.entries.len()
     }

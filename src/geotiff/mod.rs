@@ -8,6 +8,8 @@
 mod georef;
 mod keys;
 mod read;
+mod sample;
+mod units;
 mod write;
 
 pub use read::read_grid;
