@@ -193,9 +193,9 @@ fn damaged_bytes_never_panic() {
             file.seek(SeekFrom::Start(at as u64)).unwrap();
             file.write_all(&[b]).unwrap();
         };
-        for i in 0..bytes.len() {
+        for (i, &byte) in bytes.iter().enumerate() {
             for mask in [0xFFu8, 0x01, 0x80] {
-                put(i, bytes[i] ^ mask);
+                put(i, byte ^ mask);
                 if let Ok((grid, _)) = read_grid(&path) {
                     assert_eq!(
                         grid.z.dim(),
@@ -204,7 +204,7 @@ fn damaged_bytes_never_panic() {
                     );
                 }
             }
-            put(i, bytes[i]);
+            put(i, byte);
         }
     }
 }

@@ -291,6 +291,11 @@ fn multi_band_reads_band_one() {
     // the surface, band 2 all 7; library run, values in tests/fixtures/geotiff/expected.json
     let e = assert_matches_gdal("two_band_f32.tif");
     assert_eq!(e["bands"], 2);
+    // Check: GDAL 3.6.2 gdal.Info on fixture two_band_planar_i16.tif — 2 bands INTERLEAVE=BAND
+    // (PlanarConfiguration 2), LZW, nodata -1 at (6,1); library run, values in
+    // tests/fixtures/geotiff/expected.json
+    let e = assert_matches_gdal("two_band_planar_i16.tif");
+    assert_eq!(e["bands"], 2);
 }
 
 #[test]

@@ -118,7 +118,7 @@ mod tests {
         // abs diff < 1e-4 (f32)
         let us_ft = 1200.0 / 3937.0;
         let z = convert(&[100i16, -9999, 0], 3, us_ft, -9999.0).unwrap();
-        assert!((z[0] - 30.480_061).abs() < 1e-4);
+        assert!((f64::from(z[0]) - 30.480_061).abs() < 1e-4);
         assert!(z[1].is_nan());
         assert_eq!(z[2], 0.0);
         // Interleaved two-band samples: band 1 is every second value.
