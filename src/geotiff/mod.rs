@@ -5,7 +5,11 @@
 //! - `write_bands(path, geometry, bands, &WriteOptions) -> Result<()>`: float32 GeoTIFF with one band per
 //!   array, written to a temporary file in the same folder and renamed when complete.
 
+mod georef;
+mod keys;
 mod read;
+mod sample;
+mod units;
 mod write;
 
 pub use read::read_grid;
