@@ -140,6 +140,19 @@ fn unsupported_sample_format_and_compression() {
 }
 
 #[test]
+fn white_is_zero_is_refused() {
+    let tmp = tempfile::tempdir().unwrap();
+    let mut bytes = base();
+    let at = value_field(&bytes, 262);
+    bytes[at..at + 2].copy_from_slice(&0u16.to_le_bytes());
+    let msg = read_err(tmp.path(), "white.tif", &bytes);
+    assert!(
+        msg.contains("PhotometricInterpretation (tag 262) = 0"),
+        "{msg}"
+    );
+}
+
+#[test]
 fn nodata_text_that_is_not_a_number() {
     let tmp = tempfile::tempdir().unwrap();
     let mut bytes = base();

@@ -252,6 +252,9 @@ fn us_survey_feet_horizontal_and_vertical() {
     // library run, values in tests/fixtures/geotiff/expected.json
     let e = assert_matches_gdal("usft_f32.tif");
     let (grid, source) = read_grid(&dir().join("usft_f32.tif")).unwrap();
+    // Check: GDAL 3.6.2 gdal.Info on fixture usft_f32.tif — GetLinearUnitsName "US survey foot" and
+    // vertical unit 0.304800609601219 m; library run, values in tests/fixtures/geotiff/expected.json
+    assert_eq!(e["horizontal_unit_name"], "US survey foot");
     assert_eq!(grid.geometry.horizontal_unit, LinearUnit::UsSurveyFoot);
     assert_eq!(source.vertical_unit, LinearUnit::UsSurveyFoot);
     // Check: 85 FR 62698 (NIST/NOAA 2020) — US survey foot = 1200/3937 m; a 3 US ft cell is
@@ -268,8 +271,11 @@ fn us_survey_feet_horizontal_and_vertical() {
 fn international_feet_horizontal_and_vertical() {
     // Check: GDAL 3.6.2 gdal.Info on fixture ft_f32.tif — EPSG:2222 + NAVD88 height (ft) 8228, unit
     // 0.3048 m; library run, values in tests/fixtures/geotiff/expected.json
-    assert_matches_gdal("ft_f32.tif");
+    let e = assert_matches_gdal("ft_f32.tif");
     let (grid, source) = read_grid(&dir().join("ft_f32.tif")).unwrap();
+    // Check: GDAL 3.6.2 gdal.Info on fixture ft_f32.tif — GetLinearUnitsName "foot" (0.3048 m) for both
+    // axes; library run, values in tests/fixtures/geotiff/expected.json
+    assert_eq!(e["horizontal_unit_name"], "foot");
     assert_eq!(
         (grid.geometry.horizontal_unit, source.vertical_unit),
         (LinearUnit::Foot, LinearUnit::Foot)

@@ -51,8 +51,9 @@ pub fn read_grid(path: &Path) -> Result<(Grid, GridSource)> {
     })?;
     let limits = {
         let mut l = Limits::default();
-        l.decoding_buffer_size = MAX_DECODED_BYTES as usize;
-        l.intermediate_buffer_size = MAX_DECODED_BYTES as usize;
+        let max = usize::try_from(MAX_DECODED_BYTES).unwrap_or(usize::MAX);
+        l.decoding_buffer_size = max;
+        l.intermediate_buffer_size = max;
         l.ifd_value_size = 64 << 20;
         l
     };
@@ -176,6 +177,13 @@ impl Layout {
                 ))
             }
         };
+        // The decoder would return 1 − v (or the bit complement) for WhiteIsZero, which is not an
+        // elevation; GDAL-written grids use BlackIsZero (1).
+        if short_tag(dec, Tag::PhotometricInterpretation)? == Some(0) {
+            return Err("PhotometricInterpretation (tag 262) = 0 (WhiteIsZero) inverts the stored values; \
+                        write the grid with BlackIsZero (1), the usual setting for elevation rasters"
+                .into());
+        }
         if bands > 1 {
             log::warn!("file has {bands} bands; reading band 1 as elevation");
         }

@@ -57,11 +57,23 @@ pub fn to_metres(
     nodata: f64,
 ) -> Result<Vec<f32>, String> {
     match decoded {
-        DecodingResult::F32(mut v) if v.len() == cells && factor == 1.0 => {
+        // Single-band float32: convert in the decoded buffer, no second allocation.
+        DecodingResult::F32(mut v) if v.len() == cells => {
             let nd = nodata as f32;
-            for x in v.iter_mut() {
-                if *x == nd || !x.is_finite() {
-                    *x = f32::NAN;
+            if factor == 1.0 {
+                for x in v.iter_mut() {
+                    if *x == nd || !x.is_finite() {
+                        *x = f32::NAN;
+                    }
+                }
+            } else {
+                for x in v.iter_mut() {
+                    let z = (f64::from(*x) * factor) as f32;
+                    *x = if *x == nd || !z.is_finite() {
+                        f32::NAN
+                    } else {
+                        z
+                    };
                 }
             }
             Ok(v)
@@ -139,5 +151,9 @@ mod tests {
         .unwrap();
         assert_eq!(z[0], 1.5);
         assert!(z[1..].iter().all(|v| v.is_nan()));
+        // Check: 0.3048 m per international foot (1959 agreement, from memory); 10 ft = 3.048 m,
+        // abs diff < 1e-6
+        let z = to_metres(DecodingResult::F32(vec![10.0, -9999.0]), 2, 0.3048, -9999.0).unwrap();
+        assert!((z[0] - 3.048).abs() < 1e-6 && z[1].is_nan());
     }
 }
