@@ -42,6 +42,11 @@ enum Command {
         /// The job file (YAML).
         job: PathBuf,
     },
+    /// Check an output folder against its SHA-256 manifests: missing, extra or altered files.
+    Verify {
+        /// The output (archive) folder of a run.
+        folder: PathBuf,
+    },
 }
 
 fn main() -> ExitCode {
@@ -65,6 +70,7 @@ fn main() -> ExitCode {
             threads,
         } => render(&job, output, overwrite, threads, cli.quiet),
         Command::Check { job } => check(&job),
+        Command::Verify { folder } => verify(&folder),
     };
     match outcome {
         Ok(()) => ExitCode::from(exit::OK),
@@ -123,6 +129,41 @@ fn check(path: &std::path::Path) -> dunereel::Result<()> {
     let report = dunereel::run::check_job(&job)?;
     println!("{}: ok — {report}", path.display());
     Ok(())
+}
+
+fn verify(folder: &std::path::Path) -> dunereel::Result<()> {
+    let report = dunereel::archive::verify(folder)?;
+    if report.is_intact() {
+        println!(
+            "{}: intact — {} files match their checksums",
+            folder.display(),
+            report.checked
+        );
+        return Ok(());
+    }
+    for (what, list) in [
+        ("missing", &report.missing),
+        ("extra", &report.extra),
+        ("altered", &report.altered),
+    ] {
+        for f in list {
+            println!("{what}: {f}");
+        }
+    }
+    for p in &report.problems {
+        println!("problem: {p}");
+    }
+    Err(dunereel::Error::input(
+        folder,
+        format!(
+            "the archive does not match its manifests ({} missing, {} extra, {} altered, {} other problems); \
+             restore the listed files from a trusted copy",
+            report.missing.len(),
+            report.extra.len(),
+            report.altered.len(),
+            report.problems.len()
+        ),
+    ))
 }
 
 /// A progress bar on standard error; hidden when that is not a terminal or when quiet.

@@ -1,5 +1,7 @@
 //! The `dunereel` binary on bad input: clear messages, exit code 2, nothing written.
 
+mod common;
+
 use std::path::Path;
 use std::process::Command;
 
@@ -75,4 +77,29 @@ fn missing_job_file_is_a_clear_error() {
         err.contains("nope.yaml") && err.contains("no job file"),
         "{err}"
     );
+}
+
+#[test]
+fn verify_reports_an_altered_file_with_exit_2() {
+    let d = tempfile::tempdir().unwrap();
+    let job = common::moving_dune_job(d.path(), "");
+    let (code, err) = dunereel(&["render", job.to_str().unwrap()], d.path());
+    assert_eq!(code, 0, "{err}");
+    let (code, err) = dunereel(&["verify", "out"], d.path());
+    assert_eq!(code, 0, "{err}");
+    let table = d.path().join("out/data/tables/pairs.csv");
+    let mut bytes = std::fs::read(&table).unwrap();
+    bytes[10] ^= 1;
+    std::fs::write(&table, bytes).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_dunereel"))
+        .args(["verify", "out"])
+        .current_dir(d.path())
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("altered: data/tables/pairs.csv"));
+    // A second render refuses to replace the folder it made.
+    let (code, err) = dunereel(&["render", job.to_str().unwrap()], d.path());
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("--overwrite"), "{err}");
 }

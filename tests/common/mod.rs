@@ -1,0 +1,64 @@
+//! Fixtures made in code: small synthetic dunes written as GeoTIFFs, and job files around them.
+#![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+
+use dunereel::geotiff::{write_bands, WriteOptions};
+use dunereel::grid::{GridGeometry, LinearUnit};
+use ndarray::Array2;
+
+/// A 1 m grid of `cols` x `rows` cells in an invented UTM-style frame.
+pub fn geometry(cols: usize, rows: usize) -> GridGeometry {
+    GridGeometry {
+        cols,
+        rows,
+        origin_x: 400_000.0,
+        origin_y: 6_000_000.0,
+        cell_x: 1.0,
+        cell_y: 1.0,
+        epsg: Some(32631),
+        horizontal_unit: LinearUnit::Metre,
+    }
+}
+
+/// A Gaussian dune of height `h` m and spread `sigma` cells centred at (`cx`, `cy`) cells, on a 2 m plane.
+pub fn gaussian_dune(g: &GridGeometry, cx: f64, cy: f64, h: f64, sigma: f64) -> Array2<f32> {
+    Array2::from_shape_fn((g.rows, g.cols), |(r, c)| {
+        let dx = c as f64 - cx;
+        let dy = r as f64 - cy;
+        (2.0 + h * (-(dx * dx + dy * dy) / (2.0 * sigma * sigma)).exp()) as f32
+    })
+}
+
+/// Writes a grid as a GeoTIFF.
+pub fn write_grid(path: &Path, g: &GridGeometry, z: &Array2<f32>) {
+    write_bands(
+        path,
+        g,
+        &[z],
+        &WriteOptions {
+            nodata: Some(-9999.0),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+}
+
+/// Writes three surveys of a dune moving east by 6 cells a year, and a job file; returns the job path.
+pub fn moving_dune_job(dir: &Path, extra_yaml: &str) -> PathBuf {
+    let g = geometry(64, 48);
+    for (i, date) in ["2030-03-01", "2031-03-01", "2033-03-01"]
+        .iter()
+        .enumerate()
+    {
+        let years = [0.0, 1.0, 3.0][i];
+        let z = gaussian_dune(&g, 16.0 + 6.0 * years, 24.0, 6.0 - 0.5 * years, 5.0);
+        write_grid(&dir.join(format!("{date}.tif")), &g, &z);
+    }
+    let job = format!(
+        "format_version: 1\ntitle: Test dune\nsurveys:\n  - {{ date: 2030-03-01, grid: 2030-03-01.tif, sigma_z_m: 0.1 }}\n  - {{ date: 2031-03-01, grid: 2031-03-01.tif, sigma_z_m: 0.1 }}\n  - {{ date: 2033-03-01, grid: 2033-03-01.tif }}\ntimeline: {{ frames_per_year: 3, fps: 10, hold_s: 0.5 }}\nview: {{ width: 128, height: 96 }}\noutput: {{ folder: out }}\n{extra_yaml}"
+    );
+    let path = dir.join("job.yaml");
+    std::fs::write(&path, job).unwrap();
+    path
+}

@@ -1,0 +1,88 @@
+//! The whole pipeline through the library: a small job in, an archive folder out.
+
+mod common;
+
+use dunereel::{job, run_job, RunOptions};
+
+#[test]
+fn small_job_writes_a_verifiable_archive() {
+    let d = tempfile::tempdir().unwrap();
+    let path = common::moving_dune_job(d.path(), "");
+    let job = job::load(&path).unwrap();
+    let report = run_job(&job, &RunOptions::default()).unwrap();
+    // 1 year at 3 frames/yr + 2 years at 3 frames/yr + the last survey.
+    assert_eq!(report.frames, 3 + 6 + 1);
+    assert_eq!(report.survey_frames, 3);
+    let out = d.path().join("out");
+    let check = dunereel::archive::verify(&out).unwrap();
+    assert!(check.is_intact(), "{check:?}");
+    assert!(out.join("data/job/job.yaml").is_file());
+    assert!(out.join("data/frames/frame-00010.png").is_file());
+    // The survey without a stated uncertainty is flagged in the record.
+    assert!(
+        report.warnings.iter().any(|w| w.contains("2033-03-01")),
+        "{:?}",
+        report.warnings
+    );
+    // No scratch or staging folders are left beside the output.
+    let names: Vec<String> = std::fs::read_dir(d.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert!(names.iter().all(|n| !n.starts_with('.')), "{names:?}");
+}
+
+#[test]
+fn existing_output_is_kept_unless_overwrite_is_asked() {
+    let d = tempfile::tempdir().unwrap();
+    let path = common::moving_dune_job(d.path(), "");
+    let job = job::load(&path).unwrap();
+    let out = d.path().join("out");
+    std::fs::create_dir(&out).unwrap();
+    std::fs::write(out.join("notes.txt"), "mine").unwrap();
+    let err = run_job(&job, &RunOptions::default()).unwrap_err();
+    assert_eq!(err.exit_code(), 1);
+    assert!(err.to_string().contains("--overwrite"), "{err}");
+    assert_eq!(
+        std::fs::read_to_string(out.join("notes.txt")).unwrap(),
+        "mine"
+    );
+    run_job(
+        &job,
+        &RunOptions {
+            overwrite: true,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    assert!(!out.join("notes.txt").exists());
+    assert!(dunereel::archive::verify(&out).unwrap().is_intact());
+}
+
+#[test]
+fn same_job_gives_identical_frames_and_tables() {
+    let d = tempfile::tempdir().unwrap();
+    let path = common::moving_dune_job(d.path(), "");
+    let job = job::load(&path).unwrap();
+    let a = d.path().join("a");
+    let b = d.path().join("b");
+    run_job(
+        &job,
+        &RunOptions {
+            output_folder: Some(a.clone()),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    run_job(
+        &job,
+        &RunOptions {
+            output_folder: Some(b.clone()),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let manifest =
+        |p: &std::path::Path| std::fs::read_to_string(p.join("manifest-sha256.txt")).unwrap();
+    assert_eq!(manifest(&a), manifest(&b));
+}
