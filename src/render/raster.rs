@@ -58,14 +58,24 @@ fn bounds(band: &Band, a: &Vert, b: &Vert, c: &Vert) -> Option<(usize, usize, us
     let maxx = a.x.max(b.x).max(c.x);
     let miny = a.y.min(b.y).min(c.y);
     let maxy = a.y.max(b.y).max(c.y);
-    let x0 = (minx - 0.5).ceil().max(0.0);
-    let x1 = (maxx - 0.5).floor().min(band.width as f32 - 1.0);
-    let y0 = (miny - 0.5).ceil().max(band.y0 as f32);
-    let y1 = (maxy - 0.5).floor().min((band.y0 + band.rows) as f32 - 1.0);
-    if !(x0 <= x1 && y0 <= y1) {
+    // Clamp before converting; `ceil`/`floor` by integer casts avoid libm calls in this hot path.
+    let lo_x = (minx - 0.5).max(0.0);
+    let lo_y = (miny - 0.5).max(band.y0 as f32);
+    let hi_x = (maxx - 0.5).min(band.width as f32 - 1.0);
+    let hi_y = (maxy - 0.5).min((band.y0 + band.rows) as f32 - 1.0);
+    if !(lo_x <= hi_x && lo_y <= hi_y) {
         return None;
     }
-    Some((x0 as usize, x1 as usize, y0 as usize, y1 as usize))
+    let ceil = |v: f32| {
+        let t = v as usize;
+        t + usize::from((t as f32) < v)
+    };
+    let (x0, y0) = (ceil(lo_x), ceil(lo_y));
+    let (x1, y1) = (hi_x as usize, hi_y as usize);
+    if x0 > x1 || y0 > y1 {
+        return None;
+    }
+    Some((x0, x1, y0, y1))
 }
 
 /// Draws a triangle with depth test; `area > 0` (clockwise on a y-down screen) is front-facing.
