@@ -436,3 +436,122 @@ impl Renderer {
         ramp::Ramp::elevation().at((z_m - lo) / (hi - lo))
     }
 }
+
+#[test]
+fn supersampling_is_the_box_mean_of_a_finer_render() {
+    let s = synthetic_dunes(60, 80, 1.0);
+    let light = LightOptions::default();
+    let small = ViewOptions {
+        width: 64,
+        height: 48,
+        supersample: 2,
+        ..Default::default()
+    };
+    let big = ViewOptions {
+        width: 128,
+        height: 96,
+        supersample: 1,
+        ..Default::default()
+    };
+    let (mut a, mut b) = (Frame::new(64, 48), Frame::new(128, 96));
+    Renderer::new(&s.geometry, &small, &light, (0.0, 16.0))
+        .unwrap()
+        .render_into(&s, 0.0, &mut a);
+    Renderer::new(&s.geometry, &big, &light, (0.0, 16.0))
+        .unwrap()
+        .render_into(&s, 0.0, &mut b);
+    let enc = ramp::Encoder::default();
+    let dec = |v: u8| ramp::srgb_to_linear(v as f32 / 255.0);
+    let mut mixed = 0;
+    for y in 0..48 {
+        for x in 0..64 {
+            let got = px(&a, x, y);
+            for k in 0..3 {
+                let m = [(0, 0), (1, 0), (0, 1), (1, 1)]
+                    .iter()
+                    .map(|&(dx, dy)| dec(px(&b, 2 * x + dx, 2 * y + dy)[k]))
+                    .sum::<f32>()
+                    / 4.0;
+                // Check: analytic — a 2×2 supersampled pixel is the linear-light mean of the four
+                // samples a render at twice the size draws; ±2 levels for the 8-bit round trip
+                assert!((got[k] as i32 - enc.byte(m) as i32).abs() <= 2, "({x},{y})");
+            }
+            let corners: Vec<[u8; 3]> = [(0, 0), (1, 1)]
+                .iter()
+                .map(|&(d, e)| px(&b, 2 * x + d, 2 * y + e))
+                .collect();
+            mixed +=
+                usize::from(corners[0] != corners[1] && got != corners[0] && got != corners[1]);
+        }
+    }
+    assert!(mixed > 50, "edges are blended: {mixed}");
+}
+
+#[test]
+fn water_covers_low_ground_only_and_shell_shows_above_the_surface() {
+    // West half at 1 m, east half at 9 m; water at 5 m.
+    let z = Array2::from_shape_fn((40, 40), |(_, c)| if c < 20 { 1.0f32 } else { 9.0 });
+    let s = surface(z, 1.0);
+    let view = ViewOptions {
+        elevation_deg: 90.0,
+        ..plain_view()
+    };
+    let light = LightOptions {
+        shadows: false,
+        specular: 0.0,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &light, (0.0, 10.0)).unwrap();
+    let mut dry = Frame::new(96, 64);
+    r.render_into(&s, 0.0, &mut dry);
+    r.set_water(&WaterOptions {
+        level_m: Some(5.0),
+        ..Default::default()
+    })
+    .unwrap();
+    let mut wet = Frame::new(96, 64);
+    r.render_into(&s, 0.0, &mut wet);
+    let (west, east) = ((38, 32), (58, 32));
+    assert_ne!(
+        px(&dry, west.0, west.1),
+        px(&wet, west.0, west.1),
+        "low ground is under water"
+    );
+    assert_eq!(
+        px(&dry, east.0, east.1),
+        px(&wet, east.0, east.1),
+        "high ground stays dry"
+    );
+    // A shell 2 m above everything tints every ground pixel; one 2 m below shows nowhere.
+    r.set_water(&WaterOptions::default()).unwrap();
+    let mut above = s.clone();
+    above.z.mapv_inplace(|v| v + 2.0);
+    let mut below = s.clone();
+    below.z.mapv_inplace(|v| v - 2.0);
+    let mut f = Frame::new(96, 64);
+    r.render_scene_into(&s, Some(&below), Colouring::Elevation, 0.0, &mut f);
+    assert_eq!(f, dry);
+    r.render_scene_into(&s, Some(&above), Colouring::Elevation, 0.0, &mut f);
+    assert_ne!(px(&f, east.0, east.1), px(&dry, east.0, east.1));
+    assert_ne!(px(&f, west.0, west.1), px(&dry, west.0, west.1));
+    // Sky pixels are untouched by the shell.
+    assert_eq!(px(&f, 1, 1), px(&dry, 1, 1));
+}
+
+#[test]
+fn wrong_sized_frame_and_surface_do_not_panic() {
+    let s = synthetic_dunes(30, 30, 1.0);
+    let mut r = Renderer::new(
+        &s.geometry,
+        &plain_view(),
+        &LightOptions::default(),
+        (0.0, 16.0),
+    )
+    .unwrap();
+    let mut f = Frame::new(10, 10);
+    r.render_into(&s, 0.0, &mut f);
+    assert_eq!((f.width, f.height), (96, 64));
+    let other = synthetic_dunes(20, 30, 1.0);
+    r.render_into(&other, 0.0, &mut f);
+    assert_eq!(r.depth_at(48, 32), 0.0, "sky only");
+}
