@@ -145,6 +145,7 @@ impl Encoder {
 }
 
 #[cfg(test)]
+#[allow(clippy::excessive_precision)]
 mod tests {
     use super::*;
 

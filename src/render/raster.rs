@@ -81,6 +81,7 @@ fn bounds(band: &Band, a: &Vert, b: &Vert, c: &Vert) -> Option<(usize, usize, us
 /// Draws a triangle with depth test; `area > 0` (clockwise on a y-down screen) is front-facing.
 /// Back-facing, degenerate and NaN triangles are skipped unless `two_sided`.
 #[inline]
+#[allow(clippy::neg_cmp_op_on_partial_ord, clippy::needless_range_loop)] // `!(a > 0)` also rejects NaN
 pub fn draw_triangle(band: &mut Band, a: &Vert, b: &Vert, c: &Vert, two_sided: bool) {
     let area = (b.x - a.x) * (c.y - a.y) - (c.x - a.x) * (b.y - a.y);
     if !(area > 0.0) {
@@ -130,6 +131,7 @@ pub fn draw_triangle(band: &mut Band, a: &Vert, b: &Vert, c: &Vert, two_sided: b
 /// Draws a front-facing triangle into a separate layer (its own colour and depth) but only where it
 /// is nearer than the opaque depth `under`: used for translucent surfaces, composited once later.
 #[inline]
+#[allow(clippy::neg_cmp_op_on_partial_ord)] // `!(a > 0)` also rejects NaN
 pub fn draw_triangle_layer(band: &mut Band, under: &[f32], a: &Vert, b: &Vert, c: &Vert) {
     let area = (b.x - a.x) * (c.y - a.y) - (c.x - a.x) * (b.y - a.y);
     if !(area > 0.0) {

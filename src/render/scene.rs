@@ -732,9 +732,8 @@ pub(super) fn render(
                         let vdir = [-d[0] / len, -d[1] / len, -d[2] / len];
                         let spec = light.specular
                             * blinn_phong([0.0, 0.0, 1.0], light.sun, vdir, light.shininess * 4.0);
-                        for k in 0..3 {
-                            let o = &mut band.rgb[i * 3 + k];
-                            *o += (lit[k] + spec * light.intensity - *o) * alpha;
+                        for (o, l) in band.rgb[i * 3..i * 3 + 3].iter_mut().zip(lit) {
+                            *o += (l + spec * light.intensity - *o) * alpha;
                         }
                     }
                 }

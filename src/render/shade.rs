@@ -133,6 +133,7 @@ pub fn hillshade_byte(shade: f32) -> u8 {
 }
 
 #[cfg(test)]
+#[allow(clippy::excessive_precision, clippy::approx_constant)]
 mod tests {
     use super::*;
 

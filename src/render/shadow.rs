@@ -184,6 +184,7 @@ pub fn cast_shadow_into(
 }
 
 #[cfg(test)]
+#[allow(clippy::excessive_precision)]
 mod tests {
     use super::*;
 

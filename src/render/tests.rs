@@ -1,4 +1,5 @@
 //! Whole-renderer checks: lighting on planes, visibility, nodata, option checks, determinism.
+#![allow(clippy::needless_range_loop)]
 
 use ndarray::Array2;
 
