@@ -9,10 +9,35 @@
 //!   infallible; `orbit_fraction` in [0, 1] is how far along the orbit this frame is (ignored for a
 //!   fixed view).
 //! - `FrameView::project(x, y, z_m)` maps a map point (CRS units, metres of elevation, before
-//!   exaggeration) to a pixel, for labels.
+//!   exaggeration) to a pixel, for labels; `north_px` and `metres_per_px` serve a north arrow and a
+//!   scale bar.
+//!
+//! Pipeline of one frame (files of this module):
+//! 1. `lod.rs`: the surface is reduced to the level of detail chosen once per job from the projected
+//!    cell size, heights multiplied by the vertical exaggeration.
+//! 2. `shadow.rs`: cast shadows from the sun's horizon over that level.
+//! 3. `scene.rs`: per vertex, Horn normals (`shade.rs`), elevation colour (`ramp.rs`), Lambert +
+//!    ambient + Blinn-Phong light, projection through the look-at camera (`camera.rs`); triangles
+//!    binned to row bands; block sides and an optional translucent shell surface and water plane.
+//! 4. `raster.rs`: each row band (in parallel, rayon) fills its sky gradient, rasterises its
+//!    triangles with a depth buffer, composites translucent layers, then averages the supersamples
+//!    and encodes linear light to sRGB bytes into its rows of the frame.
+//!
+//! Determinism: every parallel step writes disjoint outputs computed from inputs fixed before the
+//! step, in a fixed order, so the frame is bit-identical for any thread count.
+
+pub mod camera;
+pub mod lod;
+pub mod ramp;
+pub mod raster;
+mod scene;
+pub mod shade;
+pub mod shadow;
 
 use crate::grid::GridGeometry;
 use crate::interp::Surface;
+
+pub use camera::Camera;
 
 /// An RGBA image that frames are rendered into, then labelled, then encoded.
 #[derive(Debug, Clone, PartialEq)]
@@ -38,28 +63,50 @@ impl Frame {
     }
 }
 
-/// Where the camera stands and how it moves.
+/// Largest frame side accepted, in pixels.
+pub const MAX_FRAME_PX: u32 = 8192;
+
+/// Where the camera stands and how it moves, plus the scene around the terrain.
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct ViewOptions {
-    /// Frame width in pixels. Default: 960.
+    /// Frame width in pixels, 1 to 8192. Default: 960.
     pub width: u32,
-    /// Frame height in pixels. Default: 540.
+    /// Frame height in pixels, 1 to 8192. Default: 540.
     pub height: u32,
     /// Compass bearing, in degrees clockwise from north, of the direction the camera looks. Default: 20.
     pub facing_deg: f64,
-    /// Angle of the line of sight below the horizon, in degrees (90 = straight down). Default: 35.
+    /// Angle of the line of sight below the horizon, in degrees (90 = straight down), 5 to 90. Default: 35.
     pub elevation_deg: f64,
     /// Distance from the camera to the target in metres; absent = fit the whole grid in view. Default: fit.
     pub distance_m: Option<f64>,
     /// Point looked at, `[x, y]` in map coordinates; absent = the grid's centre. Default: centre.
     pub target: Option<[f64; 2]>,
-    /// Vertical field of view in degrees. Default: 40.
+    /// Vertical field of view in degrees, 5 to 120. Default: 40.
     pub fov_deg: f64,
-    /// Degrees the camera turns around the target over the whole animation (0 = fixed). Default: 0.
+    /// Degrees the camera turns around the target over the whole animation (0 = fixed; 720 = two
+    /// turns; negative turns anticlockwise seen from above). Default: 0.
     pub orbit_deg: f64,
+    /// Ease the orbit in and out (zero turning speed at the first and last frame). Default: true.
+    pub orbit_easing: bool,
     /// Heights are multiplied by this for display (geometry, normals and shadows alike). Default: 2.
     pub vertical_exaggeration: f64,
+    /// Anti-aliasing: each pixel is the mean of supersample × supersample samples, 1 to 4. Default: 2.
+    pub supersample: u32,
+    /// Level of detail: grids are reduced until a cell spans at least this many (supersampled)
+    /// pixels at the target, 0.5 to 16. Default: 2.
+    pub lod_min_cell_px: f64,
+    /// Draw the terrain block's sides down to `base_m`. Default: true.
+    pub block_sides: bool,
+    /// Elevation in metres of the block's base; absent = 20 % of the elevation range below the lowest
+    /// elevation, less 1 m. Default: automatic.
+    pub base_m: Option<f64>,
+    /// Colour of the block's sides, sRGB. Default: [150, 124, 96].
+    pub side_rgb: [u8; 3],
+    /// Sky colour at the top of the frame, sRGB. Default: [92, 136, 190].
+    pub sky_top_rgb: [u8; 3],
+    /// Sky colour at the bottom of the frame, sRGB. Default: [222, 230, 238].
+    pub sky_bottom_rgb: [u8; 3],
 }
 
 impl Default for ViewOptions {
@@ -73,7 +120,27 @@ impl Default for ViewOptions {
             target: None,
             fov_deg: 40.0,
             orbit_deg: 0.0,
+            orbit_easing: true,
             vertical_exaggeration: 2.0,
+            supersample: 2,
+            lod_min_cell_px: 2.0,
+            block_sides: true,
+            base_m: None,
+            side_rgb: [150, 124, 96],
+            sky_top_rgb: [92, 136, 190],
+            sky_bottom_rgb: [222, 230, 238],
+        }
+    }
+}
+
+impl ViewOptions {
+    /// A small, quick view for previews and tests: 320 × 180, no supersampling.
+    pub fn preview() -> Self {
+        ViewOptions {
+            width: 320,
+            height: 180,
+            supersample: 1,
+            ..Default::default()
         }
     }
 }
@@ -88,6 +155,18 @@ pub struct LightOptions {
     pub altitude_deg: f64,
     /// Share of light that reaches every surface regardless of orientation, in [0, 1]. Default: 0.25.
     pub ambient: f64,
+    /// Weight of the Lambert (diffuse) term, 0 to 2. Default: 0.85.
+    pub diffuse: f64,
+    /// Weight of the Blinn-Phong (specular) highlight, 0 to 1. Default: 0.12.
+    pub specular: f64,
+    /// Blinn-Phong shininess exponent (larger = tighter highlight), 1 to 1000. Default: 40.
+    pub shininess: f64,
+    /// Overall light multiplier, above 0 and at most 10. Default: 1.
+    pub intensity: f64,
+    /// Cast shadows from the sun's horizon. Default: true.
+    pub shadows: bool,
+    /// Width of the shadow edge in cells of the drawn level (0 = hard edge), 0 to 10. Default: 1.
+    pub shadow_softness_cells: f64,
 }
 
 impl Default for LightOptions {
@@ -96,27 +175,146 @@ impl Default for LightOptions {
             azimuth_deg: 315.0,
             altitude_deg: 40.0,
             ambient: 0.25,
+            diffuse: 0.85,
+            specular: 0.12,
+            shininess: 40.0,
+            intensity: 1.0,
+            shadows: true,
+            shadow_softness_cells: 1.0,
         }
     }
+}
+
+/// A flat water surface (a tidal datum, a flood level) drawn translucent over the terrain.
+#[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct WaterOptions {
+    /// Water level in metres (same datum as the grids); absent = no water. Default: none.
+    pub level_m: Option<f64>,
+    /// Water colour, sRGB. Default: [40, 110, 170].
+    pub rgb: [u8; 3],
+    /// Opacity of the water, 0 (clear) to 1 (opaque). Default: 0.55.
+    pub opacity: f64,
+}
+
+impl Default for WaterOptions {
+    fn default() -> Self {
+        WaterOptions {
+            level_m: None,
+            rgb: [40, 110, 170],
+            opacity: 0.55,
+        }
+    }
+}
+
+/// A second surface (an earlier survey, a bedrock grid) drawn as a translucent shell.
+#[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ShellOptions {
+    /// Shell colour, sRGB. Default: [235, 235, 240].
+    pub rgb: [u8; 3],
+    /// Opacity of the shell, 0 to 1. Default: 0.35.
+    pub opacity: f64,
+}
+
+impl Default for ShellOptions {
+    fn default() -> Self {
+        ShellOptions {
+            rgb: [235, 235, 240],
+            opacity: 0.35,
+        }
+    }
+}
+
+/// How a surface is coloured.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Colouring<'a> {
+    /// By elevation on the fixed elevation ramp.
+    Elevation,
+    /// By change since a reference surface (same geometry), on a diverging ramp centred on zero,
+    /// symmetric to ±`limit_m`; |change| below `lod_m` is drawn neutral.
+    Change {
+        /// The earlier surface's elevations, row-major, same shape as the rendered surface.
+        reference: &'a ndarray::Array2<f32>,
+        /// Change in metres mapped to the ends of the ramp (> 0).
+        limit_m: f32,
+        /// Level of detection in metres: smaller changes are drawn as no change.
+        lod_m: f32,
+    },
 }
 
 /// What a rendered frame needs to place labels: the camera of that frame.
 #[derive(Debug, Clone)]
 pub struct FrameView {
-    _private: (),
+    camera: Camera,
+    centre_map: (f64, f64),
+    unit_m: f64,
+    exaggeration: f64,
+    target: [f64; 3],
 }
 
 impl FrameView {
+    fn local(&self, x: f64, y: f64, z_m: f64) -> [f64; 3] {
+        [
+            (x - self.centre_map.0) * self.unit_m,
+            (y - self.centre_map.1) * self.unit_m,
+            z_m * self.exaggeration,
+        ]
+    }
+
     /// Pixel (column, row; continuous, origin top-left) of a map point, or None if behind the camera.
-    pub fn project(&self, _x: f64, _y: f64, _z_m: f64) -> Option<(f32, f32)> {
-        None
+    pub fn project(&self, x: f64, y: f64, z_m: f64) -> Option<(f32, f32)> {
+        self.camera
+            .project(self.local(x, y, z_m))
+            .map(|(c, r, _)| (c as f32, r as f32))
+    }
+
+    /// Unit vector (d_column, d_row; rows grow downward) pointing north on the screen at the target,
+    /// for a north arrow; None when north is along the line of sight.
+    pub fn north_px(&self) -> Option<(f32, f32)> {
+        let t = self.target;
+        let step = 1.0;
+        let a = self.camera.project(t)?;
+        let b = self.camera.project([t[0], t[1] + step, t[2]])?;
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let len = (dx * dx + dy * dy).sqrt();
+        (len > 1e-9).then(|| ((dx / len) as f32, (dy / len) as f32))
+    }
+
+    /// Approximate metres (horizontal, on the ground) per pixel at the target, for a scale bar.
+    pub fn metres_per_px(&self) -> f64 {
+        let d = camera::dot(camera::sub(self.target, self.camera.eye), self.camera.fwd);
+        d / self.camera.focal_px
+    }
+
+    /// The camera of this frame (local metres about the grid centre; exaggerated heights).
+    pub fn camera(&self) -> &Camera {
+        &self.camera
     }
 }
 
 /// Renders surfaces of one analysis grid; holds the per-job buffers.
 #[derive(Debug)]
 pub struct Renderer {
-    _geometry: GridGeometry,
+    geometry: GridGeometry,
+    view: ViewOptions,
+    light: LightOptions,
+    water: WaterOptions,
+    shell: ShellOptions,
+    range_m: (f32, f32),
+    base_m: f32,
+    target: [f64; 3],
+    distance_m: f64,
+    level: u32,
+    buffers: scene::Buffers,
+}
+
+fn check(ok: bool, msg: impl FnOnce() -> String) -> Result<(), String> {
+    if ok {
+        Ok(())
+    } else {
+        Err(msg())
+    }
 }
 
 impl Renderer {
@@ -124,24 +322,352 @@ impl Renderer {
     ///
     /// # Errors
     /// A message naming the option at fault and the fix.
+    ///
+    /// # Allocations
+    /// The frame-sized colour and depth buffers (16 bytes a supersample) and the reduced-level
+    /// vertex buffers, once.
     pub fn new(
         geometry: &GridGeometry,
-        _view: &ViewOptions,
-        _light: &LightOptions,
-        _elevation_range_m: (f32, f32),
+        view: &ViewOptions,
+        light: &LightOptions,
+        elevation_range_m: (f32, f32),
     ) -> Result<Renderer, String> {
+        let v = view;
+        check((1..=MAX_FRAME_PX).contains(&v.width), || {
+            format!("view.width: {} is outside 1..={MAX_FRAME_PX}; give the frame width in pixels, e.g. 960", v.width)
+        })?;
+        check((1..=MAX_FRAME_PX).contains(&v.height), || {
+            format!("view.height: {} is outside 1..={MAX_FRAME_PX}; give the frame height in pixels, e.g. 540", v.height)
+        })?;
+        check((1..=4).contains(&v.supersample), || {
+            format!(
+                "view.supersample: {} is outside 1..=4; use 1 (off), 2 or 3",
+                v.supersample
+            )
+        })?;
+        let samples = u64::from(v.width) * u64::from(v.height) * u64::from(v.supersample).pow(2);
+        check(samples <= 64 << 20, || {
+            format!(
+                "view.supersample: {} at {}x{} needs {samples} samples (more than 64 Mi); lower supersample or the frame size",
+                v.supersample, v.width, v.height
+            )
+        })?;
+        check(
+            v.fov_deg.is_finite() && (5.0..=120.0).contains(&v.fov_deg),
+            || {
+                format!("view.fov_deg: {} is outside 5..=120; give the vertical field of view in degrees, e.g. 40", v.fov_deg)
+            },
+        )?;
+        check(
+            v.elevation_deg.is_finite() && (5.0..=90.0).contains(&v.elevation_deg),
+            || {
+                format!(
+                "view.elevation_deg: {} is outside 5..=90; give the angle of the line of sight below the horizon, e.g. 35 (a camera at or below the horizon would look into the terrain)",
+                v.elevation_deg
+            )
+            },
+        )?;
+        check(
+            v.facing_deg.is_finite() && (0.0..360.0).contains(&v.facing_deg),
+            || {
+                format!(
+                    "view.facing_deg: {} is outside [0, 360); give a compass bearing, e.g. 20",
+                    v.facing_deg
+                )
+            },
+        )?;
+        check(
+            v.orbit_deg.is_finite() && v.orbit_deg.abs() <= 3600.0,
+            || {
+                format!("view.orbit_deg: {} is outside -3600..=3600; give the turn over the animation in degrees, e.g. 360", v.orbit_deg)
+            },
+        )?;
+        check(
+            v.vertical_exaggeration.is_finite()
+                && v.vertical_exaggeration > 0.0
+                && v.vertical_exaggeration <= 100.0,
+            || {
+                format!(
+                    "view.vertical_exaggeration: {} must be above 0 and at most 100; use 1 for true scale, 2 to 5 to bring out low dunes",
+                    v.vertical_exaggeration
+                )
+            },
+        )?;
+        check(
+            v.lod_min_cell_px.is_finite() && (0.5..=16.0).contains(&v.lod_min_cell_px),
+            || {
+                format!(
+                    "view.lod_min_cell_px: {} is outside 0.5..=16; 2 is a good balance",
+                    v.lod_min_cell_px
+                )
+            },
+        )?;
+        let l = light;
+        check(
+            l.azimuth_deg.is_finite() && (0.0..360.0).contains(&l.azimuth_deg),
+            || {
+                format!("light.azimuth_deg: {} is outside [0, 360); give the sun's compass bearing, e.g. 315", l.azimuth_deg)
+            },
+        )?;
+        check(
+            l.altitude_deg.is_finite() && l.altitude_deg > 0.0 && l.altitude_deg <= 90.0,
+            || {
+                if l.altitude_deg <= 0.0 {
+                    format!("light.altitude_deg: {} puts the sun at or below the horizon; give an altitude in (0, 90], e.g. 40", l.altitude_deg)
+                } else {
+                    format!("light.altitude_deg: {} is outside (0, 90]; give the sun's altitude in degrees, e.g. 40", l.altitude_deg)
+                }
+            },
+        )?;
+        for (name, val, lo, hi) in [
+            ("ambient", l.ambient, 0.0, 1.0),
+            ("diffuse", l.diffuse, 0.0, 2.0),
+            ("specular", l.specular, 0.0, 1.0),
+            ("shininess", l.shininess, 1.0, 1000.0),
+            ("shadow_softness_cells", l.shadow_softness_cells, 0.0, 10.0),
+        ] {
+            check(val.is_finite() && (lo..=hi).contains(&val), || {
+                format!("light.{name}: {val} is outside {lo}..={hi}")
+            })?;
+        }
+        check(
+            l.intensity.is_finite() && l.intensity > 0.0 && l.intensity <= 10.0,
+            || {
+                format!(
+                    "light.intensity: {} must be above 0 and at most 10; 1 is full sunlight",
+                    l.intensity
+                )
+            },
+        )?;
+        check(geometry.rows >= 2 && geometry.cols >= 2, || {
+            format!(
+                "the grid is {}x{} cells; the view needs at least 2x2",
+                geometry.cols, geometry.rows
+            )
+        })?;
+        let (lo, hi) = elevation_range_m;
+        check(lo.is_finite() && hi.is_finite() && lo <= hi, || {
+            format!("elevation range {lo}..{hi} m is not a finite range; the surveys hold no elevations to draw")
+        })?;
+        let range_m = if hi - lo < 0.01 {
+            (lo - 0.5, hi + 0.5)
+        } else {
+            (lo, hi)
+        };
+        let base_m = match v.base_m {
+            Some(b) => {
+                check(b.is_finite() && (b as f32) < lo, || {
+                    format!("view.base_m: {b} m is not below the lowest elevation {lo} m; give a lower base or leave it out")
+                })?;
+                b as f32
+            }
+            None => lo - 0.2 * (hi - lo) - 1.0,
+        };
+        let k = v.vertical_exaggeration;
+        let unit = geometry.horizontal_unit.metres();
+        let (west, south, east, north) = geometry.extent();
+        let (cx, cy) = ((west + east) / 2.0, (south + north) / 2.0);
+        let tz = f64::from(range_m.0 + range_m.1) / 2.0 * k;
+        let target = match v.target {
+            Some([x, y]) => {
+                check(
+                    x.is_finite()
+                        && y.is_finite()
+                        && (west..=east).contains(&x)
+                        && (south..=north).contains(&y),
+                    || {
+                        format!(
+                        "view.target: [{x}, {y}] lies outside the grid ({west}..{east}, {south}..{north}); give a point inside it or leave it out"
+                    )
+                    },
+                )?;
+                [(x - cx) * unit, (y - cy) * unit, tz]
+            }
+            None => [0.0, 0.0, tz],
+        };
+        // Corners of the terrain block, for framing and the inside/under checks.
+        let (hw, hh) = ((east - west) / 2.0 * unit, (north - south) / 2.0 * unit);
+        let ztop = f64::from(range_m.1) * k;
+        let zbot = f64::from(base_m.min(range_m.0)) * k;
+        let corners: Vec<[f64; 3]> = [-hw, hw]
+            .iter()
+            .flat_map(|&x| [-hh, hh].map(move |y| [x, y]))
+            .flat_map(|[x, y]| [[x, y, ztop], [x, y, zbot]])
+            .collect();
+        let distance_m = match v.distance_m {
+            Some(d) => {
+                check(d.is_finite() && d > 0.0, || {
+                    format!("view.distance_m: {d} must be a positive number of metres, or left out to fit the grid")
+                })?;
+                let eye_z = target[2] + d * v.elevation_deg.to_radians().sin();
+                check(eye_z > f64::from(range_m.0) * k, || {
+                    format!(
+                        "view.distance_m: {d} m puts the camera under the terrain (eye at {:.1} m, lowest ground {:.1} m after exaggeration); increase distance_m or elevation_deg",
+                        eye_z, f64::from(range_m.0) * k
+                    )
+                })?;
+                // Inside: eye lower than the highest ground while standing over the grid at some
+                // point of the orbit.
+                let horiz = d * v.elevation_deg.to_radians().cos();
+                let over_grid = (0..=72).any(|i| {
+                    let yaw = v.facing_deg + v.orbit_deg * i as f64 / 72.0;
+                    let (s, c) = yaw.to_radians().sin_cos();
+                    let (ex, ey) = (target[0] - horiz * s, target[1] - horiz * c);
+                    ex.abs() <= hw && ey.abs() <= hh
+                });
+                check(!(over_grid && eye_z <= ztop), || {
+                    format!(
+                        "view.distance_m: {d} m puts the camera inside the terrain (eye at {:.1} m, highest ground {:.1} m after exaggeration); increase distance_m or elevation_deg",
+                        eye_z, ztop
+                    )
+                })?;
+                d
+            }
+            None => {
+                // The largest fit over the orbit keeps the grid in view on every frame.
+                let aspect = f64::from(v.width) / f64::from(v.height);
+                let steps = if v.orbit_deg == 0.0 { 0 } else { 72 };
+                (0..=steps)
+                    .map(|i| {
+                        let yaw = v.facing_deg + v.orbit_deg * i as f64 / 72.0;
+                        let f = camera::view_direction(yaw, v.elevation_deg);
+                        let c = Camera::look_at([0.0; 3], f, yaw, v.fov_deg, 1.0, 1.0);
+                        camera::fit_distance(
+                            &corners, target, c.fwd, c.right, c.up, v.fov_deg, aspect, 0.04,
+                        )
+                    })
+                    .fold(0.0, f64::max)
+            }
+        };
+        // Level of detail from the projected cell size at the target.
+        let focal_int = (f64::from(v.height) / 2.0) / (v.fov_deg.to_radians() / 2.0).tan()
+            * f64::from(v.supersample);
+        let cell_m = geometry.cell_x_m().min(geometry.cell_y_m());
+        let cell_px = cell_m * focal_int / distance_m;
+        let level = lod::choose_level(cell_px, v.lod_min_cell_px, geometry.rows, geometry.cols);
+        log::debug!("render: level of detail {level} (cell {cell_px:.2} px at the target), distance {distance_m:.1} m");
+        let buffers = scene::Buffers::new(geometry, v, level);
         Ok(Renderer {
-            _geometry: geometry.clone(),
+            geometry: geometry.clone(),
+            view: v.clone(),
+            light: l.clone(),
+            water: WaterOptions::default(),
+            shell: ShellOptions::default(),
+            range_m,
+            base_m,
+            target,
+            distance_m,
+            level,
+            buffers,
         })
+    }
+
+    /// Adds a water plane to every frame.
+    ///
+    /// # Errors
+    /// A message naming the `water.*` option at fault.
+    pub fn set_water(&mut self, water: &WaterOptions) -> Result<(), String> {
+        if let Some(level) = water.level_m {
+            check(level.is_finite(), || {
+                format!("water.level_m: {level} is not a number of metres")
+            })?;
+        }
+        check(
+            water.opacity.is_finite() && (0.0..=1.0).contains(&water.opacity),
+            || {
+                format!(
+                    "water.opacity: {} is outside 0..=1; e.g. 0.55",
+                    water.opacity
+                )
+            },
+        )?;
+        self.water = water.clone();
+        Ok(())
+    }
+
+    /// Sets how a translucent shell surface is drawn by [`Renderer::render_scene_into`].
+    ///
+    /// # Errors
+    /// A message naming the `shell.*` option at fault.
+    pub fn set_shell(&mut self, shell: &ShellOptions) -> Result<(), String> {
+        check(
+            shell.opacity.is_finite() && (0.0..=1.0).contains(&shell.opacity),
+            || {
+                format!(
+                    "shell.opacity: {} is outside 0..=1; e.g. 0.35",
+                    shell.opacity
+                )
+            },
+        )?;
+        self.shell = shell.clone();
+        Ok(())
+    }
+
+    /// The level of detail drawn (0 = every cell; L = blocks of 2^L × 2^L cells).
+    pub fn level_of_detail(&self) -> u32 {
+        self.level
     }
 
     /// Renders `surface` into `frame`.
     pub fn render_into(
         &mut self,
-        _surface: &Surface,
-        _orbit_fraction: f64,
-        _frame: &mut Frame,
+        surface: &Surface,
+        orbit_fraction: f64,
+        frame: &mut Frame,
     ) -> FrameView {
-        FrameView { _private: () }
+        self.render_scene_into(surface, None, Colouring::Elevation, orbit_fraction, frame)
+    }
+
+    /// Renders `surface`, coloured as asked, with an optional translucent `shell` surface (same
+    /// geometry; e.g. an earlier survey) and the water plane, into `frame`.
+    pub fn render_scene_into(
+        &mut self,
+        surface: &Surface,
+        shell: Option<&Surface>,
+        colouring: Colouring,
+        orbit_fraction: f64,
+        frame: &mut Frame,
+    ) -> FrameView {
+        scene::render(self, surface, shell, colouring, orbit_fraction, frame)
+    }
+
+    /// The camera for a point of the orbit, on the output frame.
+    fn frame_view(&self, orbit_fraction: f64) -> FrameView {
+        let v = &self.view;
+        let f = if v.orbit_easing {
+            camera::ease(orbit_fraction)
+        } else {
+            orbit_fraction.clamp(0.0, 1.0)
+        };
+        let yaw = v.facing_deg + v.orbit_deg * f;
+        let dir = camera::view_direction(yaw, v.elevation_deg);
+        let d = self.distance_m;
+        let t = self.target;
+        let eye = [t[0] - dir[0] * d, t[1] - dir[1] * d, t[2] - dir[2] * d];
+        let camera = Camera::look_at(
+            eye,
+            t,
+            yaw,
+            v.fov_deg,
+            f64::from(v.width),
+            f64::from(v.height),
+        );
+        let (west, south, east, north) = self.geometry.extent();
+        FrameView {
+            camera,
+            centre_map: ((west + east) / 2.0, (south + north) / 2.0),
+            unit_m: self.geometry.horizontal_unit.metres(),
+            exaggeration: v.vertical_exaggeration,
+            target: t,
+        }
     }
 }
+
+#[doc(hidden)]
+/// Internals for benches; not part of the public API.
+pub mod bench_api {
+    pub use super::scene::synthetic_dunes;
+}
+
+#[cfg(test)]
+mod tests;

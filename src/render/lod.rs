@@ -1,0 +1,135 @@
+//! Full-resolution heights -> a reduced level of detail sized to the screen.
+//!
+//! Level L averages blocks of 2^L × 2^L cells (nodata cells skipped; a block with no data stays
+//! nodata; blocks wider than 4 cells average a 4 × 4 evenly spaced subset), in one pass straight
+//! from the full grid, so the cost per frame is at most one read of the grid
+//! plus work proportional to the reduced level. The level is chosen once per job from the projected
+//! size of a cell at the target: the smallest L whose cells cover at least `min_cell_px` pixels.
+//! A block mean (rather than picking one cell in 2^L²) keeps the reduced surface free of aliasing
+//! when the camera orbits; common practice, no source.
+
+use rayon::prelude::*;
+
+/// The coarsest level allowed: the reduced grid keeps at least 2 cells along each side.
+pub fn max_level(rows: usize, cols: usize) -> u32 {
+    let mut l = 0;
+    while (rows.min(cols) >> (l + 1)) >= 2 && l < 12 {
+        l += 1;
+    }
+    l
+}
+
+/// Smallest level whose cells project to at least `min_cell_px` pixels, given the size in pixels of
+/// one full-resolution cell at the target.
+pub fn choose_level(cell_px: f64, min_cell_px: f64, rows: usize, cols: usize) -> u32 {
+    let mut l = 0;
+    let top = max_level(rows, cols);
+    while l < top && cell_px * f64::from(1u32 << l) < min_cell_px {
+        l += 1;
+    }
+    l
+}
+
+/// Shape (rows, cols) of level `level` of a rows × cols grid.
+pub fn level_shape(rows: usize, cols: usize, level: u32) -> (usize, usize) {
+    let b = 1usize << level;
+    (rows.div_ceil(b), cols.div_ceil(b))
+}
+
+/// Most samples averaged along each side of a block: larger blocks average an evenly spaced
+/// 4 × 4 subset (the centres of its 4 × 4 sub-blocks), so a frame reads a bounded share of a huge
+/// grid; 16 samples per block still suppress aliasing well (the subset's centre sits half a
+/// full-resolution cell off the block's centre, negligible at those levels). Common practice, no source.
+pub const MAX_SAMPLES_PER_SIDE: usize = 4;
+
+/// Writes level `level` of row-major `z` (rows × cols), multiplied by `scale`, into `out`.
+/// Nodata cells are skipped; a block without data is NaN.
+pub fn reduce_into(z: &[f32], rows: usize, cols: usize, level: u32, scale: f32, out: &mut [f32]) {
+    let (lr, lc) = level_shape(rows, cols, level);
+    assert!(z.len() == rows * cols && out.len() == lr * lc);
+    let b = 1usize << level;
+    if b == 1 {
+        out.par_chunks_mut(cols)
+            .zip(z.par_chunks(cols))
+            .for_each(|(o, src)| {
+                o.iter_mut().zip(src).for_each(|(v, &h)| *v = h * scale);
+            });
+        return;
+    }
+    let step = (b / MAX_SAMPLES_PER_SIDE).max(1);
+    let off = step / 2;
+    out.par_chunks_mut(lc)
+        .with_min_len(4)
+        .enumerate()
+        .for_each(|(orow, o)| {
+            let r0 = orow * b;
+            let r1 = (r0 + b).min(rows);
+            let first = if r0 + off < r1 { r0 + off } else { r0 };
+            for (ocol, v) in o.iter_mut().enumerate() {
+                let c0 = ocol * b;
+                let c1 = (c0 + b).min(cols);
+                let cfirst = if c0 + off < c1 { c0 + off } else { c0 };
+                let mut sum = 0.0f32;
+                let mut n = 0u32;
+                for r in (first..r1).step_by(step) {
+                    let row = &z[r * cols..r * cols + c1];
+                    for &h in row[cfirst..].iter().step_by(step) {
+                        let ok = h.is_finite();
+                        sum += if ok { h } else { 0.0 };
+                        n += u32::from(ok);
+                    }
+                }
+                *v = if n == 0 {
+                    f32::NAN
+                } else {
+                    sum / n as f32 * scale
+                };
+            }
+        });
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn levels_follow_projected_cell_size() {
+        assert_eq!(choose_level(3.0, 2.0, 1024, 1024), 0);
+        assert_eq!(choose_level(0.5, 2.0, 1024, 1024), 2);
+        assert_eq!(choose_level(0.125, 2.0, 4096, 4096), 4);
+        // A tiny grid never drops below 2×2.
+        assert_eq!(choose_level(0.001, 2.0, 8, 8), 2);
+        assert_eq!(level_shape(10, 7, 2), (3, 2));
+    }
+
+    #[test]
+    fn block_mean_keeps_planes_and_skips_nodata() {
+        let (rows, cols) = (8, 6);
+        let mut z: Vec<f32> = (0..rows * cols)
+            .map(|i| (i % cols) as f32 + 10.0 * (i / cols) as f32)
+            .collect();
+        let mut out = vec![0.0; 4 * 3];
+        reduce_into(&z, rows, cols, 1, 2.0, &mut out);
+        // Check: analytic — the mean of a plane over a 2×2 block is the plane at the block centre
+        // (col 0.5, row 0.5) = 0.5 + 5 = 5.5, times the scale 2 → 11.
+        assert_eq!(out[0], 11.0);
+        z[0] = f32::NAN;
+        z[1] = f32::NAN;
+        z[cols] = f32::NAN;
+        z[cols + 1] = f32::NAN;
+        z[2] = f32::NAN;
+        reduce_into(&z, rows, cols, 1, 1.0, &mut out);
+        assert!(out[0].is_nan());
+        // Check: analytic — block (rows 0-1, cols 2-3) with one nodata cell: mean of 3, 12, 13.
+        assert!((out[1] - 28.0 / 3.0).abs() < 1e-5);
+        // Large blocks: the 4×4 subset mean of a plane is the plane at the subset's centre.
+        let (rows, cols) = (64, 64);
+        let z: Vec<f32> = (0..rows * cols)
+            .map(|i| (i % cols) as f32 + 100.0 * (i / cols) as f32)
+            .collect();
+        let mut out = vec![0.0; 4];
+        reduce_into(&z, rows, cols, 5, 1.0, &mut out);
+        // Check: analytic — block 32×32, samples at 4, 12, 20, 28 → mean 16 along each axis.
+        assert_eq!(out[0], 16.0 + 1600.0);
+    }
+}
