@@ -6,4 +6,5 @@
 //! - `gif`: the animated GIF writer (global palette, difference frames, delays, looping).
 //! - `png_seq`: numbered PNG frames with an index CSV, and a poster of several frames.
 pub mod atomic;
+pub mod gif;
 pub mod quantize;
