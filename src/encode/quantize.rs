@@ -256,16 +256,31 @@ fn split_box(cells: &mut [(u64, [u64; 3])]) -> usize {
     cells.len() / 2
 }
 
+/// Fixed-point scale of the error sums: 1/1024 of a colour level.
+const SQRT_SCALE: f64 = 1024.0;
+
+/// `round(sqrt(d2) * SQRT_SCALE)` for squared distances below 4096 (errors under 64 levels).
+fn sqrt_table() -> &'static [u32; 4096] {
+    static TABLE: std::sync::OnceLock<[u32; 4096]> = std::sync::OnceLock::new();
+    TABLE.get_or_init(|| std::array::from_fn(|i| ((i as f64).sqrt() * SQRT_SCALE).round() as u32))
+}
+
 /// Maps RGB colours to the index of the nearest palette colour; see the module doc.
 ///
 /// # Allocations
-/// About 1.5 MB of lookup table per palette, plus the candidate lists of the cells in use.
+/// 1 MB of lookup table per palette, plus 8 bytes per candidate of the cells in use.
 pub struct Mapper {
     palette: Vec<[i32; 3]>,
-    start: Vec<u32>,
-    len: Vec<u16>,
-    candidates: Vec<u8>,
+    /// Per 6-bit cell: 0 = not filled yet; odd = one candidate, index in bits 8..16; even = a list
+    /// in `candidates`, length - 1 in bits 1..9 and start in bits 9..32; `BRUTE` = list too long to
+    /// store, search the whole palette.
+    info: Vec<u32>,
+    /// Candidate colours with their index: (r, g, b, index).
+    candidates: Vec<[i16; 4]>,
 }
+
+const BRUTE: u32 = u32::MAX - 1;
+const MAX_START: usize = (1 << 23) - 1;
 
 impl Mapper {
     /// A mapper for `palette`.
@@ -276,13 +291,12 @@ impl Mapper {
                 .iter()
                 .map(|c| [c[0] as i32, c[1] as i32, c[2] as i32])
                 .collect(),
-            start: vec![0; CELLS],
-            len: vec![0; CELLS],
+            info: vec![0; CELLS],
             candidates: Vec::new(),
         }
     }
 
-    fn fill_cell(&mut self, cell: usize) {
+    fn fill_cell(&mut self, cell: usize) -> u32 {
         let lo = [
             ((cell >> (2 * BITS)) << SHIFT) as i32,
             (((cell >> BITS) & ((1 << BITS) - 1)) << SHIFT) as i32,
@@ -290,58 +304,97 @@ impl Mapper {
         ];
         let hi = lo.map(|v| v + (1 << SHIFT) - 1);
         let mut best_far = i32::MAX;
-        let near: Vec<i32> = self
-            .palette
-            .iter()
-            .map(|p| {
-                let (mut dn, mut df) = (0, 0);
-                for k in 0..3 {
-                    let n = if p[k] < lo[k] {
-                        lo[k] - p[k]
-                    } else if p[k] > hi[k] {
-                        p[k] - hi[k]
-                    } else {
-                        0
-                    };
-                    let f = (p[k] - lo[k]).abs().max((p[k] - hi[k]).abs());
-                    dn += n * n;
-                    df += f * f;
-                }
-                best_far = best_far.min(df);
-                dn
-            })
-            .collect();
-        self.start[cell] = self.candidates.len() as u32;
-        let before = self.candidates.len();
-        for (i, &dn) in near.iter().enumerate() {
-            if dn <= best_far {
-                self.candidates.push(i as u8);
+        let mut near = [0i32; 256];
+        for (i, p) in self.palette.iter().enumerate() {
+            let (mut dn, mut df) = (0, 0);
+            for k in 0..3 {
+                let n = if p[k] < lo[k] {
+                    lo[k] - p[k]
+                } else if p[k] > hi[k] {
+                    p[k] - hi[k]
+                } else {
+                    0
+                };
+                let f = (p[k] - lo[k]).abs().max((p[k] - hi[k]).abs());
+                dn += n * n;
+                df += f * f;
             }
+            best_far = best_far.min(df);
+            near[i] = dn;
         }
-        self.len[cell] = (self.candidates.len() - before) as u16;
+        let keep: Vec<usize> = (0..self.palette.len())
+            .filter(|&i| near[i] <= best_far)
+            .collect();
+        let info = if keep.len() == 1 {
+            ((keep[0] as u32) << 8) | 1
+        } else if self.candidates.len() + keep.len() > MAX_START {
+            BRUTE
+        } else {
+            let start = self.candidates.len() as u32;
+            for &i in &keep {
+                let p = self.palette[i];
+                self.candidates
+                    .push([p[0] as i16, p[1] as i16, p[2] as i16, i as i16]);
+            }
+            (start << 9) | (((keep.len() - 1) as u32) << 1)
+        };
+        self.info[cell] = info;
+        info
+    }
+
+    /// Mean length of the candidate lists met by the pixels of `rgba` (bench diagnostics).
+    #[doc(hidden)]
+    pub fn mean_candidates(&mut self, rgba: &[u8]) -> f64 {
+        let mut n = 0u64;
+        for p in rgba.chunks_exact(4) {
+            self.nearest(p[0], p[1], p[2]);
+            let info = self.info[cell_of(p[0], p[1], p[2])];
+            n += if info & 1 == 1 {
+                1
+            } else if info == BRUTE {
+                self.palette.len() as u64
+            } else {
+                ((info >> 1) & 0xFF) as u64 + 1
+            };
+        }
+        n as f64 / (rgba.len() / 4).max(1) as f64
     }
 
     /// Index of the nearest palette colour to (r, g, b).
     #[inline]
     pub fn nearest(&mut self, r: u8, g: u8, b: u8) -> u8 {
         let cell = cell_of(r, g, b);
-        if self.len[cell] == 0 {
-            self.fill_cell(cell);
+        let mut info = self.info[cell];
+        if info == 0 {
+            info = self.fill_cell(cell);
         }
-        let s = self.start[cell] as usize;
-        let cands = &self.candidates[s..s + self.len[cell] as usize];
+        if info & 1 == 1 {
+            return (info >> 8) as u8;
+        }
         let (r, g, b) = (r as i32, g as i32, b as i32);
-        let mut best = cands[0];
+        if info == BRUTE {
+            let mut best = (0u8, i32::MAX);
+            for (i, p) in self.palette.iter().enumerate() {
+                let d = (p[0] - r) * (p[0] - r) + (p[1] - g) * (p[1] - g) + (p[2] - b) * (p[2] - b);
+                if d < best.1 {
+                    best = (i as u8, d);
+                }
+            }
+            return best.0;
+        }
+        let s = (info >> 9) as usize;
+        let n = ((info >> 1) & 0xFF) as usize + 1;
+        let mut best = 0i16;
         let mut best_d = i32::MAX;
-        for &i in cands {
-            let p = self.palette[i as usize];
-            let d = (p[0] - r) * (p[0] - r) + (p[1] - g) * (p[1] - g) + (p[2] - b) * (p[2] - b);
+        for c in &self.candidates[s..s + n] {
+            let (dr, dg, db) = (c[0] as i32 - r, c[1] as i32 - g, c[2] as i32 - b);
+            let d = dr * dr + dg * dg + db * db;
             if d < best_d {
                 best_d = d;
-                best = i;
+                best = c[3];
             }
         }
-        best
+        best as u8
     }
 
     /// Maps a whole RGBA frame (`width` pixels a row) into `out` (one index per pixel), with Bayer
@@ -354,12 +407,12 @@ impl Mapper {
         assert_eq!(rgba.len(), out.len() * 4, "one index per RGBA pixel");
         assert!(width > 0 && out.len() % width == 0, "whole rows");
         let mut err_sum = 0.0f64;
-        // At most ±127 levels, so the offset fits the cache key's byte.
         let spread = if spread.is_finite() {
             spread.clamp(0.0, 254.0)
         } else {
             0.0
         };
+        let sqrt_table = sqrt_table();
         // Offsets per Bayer cell, in whole colour levels, computed once.
         let mut offs = [[0i32; 4]; 4];
         for (y, row) in offs.iter_mut().enumerate() {
@@ -373,29 +426,22 @@ impl Mapper {
             .enumerate()
         {
             let orow = &offs[y & 3];
-            let mut row_err = 0.0f32;
-            let mut last_key = u32::MAX;
-            let mut last_idx = 0u8;
+            let mut row_err = 0u64;
             for (x, (p, o)) in src_row.chunks_exact(4).zip(dst_row.iter_mut()).enumerate() {
                 let off = orow[x & 3];
-                // Runs of one colour with the same offset map to the same index: skip the lookup.
-                let key = u32::from_le_bytes([p[0], p[1], p[2], (off + 128) as u8]);
-                let idx = if key == last_key {
-                    last_idx
-                } else if off == 0 {
-                    self.nearest(p[0], p[1], p[2])
-                } else {
-                    let d = |v: u8| (v as i32 + off).clamp(0, 255) as u8;
-                    self.nearest(d(p[0]), d(p[1]), d(p[2]))
-                };
-                last_key = key;
-                last_idx = idx;
+                let d = |v: u8| (v as i32 + off).clamp(0, 255) as u8;
+                let idx = self.nearest(d(p[0]), d(p[1]), d(p[2]));
                 let q = self.palette[idx as usize];
                 let (dr, dg, db) = (q[0] - p[0] as i32, q[1] - p[1] as i32, q[2] - p[2] as i32);
-                row_err += ((dr * dr + dg * dg + db * db) as f32).sqrt();
+                let d2 = (dr * dr + dg * dg + db * db) as usize;
+                // Integer sums from a table keep the float add (and its latency) out of the loop.
+                row_err += match sqrt_table.get(d2) {
+                    Some(&v) => v as u64,
+                    None => ((d2 as f64).sqrt() * SQRT_SCALE) as u64,
+                };
                 *o = idx;
             }
-            err_sum += row_err as f64;
+            err_sum += row_err as f64 / SQRT_SCALE;
         }
         err_sum
     }
