@@ -7,4 +7,5 @@
 //! - `png_seq`: numbered PNG frames with an index CSV, and a poster of several frames.
 pub mod atomic;
 pub mod gif;
+pub mod png_seq;
 pub mod quantize;
