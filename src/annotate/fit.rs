@@ -109,7 +109,14 @@ pub fn fit_text(
     max_lines: usize,
 ) -> FittedText {
     let text = text.trim();
-    if text.is_empty() || max_lines == 0 || !(max_w > 0.0) || !(preferred_px > 0.0) {
+    // Written so NaN sizes also take this exit.
+    if text.is_empty()
+        || max_lines == 0
+        || max_w.is_nan()
+        || max_w <= 0.0
+        || preferred_px.is_nan()
+        || preferred_px <= 0.0
+    {
         return FittedText::empty(weight);
     }
     let min_px = min_px.min(preferred_px).max(1.0);

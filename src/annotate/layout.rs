@@ -545,7 +545,7 @@ fn plan_with(
             head_h = y - gap * 0.6 + pad;
         }
     }
-    let head = (head_w > 0.0).then(|| Rect {
+    let head = (head_w > 0.0).then_some(Rect {
         x: m,
         y: m,
         w: head_w + 2.0 * pad,

@@ -57,7 +57,7 @@ pub fn measure_text_bold(size_px: f32, text: &str) -> (f32, f32) {
 
 /// Width and height in pixels of one line of `text` at `size_px` in `weight`.
 pub fn measure_text_weighted(size_px: f32, text: &str, weight: Weight) -> (f32, f32) {
-    if !(size_px > 0.0) || !size_px.is_finite() {
+    if !size_px.is_finite() || size_px <= 0.0 {
         return (0.0, 0.0);
     }
     let scaled = font(weight).as_scaled(PxScale::from(size_px));
@@ -84,8 +84,7 @@ pub fn draw_text_weighted(
     text: &str,
     weight: Weight,
 ) {
-    if !(size_px > 0.0) || !size_px.is_finite() || !x.is_finite() || !y.is_finite() || rgba[3] == 0
-    {
+    if !size_px.is_finite() || size_px <= 0.0 || !x.is_finite() || !y.is_finite() || rgba[3] == 0 {
         return;
     }
     let f = font(weight);

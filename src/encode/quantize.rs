@@ -184,8 +184,8 @@ impl PaletteBuilder {
                 let (mut cnt, mut sum) = (0u64, [0u64; 3]);
                 for c in &cells[s..e] {
                     cnt += c.0;
-                    for k in 0..3 {
-                        sum[k] += c.1[k];
+                    for (acc, v) in sum.iter_mut().zip(c.1) {
+                        *acc += v;
                     }
                 }
                 let mean =
@@ -209,8 +209,8 @@ fn mean_of(cells: &[(u64, [u64; 3])]) -> [f64; 3] {
     let (mut cnt, mut sum) = (0u64, [0u64; 3]);
     for c in cells {
         cnt += c.0;
-        for k in 0..3 {
-            sum[k] += c.1[k];
+        for (acc, v) in sum.iter_mut().zip(c.1) {
+            *acc += v;
         }
     }
     let n = cnt.max(1) as f64;

@@ -22,8 +22,8 @@ fn terrain(w: u32, h: u32, shift_px: f32, date: &str) -> Frame {
             let shade = 0.55 + 0.45 * ((fx * 1.3).cos() * (fy * 0.9).sin());
             let i = (y * w as usize + x) * 4;
             let ramp = [40.0 + 200.0 * z, 70.0 + 150.0 * z, 110.0 + 90.0 * (1.0 - z)];
-            for c in 0..3 {
-                f.rgba[i + c] = (ramp[c] * shade).clamp(0.0, 255.0) as u8;
+            for (dst, v) in f.rgba[i..i + 3].iter_mut().zip(ramp) {
+                *dst = (v * shade).clamp(0.0, 255.0) as u8;
             }
         }
     }
