@@ -1,0 +1,564 @@
+//! RGB samples from all frames -> one palette of at most 256 colours (median cut), and RGB pixels ->
+//! palette indices (exact nearest colour, optional ordered dithering).
+//!
+//! Palette: Heckbert's median cut (Heckbert 1982, REFERENCES.md §10) on a histogram with 6 bits per
+//! channel (each cell keeps its pixel count and colour sums, so box means use the exact colours).
+//! Which box to split next: the one with the largest summed squared error about its mean (a common
+//! variant; Heckbert splits the most populous box). The split is along the channel of widest range,
+//! at the pixel-weighted median. If the samples hold no more distinct colours than the palette may
+//! have, the palette is exactly those colours, so such images round-trip losslessly.
+//!
+//! Mapping: the exact nearest palette colour (squared RGB distance, ties to the lower index). For
+//! speed a lookup table over the 6-bit cells keeps, per cell, only the palette entries that can be
+//! nearest to some colour in the cell (an entry is kept if its nearest possible distance to the cell
+//! is no more than the smallest farthest distance of any entry). Cells are filled on first use.
+//!
+//! Dithering: ordered 4x4 Bayer thresholds (Bayer 1973, REFERENCES.md §10) added to each channel
+//! before the lookup. The offset depends only on the pixel position, so a pixel that keeps its
+//! colour keeps its index from frame to frame: no shimmer, and the difference encoding stays
+//! effective. Error diffusion (Floyd & Steinberg 1976) is not offered: one changed pixel moves the
+//! error of every pixel after it, so still areas flicker between frames.
+
+/// The 4x4 Bayer threshold matrix (Bayer 1973), values 0..15; use as `(m + 0.5) / 16`.
+pub const BAYER4: [[u8; 4]; 4] = [[0, 8, 2, 10], [12, 4, 14, 6], [3, 11, 1, 9], [15, 7, 13, 5]];
+
+/// Threshold in (0, 1) of the Bayer matrix at pixel (x, y).
+pub fn bayer_threshold(x: usize, y: usize) -> f32 {
+    (BAYER4[y & 3][x & 3] as f32 + 0.5) / 16.0
+}
+
+const BITS: u32 = 6;
+const CELLS: usize = 1 << (3 * BITS);
+const SHIFT: u32 = 8 - BITS;
+
+#[inline]
+fn cell_of(r: u8, g: u8, b: u8) -> usize {
+    ((r as usize >> SHIFT) << (2 * BITS)) | ((g as usize >> SHIFT) << BITS) | (b as usize >> SHIFT)
+}
+
+/// A palette of 1 to 256 RGB colours.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Palette {
+    colours: Vec<[u8; 3]>,
+}
+
+impl Palette {
+    /// A palette of the given colours.
+    ///
+    /// # Errors
+    /// A message if there are no colours or more than 256.
+    pub fn new(colours: Vec<[u8; 3]>) -> Result<Palette, String> {
+        if colours.is_empty() || colours.len() > 256 {
+            return Err(format!(
+                "a palette needs 1 to 256 colours, not {}",
+                colours.len()
+            ));
+        }
+        Ok(Palette { colours })
+    }
+    /// The colours.
+    pub fn colours(&self) -> &[[u8; 3]] {
+        &self.colours
+    }
+    /// Number of colours.
+    pub fn len(&self) -> usize {
+        self.colours.len()
+    }
+    /// Always false: a palette has at least one colour.
+    pub fn is_empty(&self) -> bool {
+        self.colours.is_empty()
+    }
+    /// Flat `r, g, b, r, g, b, …` bytes, as a GIF colour table.
+    pub fn to_rgb_bytes(&self) -> Vec<u8> {
+        self.colours.iter().flatten().copied().collect()
+    }
+}
+
+#[derive(Clone, Copy, Default)]
+struct Cell {
+    count: u64,
+    sum: [u64; 3],
+}
+
+/// Collects colour samples from any number of frames, then builds one palette for all of them.
+///
+/// # Allocations
+/// About 8 MB for the histogram, once per animation.
+pub struct PaletteBuilder {
+    hist: Vec<Cell>,
+    /// Distinct exact colours seen, while there are at most 256 (None once there are more).
+    distinct: Option<Vec<u32>>,
+}
+
+impl Default for PaletteBuilder {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl PaletteBuilder {
+    /// An empty builder.
+    pub fn new() -> Self {
+        PaletteBuilder {
+            hist: vec![Cell::default(); CELLS],
+            distinct: Some(Vec::new()),
+        }
+    }
+
+    /// Adds every `step`-th pixel of an RGBA buffer (alpha ignored; frames are opaque).
+    pub fn add_rgba(&mut self, rgba: &[u8], step: usize) {
+        let step = step.max(1);
+        let mut last = u32::MAX;
+        for p in rgba.chunks_exact(4).step_by(step) {
+            let c = &mut self.hist[cell_of(p[0], p[1], p[2])];
+            c.count += 1;
+            c.sum[0] += p[0] as u64;
+            c.sum[1] += p[1] as u64;
+            c.sum[2] += p[2] as u64;
+            if let Some(d) = self.distinct.as_mut() {
+                let key = u32::from_le_bytes([p[0], p[1], p[2], 0]);
+                if key != last {
+                    last = key;
+                    if let Err(pos) = d.binary_search(&key) {
+                        if d.len() >= 256 {
+                            self.distinct = None;
+                        } else {
+                            d.insert(pos, key);
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    /// Builds a palette of at most `max_colours` (clamped to 1..=256) colours. With no samples the
+    /// palette is black.
+    pub fn build(&self, max_colours: usize) -> Palette {
+        let n = max_colours.clamp(1, 256);
+        if let Some(d) = &self.distinct {
+            if !d.is_empty() && d.len() <= n {
+                let colours = d.iter().map(|k| {
+                    let b = k.to_le_bytes();
+                    [b[0], b[1], b[2]]
+                });
+                return Palette {
+                    colours: colours.collect(),
+                };
+            }
+        }
+        let mut cells: Vec<(u64, [u64; 3])> = self
+            .hist
+            .iter()
+            .filter(|c| c.count > 0)
+            .map(|c| (c.count, c.sum))
+            .collect();
+        if cells.is_empty() {
+            return Palette {
+                colours: vec![[0, 0, 0]],
+            };
+        }
+        let mut boxes = vec![(0usize, cells.len())];
+        while boxes.len() < n {
+            // The box with the largest squared error that can still be split.
+            let mut best = None;
+            let mut best_err = 0.0f64;
+            for (i, &(s, e)) in boxes.iter().enumerate() {
+                if e - s < 2 {
+                    continue;
+                }
+                let err = box_error(&cells[s..e]);
+                if err > best_err {
+                    best_err = err;
+                    best = Some(i);
+                }
+            }
+            let Some(i) = best else { break };
+            let (s, e) = boxes[i];
+            let split = split_box(&mut cells[s..e]) + s;
+            boxes[i] = (s, split);
+            boxes.push((split, e));
+        }
+        let mut colours: Vec<[u8; 3]> = boxes
+            .iter()
+            .map(|&(s, e)| {
+                let (mut cnt, mut sum) = (0u64, [0u64; 3]);
+                for c in &cells[s..e] {
+                    cnt += c.0;
+                    for (acc, v) in sum.iter_mut().zip(c.1) {
+                        *acc += v;
+                    }
+                }
+                let mean =
+                    |k: usize| ((sum[k] as f64 / cnt as f64).round()).clamp(0.0, 255.0) as u8;
+                [mean(0), mean(1), mean(2)]
+            })
+            .collect();
+        // Deterministic order (dark to light, then by channel) and no duplicates.
+        colours.sort_by_key(|c| {
+            (
+                299 * c[0] as u32 + 587 * c[1] as u32 + 114 * c[2] as u32,
+                *c,
+            )
+        });
+        colours.dedup();
+        Palette { colours }
+    }
+}
+
+fn mean_of(cells: &[(u64, [u64; 3])]) -> [f64; 3] {
+    let (mut cnt, mut sum) = (0u64, [0u64; 3]);
+    for c in cells {
+        cnt += c.0;
+        for (acc, v) in sum.iter_mut().zip(c.1) {
+            *acc += v;
+        }
+    }
+    let n = cnt.max(1) as f64;
+    [sum[0] as f64 / n, sum[1] as f64 / n, sum[2] as f64 / n]
+}
+
+fn box_error(cells: &[(u64, [u64; 3])]) -> f64 {
+    let m = mean_of(cells);
+    cells
+        .iter()
+        .map(|c| {
+            let n = c.0 as f64;
+            let d: f64 = (0..3).map(|k| (c.1[k] as f64 / n - m[k]).powi(2)).sum();
+            n * d
+        })
+        .sum()
+}
+
+/// Sorts the cells along the channel of widest range and returns the weighted-median split point
+/// (in 1..len, so both halves are non-empty).
+fn split_box(cells: &mut [(u64, [u64; 3])]) -> usize {
+    let mean = |c: &(u64, [u64; 3]), k: usize| c.1[k] as f64 / c.0 as f64;
+    let mut axis = 0;
+    let mut widest = -1.0;
+    for k in 0..3 {
+        let (lo, hi) = cells.iter().fold((f64::MAX, f64::MIN), |(lo, hi), c| {
+            (lo.min(mean(c, k)), hi.max(mean(c, k)))
+        });
+        if hi - lo > widest {
+            widest = hi - lo;
+            axis = k;
+        }
+    }
+    cells.sort_by(|a, b| mean(a, axis).total_cmp(&mean(b, axis)).then(a.1.cmp(&b.1)));
+    let total: u64 = cells.iter().map(|c| c.0).sum();
+    let mut acc = 0u64;
+    for (i, c) in cells.iter().enumerate() {
+        acc += c.0;
+        if acc * 2 >= total {
+            return (i + 1).clamp(1, cells.len() - 1);
+        }
+    }
+    cells.len() / 2
+}
+
+/// Fixed-point scale of the error sums: 1/1024 of a colour level.
+const SQRT_SCALE: f64 = 1024.0;
+
+/// `round(sqrt(d2) * SQRT_SCALE)` for squared distances below 4096 (errors under 64 levels).
+fn sqrt_table() -> &'static [u32; 4096] {
+    static TABLE: std::sync::OnceLock<[u32; 4096]> = std::sync::OnceLock::new();
+    TABLE.get_or_init(|| std::array::from_fn(|i| ((i as f64).sqrt() * SQRT_SCALE).round() as u32))
+}
+
+/// Maps RGB colours to the index of the nearest palette colour; see the module doc.
+///
+/// # Allocations
+/// 1 MB of lookup table per palette, plus 8 bytes per candidate of the cells in use.
+pub struct Mapper {
+    palette: Vec<[i32; 3]>,
+    /// Per 6-bit cell: 0 = not filled yet; odd = one candidate, index in bits 8..16; even = a list
+    /// in `candidates`, length - 1 in bits 1..9 and start in bits 9..32; `BRUTE` = list too long to
+    /// store, search the whole palette.
+    info: Vec<u32>,
+    /// Candidate colours with their index: (r, g, b, index).
+    candidates: Vec<[i16; 4]>,
+}
+
+const BRUTE: u32 = u32::MAX - 1;
+const MAX_START: usize = (1 << 23) - 1;
+
+impl Mapper {
+    /// A mapper for `palette`.
+    pub fn new(palette: &Palette) -> Self {
+        Mapper {
+            palette: palette
+                .colours
+                .iter()
+                .map(|c| [c[0] as i32, c[1] as i32, c[2] as i32])
+                .collect(),
+            info: vec![0; CELLS],
+            candidates: Vec::new(),
+        }
+    }
+
+    fn fill_cell(&mut self, cell: usize) -> u32 {
+        let lo = [
+            ((cell >> (2 * BITS)) << SHIFT) as i32,
+            (((cell >> BITS) & ((1 << BITS) - 1)) << SHIFT) as i32,
+            ((cell & ((1 << BITS) - 1)) << SHIFT) as i32,
+        ];
+        let hi = lo.map(|v| v + (1 << SHIFT) - 1);
+        let mut best_far = i32::MAX;
+        let mut near = [0i32; 256];
+        for (i, p) in self.palette.iter().enumerate() {
+            let (mut dn, mut df) = (0, 0);
+            for k in 0..3 {
+                let n = if p[k] < lo[k] {
+                    lo[k] - p[k]
+                } else if p[k] > hi[k] {
+                    p[k] - hi[k]
+                } else {
+                    0
+                };
+                let f = (p[k] - lo[k]).abs().max((p[k] - hi[k]).abs());
+                dn += n * n;
+                df += f * f;
+            }
+            best_far = best_far.min(df);
+            near[i] = dn;
+        }
+        let keep: Vec<usize> = (0..self.palette.len())
+            .filter(|&i| near[i] <= best_far)
+            .collect();
+        let info = if keep.len() == 1 {
+            ((keep[0] as u32) << 8) | 1
+        } else if self.candidates.len() + keep.len() > MAX_START {
+            BRUTE
+        } else {
+            let start = self.candidates.len() as u32;
+            for &i in &keep {
+                let p = self.palette[i];
+                self.candidates
+                    .push([p[0] as i16, p[1] as i16, p[2] as i16, i as i16]);
+            }
+            (start << 9) | (((keep.len() - 1) as u32) << 1)
+        };
+        self.info[cell] = info;
+        info
+    }
+
+    /// Mean length of the candidate lists met by the pixels of `rgba` (bench diagnostics).
+    #[doc(hidden)]
+    pub fn mean_candidates(&mut self, rgba: &[u8]) -> f64 {
+        let mut n = 0u64;
+        for p in rgba.chunks_exact(4) {
+            self.nearest(p[0], p[1], p[2]);
+            let info = self.info[cell_of(p[0], p[1], p[2])];
+            n += if info & 1 == 1 {
+                1
+            } else if info == BRUTE {
+                self.palette.len() as u64
+            } else {
+                ((info >> 1) & 0xFF) as u64 + 1
+            };
+        }
+        n as f64 / (rgba.len() / 4).max(1) as f64
+    }
+
+    /// Index of the nearest palette colour to (r, g, b).
+    #[inline]
+    pub fn nearest(&mut self, r: u8, g: u8, b: u8) -> u8 {
+        let cell = cell_of(r, g, b);
+        let mut info = self.info[cell];
+        if info == 0 {
+            info = self.fill_cell(cell);
+        }
+        if info & 1 == 1 {
+            return (info >> 8) as u8;
+        }
+        let (r, g, b) = (r as i32, g as i32, b as i32);
+        if info == BRUTE {
+            let mut best = (0u8, i32::MAX);
+            for (i, p) in self.palette.iter().enumerate() {
+                let d = (p[0] - r) * (p[0] - r) + (p[1] - g) * (p[1] - g) + (p[2] - b) * (p[2] - b);
+                if d < best.1 {
+                    best = (i as u8, d);
+                }
+            }
+            return best.0;
+        }
+        let s = (info >> 9) as usize;
+        let n = ((info >> 1) & 0xFF) as usize + 1;
+        let mut best = 0i16;
+        let mut best_d = i32::MAX;
+        for c in &self.candidates[s..s + n] {
+            let (dr, dg, db) = (c[0] as i32 - r, c[1] as i32 - g, c[2] as i32 - b);
+            let d = dr * dr + dg * dg + db * db;
+            if d < best_d {
+                best_d = d;
+                best = c[3];
+            }
+        }
+        best as u8
+    }
+
+    /// Maps a whole RGBA frame (`width` pixels a row) into `out` (one index per pixel), with Bayer
+    /// offsets of `spread` colour levels peak to peak (0 = no dithering). Returns the summed
+    /// Euclidean RGB distance between each input pixel and its palette colour.
+    ///
+    /// # Panics
+    /// If `out.len() * 4 != rgba.len()` or `width` does not divide the pixel count (a bug in the caller).
+    pub fn map_frame(&mut self, rgba: &[u8], width: usize, spread: f32, out: &mut [u8]) -> f64 {
+        assert_eq!(rgba.len(), out.len() * 4, "one index per RGBA pixel");
+        assert!(width > 0 && out.len() % width == 0, "whole rows");
+        let mut err_sum = 0.0f64;
+        let spread = if spread.is_finite() {
+            spread.clamp(0.0, 254.0)
+        } else {
+            0.0
+        };
+        let sqrt_table = sqrt_table();
+        // Offsets per Bayer cell, in whole colour levels, computed once.
+        let mut offs = [[0i32; 4]; 4];
+        for (y, row) in offs.iter_mut().enumerate() {
+            for (x, o) in row.iter_mut().enumerate() {
+                *o = ((bayer_threshold(x, y) - 0.5) * spread).round() as i32;
+            }
+        }
+        for (y, (src_row, dst_row)) in rgba
+            .chunks_exact(width * 4)
+            .zip(out.chunks_exact_mut(width))
+            .enumerate()
+        {
+            let orow = &offs[y & 3];
+            let mut row_err = 0u64;
+            for (x, (p, o)) in src_row.chunks_exact(4).zip(dst_row.iter_mut()).enumerate() {
+                let off = orow[x & 3];
+                let d = |v: u8| (v as i32 + off).clamp(0, 255) as u8;
+                let idx = self.nearest(d(p[0]), d(p[1]), d(p[2]));
+                let q = self.palette[idx as usize];
+                let (dr, dg, db) = (q[0] - p[0] as i32, q[1] - p[1] as i32, q[2] - p[2] as i32);
+                let d2 = (dr * dr + dg * dg + db * db) as usize;
+                // Integer sums from a table keep the float add (and its latency) out of the loop.
+                row_err += match sqrt_table.get(d2) {
+                    Some(&v) => v as u64,
+                    None => ((d2 as f64).sqrt() * SQRT_SCALE) as u64,
+                };
+                *o = idx;
+            }
+            err_sum += row_err as f64 / SQRT_SCALE;
+        }
+        err_sum
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn brute_nearest(pal: &Palette, c: [u8; 3]) -> (u8, i32) {
+        let mut best = (0u8, i32::MAX);
+        for (i, p) in pal.colours().iter().enumerate() {
+            let d: i32 = (0..3).map(|k| (p[k] as i32 - c[k] as i32).pow(2)).sum();
+            if d < best.1 {
+                best = (i as u8, d);
+            }
+        }
+        best
+    }
+
+    fn gradient(w: usize, h: usize) -> Vec<u8> {
+        let mut v = Vec::with_capacity(w * h * 4);
+        for y in 0..h {
+            for x in 0..w {
+                v.extend_from_slice(&[
+                    (x * 255 / w) as u8,
+                    (y * 255 / h) as u8,
+                    ((x + y) * 127 / (w + h)) as u8 + 60,
+                    255,
+                ]);
+            }
+        }
+        v
+    }
+
+    #[test]
+    fn bayer_on_uniform_half_sets_exactly_half() {
+        // Check: Bayer (1973) 4x4 thresholds (m+0.5)/16 — uniform 0.5 sets exactly 8 of 16 pixels;
+        // analytic, REFERENCES.md §10.
+        let on = (0..4)
+            .flat_map(|y| (0..4).map(move |x| (x, y)))
+            .filter(|&(x, y)| 0.5 > bayer_threshold(x, y))
+            .count();
+        assert_eq!(on, 8);
+        // The same through the mapper: palette {black, white}, grey 127.5 ± spread 255. A grey of 128
+        // is ever so slightly above 0.5, so exactly the 8 cells with m >= 8 go white.
+        let pal = Palette::new(vec![[0, 0, 0], [255, 255, 255]]).unwrap();
+        let mut m = Mapper::new(&pal);
+        let rgba: Vec<u8> = [128u8, 128, 128, 255].repeat(16);
+        let mut out = vec![0u8; 16];
+        m.map_frame(&rgba, 4, 255.0, &mut out);
+        assert_eq!(out.iter().filter(|&&i| i == 1).count(), 8, "{out:?}");
+    }
+
+    #[test]
+    fn mapper_matches_brute_force_nearest() {
+        let mut b = PaletteBuilder::new();
+        b.add_rgba(&gradient(97, 61), 1);
+        let pal = b.build(37);
+        let mut m = Mapper::new(&pal);
+        let mut seed = 12345u32;
+        for _ in 0..20000 {
+            seed = seed.wrapping_mul(1664525).wrapping_add(1013904223);
+            let c = [(seed >> 8) as u8, (seed >> 16) as u8, (seed >> 24) as u8];
+            let got = m.nearest(c[0], c[1], c[2]);
+            let (_, want_d) = brute_nearest(&pal, c);
+            let p = pal.colours()[got as usize];
+            let got_d: i32 = (0..3).map(|k| (p[k] as i32 - c[k] as i32).pow(2)).sum();
+            assert_eq!(got_d, want_d, "colour {c:?}");
+        }
+    }
+
+    #[test]
+    fn few_colours_are_kept_exactly() {
+        // Check: REFERENCES.md §10 — an image with ≤ 256 distinct colours must round-trip losslessly.
+        let mut rgba = Vec::new();
+        for i in 0..256u32 {
+            rgba.extend_from_slice(&[
+                (i * 7 % 256) as u8,
+                (i * 13 % 256) as u8,
+                (i / 3) as u8,
+                255,
+            ]);
+        }
+        let mut b = PaletteBuilder::new();
+        b.add_rgba(&rgba, 1);
+        let pal = b.build(256);
+        assert_eq!(pal.len(), 256);
+        let mut m = Mapper::new(&pal);
+        let mut out = vec![0u8; 256];
+        let err = m.map_frame(&rgba, 16, 0.0, &mut out);
+        assert_eq!(err, 0.0);
+        for (i, p) in rgba.chunks_exact(4).enumerate() {
+            assert_eq!(pal.colours()[out[i] as usize], [p[0], p[1], p[2]]);
+        }
+    }
+
+    #[test]
+    fn error_does_not_rise_as_the_palette_grows() {
+        // Check: REFERENCES.md §10 — palette MSE must not rise when the palette grows (median cut
+        // refines the same split tree, so each step can only lower the error); tolerance 1e-9.
+        let img = gradient(128, 96);
+        let mut b = PaletteBuilder::new();
+        b.add_rgba(&img, 1);
+        let mut last = f64::MAX;
+        for n in [2, 4, 8, 16, 32, 64, 128, 256] {
+            let pal = b.build(n);
+            let mut m = Mapper::new(&pal);
+            let mut out = vec![0u8; 128 * 96];
+            let err = m.map_frame(&img, 128, 0.0, &mut out) / (128.0 * 96.0);
+            assert!(err <= last + 1e-9, "{n} colours: {err} > {last}");
+            last = err;
+        }
+        // Check: analytic — the test image is a 2-D sheet of colours about 255 x 255 levels (tilted in
+        // blue); 256 colours tile it at best in squares of side 16, and the mean distance from a uniform
+        // point in a square of side s to its centre is s(√2 + ln(1+√2))/6 = 0.3826 s = 6.1 levels.
+        // Bound 7.5 levels (the tilt enlarges the sheet by about 10 %).
+        assert!(last < 7.5, "{last}");
+    }
+}
