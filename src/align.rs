@@ -126,12 +126,24 @@ pub fn align(surveys: Vec<Survey>, aoi: Option<AreaOfInterest>) -> Result<Aligne
                  interest) anywhere with data; check its georeference and CRS",
             ));
         }
-        out.push(Survey { grid: Grid { geometry: base.clone(), z }, ..s });
+        out.push(Survey {
+            grid: Grid {
+                geometry: base.clone(),
+                z,
+            },
+            ..s
+        });
     }
     if out.len() < 2 {
-        return Err(Error::input(&out[0].source.path, "at least two surveys are needed to show change"));
+        return Err(Error::input(
+            &out[0].source.path,
+            "at least two surveys are needed to show change",
+        ));
     }
-    Ok(AlignedStack { geometry: base, surveys: out })
+    Ok(AlignedStack {
+        geometry: base,
+        surveys: out,
+    })
 }
 
 fn crs_name(epsg: Option<u32>) -> String {
@@ -143,7 +155,9 @@ fn crop_geometry(g: &GridGeometry, a: &AreaOfInterest) -> Option<GridGeometry> {
     let c0 = ((a.west - g.origin_x) / g.cell_x).floor().max(0.0);
     let c1 = ((a.east - g.origin_x) / g.cell_x).ceil().min(g.cols as f64);
     let r0 = ((g.origin_y - a.north) / g.cell_y).floor().max(0.0);
-    let r1 = ((g.origin_y - a.south) / g.cell_y).ceil().min(g.rows as f64);
+    let r1 = ((g.origin_y - a.south) / g.cell_y)
+        .ceil()
+        .min(g.rows as f64);
     if !(c1 - c0 >= 2.0 && r1 - r0 >= 2.0) {
         return None;
     }
@@ -162,7 +176,13 @@ fn resample(src: &Grid, target: &GridGeometry) -> Array2<f32> {
         let (x, y) = target.cell_center(r, c);
         let (sr, sc) = src.geometry.to_cell(x, y);
         // Snap values within a millionth of a cell so coincident grids copy exactly.
-        let snap = |v: f64| if (v - v.round()).abs() < 1e-6 { v.round() } else { v };
+        let snap = |v: f64| {
+            if (v - v.round()).abs() < 1e-6 {
+                v.round()
+            } else {
+                v
+            }
+        };
         src.sample_bilinear(snap(sr), snap(sc))
     })
 }
@@ -224,13 +244,31 @@ mod tests {
     #[test]
     fn crop_to_area_of_interest() {
         let plane = |x: f64, _y: f64| x as f32;
-        let aoi = AreaOfInterest { west: 4.2, south: 93.0, east: 12.0, north: 99.5 };
-        let stack = align(vec![survey(1, 0.0, plane), survey(2, 0.0, plane)], Some(aoi)).unwrap();
+        let aoi = AreaOfInterest {
+            west: 4.2,
+            south: 93.0,
+            east: 12.0,
+            north: 99.5,
+        };
+        let stack = align(
+            vec![survey(1, 0.0, plane), survey(2, 0.0, plane)],
+            Some(aoi),
+        )
+        .unwrap();
         let g = stack.geometry();
         assert_eq!((g.cols, g.rows, g.origin_x, g.origin_y), (8, 7, 4.0, 100.0));
         assert_eq!(stack.z(0)[[0, 0]], 4.5);
-        let far = AreaOfInterest { west: 500.0, south: 0.0, east: 600.0, north: 10.0 };
-        let err = align(vec![survey(1, 0.0, plane), survey(2, 0.0, plane)], Some(far)).unwrap_err();
+        let far = AreaOfInterest {
+            west: 500.0,
+            south: 0.0,
+            east: 600.0,
+            north: 10.0,
+        };
+        let err = align(
+            vec![survey(1, 0.0, plane), survey(2, 0.0, plane)],
+            Some(far),
+        )
+        .unwrap_err();
         assert!(err.to_string().contains("does not overlap"), "{err}");
     }
 
@@ -243,6 +281,9 @@ mod tests {
         b.grid.geometry.epsg = Some(26918);
         let err = align(vec![survey(1, 0.0, flat), b], None).unwrap_err();
         let text = err.to_string();
-        assert!(text.contains("EPSG:26918") && text.contains("EPSG:32633"), "{text}");
+        assert!(
+            text.contains("EPSG:26918") && text.contains("EPSG:32633"),
+            "{text}"
+        );
     }
 }

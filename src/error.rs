@@ -58,19 +58,32 @@ pub mod exit {
 impl Error {
     /// Builds a [`Error::Job`].
     pub fn job(path: &Path, place: impl Into<String>, message: impl Into<String>) -> Self {
-        Error::Job { path: path.to_path_buf(), place: place.into(), message: message.into() }
+        Error::Job {
+            path: path.to_path_buf(),
+            place: place.into(),
+            message: message.into(),
+        }
     }
     /// Builds an [`Error::Input`].
     pub fn input(path: &Path, message: impl Into<String>) -> Self {
-        Error::Input { path: path.to_path_buf(), message: message.into() }
+        Error::Input {
+            path: path.to_path_buf(),
+            message: message.into(),
+        }
     }
     /// Builds an [`Error::Output`].
     pub fn output(path: &Path, message: impl Into<String>) -> Self {
-        Error::Output { path: path.to_path_buf(), message: message.into() }
+        Error::Output {
+            path: path.to_path_buf(),
+            message: message.into(),
+        }
     }
     /// Builds an [`Error::Io`].
     pub fn io(path: &Path, source: std::io::Error) -> Self {
-        Error::Io { path: path.to_path_buf(), source }
+        Error::Io {
+            path: path.to_path_buf(),
+            source,
+        }
     }
     /// The exit code the CLI should return for this error.
     pub fn exit_code(&self) -> u8 {

@@ -83,7 +83,10 @@ impl GridGeometry {
     }
     /// Continuous (row, col) of a map point, with cell centres at whole numbers.
     pub fn to_cell(&self, x: f64, y: f64) -> (f64, f64) {
-        ((self.origin_y - y) / self.cell_y - 0.5, (x - self.origin_x) / self.cell_x - 0.5)
+        (
+            (self.origin_y - y) / self.cell_y - 0.5,
+            (x - self.origin_x) / self.cell_x - 0.5,
+        )
     }
     /// Map extent as (west, south, east, north).
     pub fn extent(&self) -> (f64, f64, f64, f64) {
@@ -209,7 +212,12 @@ mod tests {
         let g = geom();
         // Check: OGC GeoTIFF 1.1 raster-to-model, PixelIsArea — centre of col 10,row 20 with
         // tiepoint (500000, 4000000) and 1 m cells is (500010.5, 3999979.5); REFERENCES.md §9
-        let (x, y) = GridGeometry { cols: 30, rows: 30, ..g.clone() }.cell_center(20, 10);
+        let (x, y) = GridGeometry {
+            cols: 30,
+            rows: 30,
+            ..g.clone()
+        }
+        .cell_center(20, 10);
         assert_eq!((x, y), (500_010.5, 3_999_979.5));
         let (r, c) = g.to_cell(500_002.5, 3_999_998.5);
         assert!((r - 1.0).abs() < 1e-12 && (c - 2.0).abs() < 1e-12);

@@ -15,6 +15,11 @@ pub struct WriteOptions {}
 ///
 /// # Errors
 /// `Error::Output` or `Error::Io` naming the path.
-pub fn write_bands(path: &Path, _geometry: &GridGeometry, _bands: &[&Array2<f32>], _opts: &WriteOptions) -> Result<()> {
+pub fn write_bands(
+    path: &Path,
+    _geometry: &GridGeometry,
+    _bands: &[&Array2<f32>],
+    _opts: &WriteOptions,
+) -> Result<()> {
     Err(Error::output(path, "GeoTIFF writing is not built yet"))
 }

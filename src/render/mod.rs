@@ -30,7 +30,11 @@ impl Frame {
     pub fn new(width: u32, height: u32) -> Self {
         let mut rgba = vec![0u8; width as usize * height as usize * 4];
         rgba.chunks_exact_mut(4).for_each(|p| p[3] = 255);
-        Frame { width, height, rgba }
+        Frame {
+            width,
+            height,
+            rgba,
+        }
     }
 }
 
@@ -88,7 +92,11 @@ pub struct LightOptions {
 
 impl Default for LightOptions {
     fn default() -> Self {
-        LightOptions { azimuth_deg: 315.0, altitude_deg: 40.0, ambient: 0.25 }
+        LightOptions {
+            azimuth_deg: 315.0,
+            altitude_deg: 40.0,
+            ambient: 0.25,
+        }
     }
 }
 
@@ -122,11 +130,18 @@ impl Renderer {
         _light: &LightOptions,
         _elevation_range_m: (f32, f32),
     ) -> Result<Renderer, String> {
-        Ok(Renderer { _geometry: geometry.clone() })
+        Ok(Renderer {
+            _geometry: geometry.clone(),
+        })
     }
 
     /// Renders `surface` into `frame`.
-    pub fn render_into(&mut self, _surface: &Surface, _orbit_fraction: f64, _frame: &mut Frame) -> FrameView {
+    pub fn render_into(
+        &mut self,
+        _surface: &Surface,
+        _orbit_fraction: f64,
+        _frame: &mut Frame,
+    ) -> FrameView {
         FrameView { _private: () }
     }
 }
