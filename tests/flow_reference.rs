@@ -15,8 +15,16 @@ fn fixture_dir() -> PathBuf {
 fn read_f32(name: &str, rows: usize, cols: usize) -> Array2<f32> {
     let path = fixture_dir().join(name);
     let bytes = std::fs::read(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
-    assert_eq!(bytes.len(), rows * cols * 4, "{}: expected {rows}x{cols} little-endian f32", path.display());
-    let v: Vec<f32> = bytes.chunks_exact(4).map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]])).collect();
+    assert_eq!(
+        bytes.len(),
+        rows * cols * 4,
+        "{}: expected {rows}x{cols} little-endian f32",
+        path.display()
+    );
+    let v: Vec<f32> = bytes
+        .chunks_exact(4)
+        .map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]]))
+        .collect();
     Array2::from_shape_vec((rows, cols), v).unwrap()
 }
 
@@ -36,18 +44,29 @@ fn dominant_displacement_agrees_with_known_shift_and_scikit_image() {
 
     let a = read_f32("a.f32", rows, cols);
     let b = read_f32("b.f32", rows, cols);
-    let opts = FlowOptions { window_m: 8.0, search_radius_m: 10.0, fill_radius_m: 15.0, ..Default::default() };
+    let opts = FlowOptions {
+        window_m: 8.0,
+        search_radius_m: 10.0,
+        fill_radius_m: 15.0,
+        ..Default::default()
+    };
     let res = estimate(&a, &b, cell, &opts);
     assert_eq!(res.verdict, Verdict::Trusted);
     let dom = res.dominant.unwrap();
     let (e, n) = (dom.east_m / cell, dom.north_m / cell);
     eprintln!("dominant (cells): east {e:.4} north {n:.4}; known {known_e} {known_n}; skimage {sk_e} {sk_n}");
     // Check: issue 4 acceptance — dominant within 0.1 cell of the known synthetic motion (2.3 east, 1.7 north)
-    assert!((e - known_e).abs() < 0.1 && (n - known_n).abs() < 0.1, "ours ({e}, {n})");
+    assert!(
+        (e - known_e).abs() < 0.1 && (n - known_n).abs() < 0.1,
+        "ours ({e}, {n})"
+    );
     // Check: scikit-image 0.26 phase_cross_correlation (upsample_factor 100, normalization None; a
     // library run recorded by make_fixture.py; Guizar-Sicairos et al. 2008, REFERENCES.md §4) —
     // agreement within 0.1 cell
-    assert!((e - sk_e).abs() < 0.1 && (n - sk_n).abs() < 0.1, "ours ({e}, {n}) vs skimage ({sk_e}, {sk_n})");
+    assert!(
+        (e - sk_e).abs() < 0.1 && (n - sk_n).abs() < 0.1,
+        "ours ({e}, {n}) vs skimage ({sk_e}, {sk_n})"
+    );
     // The reference itself must recover the known motion, or the fixture is stale.
     assert!((sk_e - known_e).abs() < 0.05 && (sk_n - known_n).abs() < 0.05);
 }

@@ -294,6 +294,34 @@ fn options_deserialise_with_defaults_and_refuse_unknown_keys() {
 }
 
 #[test]
+fn two_landforms_moving_differently_are_told_apart() {
+    // West mound moves 8 cells east, east mound stays: the field must follow each.
+    let (rows, cols) = (120, 240);
+    let make = |shift: f64, seed: u64| {
+        Array2::from_shape_fn((rows, cols), |(r, c)| {
+            let z = 2.0
+                + 0.02 * r as f64
+                + landform(r as f64 - 60.0, c as f64 - 60.0 - shift)
+                + landform(r as f64 - 60.0, c as f64 - 170.0);
+            z as f32 + 0.01 * hash_noise(r, c, seed)
+        })
+    };
+    let a = make(0.0, 15);
+    let b = make(8.0, 16);
+    let res = estimate(&a, &b, 1.0, &FlowOptions::default());
+    assert!(res.verdict.is_trusted(), "{:?}", res.verdict);
+    // Check: known synthetic motion — 8 cells east at the moving crest, 0 at the static one;
+    // tolerance 0.2 cell
+    let moving = res.field.east_m[[60, 60]];
+    let fixed = res.field.east_m[[60, 170]];
+    assert!(
+        (moving - 8.0).abs() < 0.2 && fixed.abs() < 0.2,
+        "moving {moving} static {fixed}"
+    );
+    assert!(res.field.north_m[[60, 60]].abs() < 0.2 && res.field.north_m[[60, 170]].abs() < 0.2);
+}
+
+#[test]
 #[ignore]
 fn debug_errors() {
     let (rows, cols) = (150, 190);

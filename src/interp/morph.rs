@@ -22,6 +22,29 @@ use rayon::prelude::*;
 
 use super::flow::{sample_clamped, FlowField, RasterDims};
 
+/// Bilinear sample with edge clamping; the common case (four finite neighbours) in plain
+/// arithmetic, falling back to the careful sampler, which ignores NaN neighbours of zero weight,
+/// only when the quick result is NaN. NaN coordinates give NaN.
+#[inline(always)]
+fn sample(z: &[f32], d: RasterDims, r: f32, c: f32) -> f32 {
+    let rc = r.clamp(0.0, (d.rows - 1) as f32);
+    let cc = c.clamp(0.0, (d.cols - 1) as f32);
+    let (r0, c0) = (rc as usize, cc as usize);
+    let (fr, fc) = (rc - r0 as f32, cc - c0 as f32);
+    let i = r0 * d.cols + c0;
+    let dc = usize::from(c0 + 1 < d.cols);
+    let dr = if r0 + 1 < d.rows { d.cols } else { 0 };
+    let (z00, z01, z10, z11) = (z[i], z[i + dc], z[i + dr], z[i + dr + dc]);
+    let top = z00 + fc * (z01 - z00);
+    let bot = z10 + fc * (z11 - z10);
+    let v = top + fr * (bot - top);
+    if v.is_nan() {
+        sample_clamped(z, d, r, c)
+    } else {
+        v
+    }
+}
+
 /// Rows per parallel task: 16 rows of a 1024-wide grid is 64 KiB of output, a few dozen tasks per frame.
 const BAND_ROWS: usize = 16;
 

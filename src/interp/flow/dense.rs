@@ -91,8 +91,14 @@ pub(crate) fn refine(
                 }
             }
         }
+        // Triangular window (two box passes of half-width h/2): its transfer function is never
+        // negative, so errors that vary from cell to cell are damped by the iteration rather than
+        // amplified, as a plain box window would (measured: with a box, 10 iterations gave a worse
+        // field than 4).
+        let h2 = (h / 2).max(1);
         for k in 0..5 {
-            box_sum(&s.prod[k], d, h, &mut s.tmp, &mut s.sums[k]);
+            box_sum(&s.prod[k], d, h2, &mut s.tmp, &mut s.tmp2);
+            box_sum(&s.tmp2, d, h2, &mut s.tmp, &mut s.sums[k]);
         }
         let [sxx, sxy, syy, sxt, syt, _] = &s.sums;
         u.par_iter_mut()

@@ -196,6 +196,33 @@ mod tests {
     }
 
     #[test]
+    fn gaussian_moved_by_2_3_and_minus_1_7_is_found() {
+        // 48x48, Gaussian sigma=3 cells, moved +2.3 columns and -1.7 rows.
+        let d = Dims { rows: 48, cols: 48 };
+        let g = |r0: f64, c0: f64| -> Vec<f32> {
+            (0..d.len())
+                .map(|i| {
+                    let (r, c) = ((i / 48) as f64 - r0, (i % 48) as f64 - c0);
+                    (-(r * r + c * c) / 18.0).exp() as f32
+                })
+                .collect()
+        };
+        let a = g(24.0, 24.0);
+        let b = g(24.0 - 1.7, 24.0 + 2.3);
+        let (p, at_limit) = search_disc(&a, &b, d, 6.0, 100).unwrap();
+        // Check: REFERENCES.md §4 — 48x48, sigma=3, moved (2.3, -1.7): integer peak (2, -2); analytic
+        assert_eq!((p.col, p.row), (2, -2));
+        assert!(!at_limit);
+        let (r, c) = subcell(&a, &b, d, p, 100);
+        // Check: REFERENCES.md §4 — sub-cell fit recovers (2.3, -1.7); 0.05 cell tolerance because
+        // NCC over the overlap is not exactly the Gaussian-shaped plain correlation the exact value assumes
+        assert!(
+            (c - 2.3).abs() < 0.05 && (r + 1.7).abs() < 0.05,
+            "({c}, {r})"
+        );
+    }
+
+    #[test]
     fn ncc_of_affine_copy_is_one_and_flat_is_none() {
         let d = Dims { rows: 16, cols: 16 };
         let a: Vec<f32> = (0..d.len()).map(|i| ((i * 7919) % 13) as f32).collect();
