@@ -340,7 +340,12 @@ fn nodata_hole_is_filled_and_scored_zero() {
     let res = estimate(&a, &b, 1.0, &FlowOptions::default());
     assert!(res.verdict.is_trusted(), "{:?}", res.verdict);
     // Every cell gets a vector, measured or filled.
-    assert!(res.field.east_m.iter().chain(res.field.north_m.iter()).all(|v| v.is_finite()));
+    assert!(res
+        .field
+        .east_m
+        .iter()
+        .chain(res.field.north_m.iter())
+        .all(|v| v.is_finite()));
     // The hole's centre was not measured: its whole window is nodata.
     assert_eq!(res.field.quality[[72, 92]], 0.0);
     // Check: issue 4 acceptance — still within 0.2 cell RMS over the dune with the hole filled
@@ -348,24 +353,40 @@ fn nodata_hole_is_filled_and_scored_zero() {
     assert!(rms < 0.2, "rms {rms} over {n}");
     let dom = res.dominant.unwrap();
     // Check: issue 4 acceptance — dominant within 0.1 cell despite the hole
-    assert!((dom.east_m - 17.0).abs() < 0.1 && (dom.north_m + 6.0).abs() < 0.1, "{dom:?}");
+    assert!(
+        (dom.east_m - 17.0).abs() < 0.1 && (dom.north_m + 6.0).abs() < 0.1,
+        "{dom:?}"
+    );
 }
 
 #[test]
 fn unrelated_surfaces_are_a_weak_match() {
     let a = survey(100, 100, 50.0, 50.0, 0.01, 19);
     // Rough ground with no relation to the mound: nothing to follow from one to the other.
-    let b = Array2::from_shape_fn((100, 100), |(r, c)| 2.0 + 0.02 * r as f32 + 1.5 * hash_noise(r / 3, c / 3, 20));
+    let b = Array2::from_shape_fn((100, 100), |(r, c)| {
+        2.0 + 0.02 * r as f32 + 1.5 * hash_noise(r / 3, c / 3, 20)
+    });
     let res = estimate(&a, &b, 1.0, &FlowOptions::default());
     // Check: issue 4 bad input — a pair that does not correlate must not pass as a motion
-    assert!(matches!(res.verdict, Verdict::WeakMatch { .. } | Verdict::AtSearchLimit { .. }), "{:?}", res.verdict);
+    assert!(
+        matches!(
+            res.verdict,
+            Verdict::WeakMatch { .. } | Verdict::AtSearchLimit { .. }
+        ),
+        "{:?}",
+        res.verdict
+    );
 }
 
 #[test]
 fn tiny_and_odd_shapes_do_not_panic() {
     for (rows, cols) in [(0, 0), (1, 1), (2, 50), (5, 5), (50, 3), (31, 17)] {
-        let a = Array2::from_shape_fn((rows, cols), |(r, c)| (r as f32 * 0.7).sin() + (c as f32 * 0.4).cos());
-        let b = Array2::from_shape_fn((rows, cols), |(r, c)| (r as f32 * 0.7 + 0.3).sin() + (c as f32 * 0.4).cos());
+        let a = Array2::from_shape_fn((rows, cols), |(r, c)| {
+            (r as f32 * 0.7).sin() + (c as f32 * 0.4).cos()
+        });
+        let b = Array2::from_shape_fn((rows, cols), |(r, c)| {
+            (r as f32 * 0.7 + 0.3).sin() + (c as f32 * 0.4).cos()
+        });
         let res = estimate(&a, &b, 1.0, &FlowOptions::default());
         assert_eq!(res.field.east_m.dim(), (rows, cols));
         assert!(res.field.east_m.iter().all(|v| v.is_finite()));
@@ -374,7 +395,10 @@ fn tiny_and_odd_shapes_do_not_panic() {
     }
     let a = Array2::<f32>::zeros((4, 4));
     let b = Array2::<f32>::zeros((4, 5));
-    assert!(matches!(estimate(&a, &b, 1.0, &FlowOptions::default()).verdict, Verdict::ShapeMismatch { .. }));
+    assert!(matches!(
+        estimate(&a, &b, 1.0, &FlowOptions::default()).verdict,
+        Verdict::ShapeMismatch { .. }
+    ));
 }
 
 #[test]

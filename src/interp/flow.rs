@@ -401,7 +401,7 @@ pub fn estimate(
     } else {
         0.1
     };
-    if !(relief_std_m >= min_relief_m) || relief_std_m == 0.0 {
+    if relief_std_m.is_nan() || relief_std_m < min_relief_m || relief_std_m == 0.0 {
         return untrusted(
             Verdict::NoTexture {
                 relief_std_m,
@@ -527,7 +527,7 @@ pub fn estimate(
         let h = ((window_cells / 2.0).round() as usize).clamp(2, (short / 4).max(2));
         let scale = (1usize << l) as f32;
         let mut s = Scratch::new(ld);
-        dense::refine(la, lb, ld, &mut u, &mut v, h, iters, &mut s);
+        dense::refine(la, lb, ld, (&mut u, &mut v), h, iters, &mut s);
         let rule = QualityRule {
             h,
             min_std_m: (min_relief_m as f32 * 0.1).max(1e-4),
@@ -562,7 +562,7 @@ pub fn estimate(
     let (mut land, mut measured) = (0usize, 0usize);
     for i in 0..d.len() {
         let h = ra[i];
-        if !(h as f64 > min_relief_m.max(1e-3)) {
+        if h.is_nan() || h as f64 <= min_relief_m.max(1e-3) {
             continue;
         }
         land += 1;

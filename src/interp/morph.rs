@@ -110,8 +110,8 @@ pub fn morph_into(
                         let du = e * inv_cell;
                         let dv = -n * inv_cell;
                         let (rf, cf) = (r as f32, c as f32);
-                        let za = sample_clamped(a, d, rf - w * dv, cf - w * du);
-                        let zb = sample_clamped(b, d, rf + (1.0 - w) * dv, cf + (1.0 - w) * du);
+                        let za = sample(a, d, rf - w * dv, cf - w * du);
+                        let zb = sample(b, d, rf + (1.0 - w) * dv, cf + (1.0 - w) * du);
                         *o = (1.0 - w) * za + w * zb;
                     }
                 }
