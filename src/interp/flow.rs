@@ -51,11 +51,14 @@
 mod dense;
 mod global;
 mod raster;
+mod result;
 
 use ndarray::Array2;
 
 use dense::{FillRule, QualityRule, Scratch};
 use raster::Dims;
+
+pub use result::{Dominant, FlowField, FlowResult, Verdict};
 
 pub(crate) use raster::{sample_clamped, Dims as RasterDims};
 
@@ -145,176 +148,6 @@ impl FlowOptions {
     }
 }
 
-/// The displacement field on the grid of the earlier survey, in metres, with its quality.
-#[derive(Debug, Clone)]
-pub struct FlowField {
-    /// East component of the displacement from the earlier to the later survey, metres.
-    pub east_m: Array2<f32>,
-    /// North component of the displacement, metres (positive north, i.e. towards row 0).
-    pub north_m: Array2<f32>,
-    /// Per-cell quality from 0 to 1 (local NCC after warping); 0 where the vector was filled in
-    /// rather than measured (flat, ramp, nodata, outlier, or below `min_quality`).
-    pub quality: Array2<f32>,
-    /// Cell width in metres the components were converted with.
-    pub cell_size_m: f64,
-}
-
-impl FlowField {
-    /// A field of zero displacement and zero quality (what an untrusted result carries).
-    pub fn zeros(rows: usize, cols: usize, cell_size_m: f64) -> Self {
-        FlowField {
-            east_m: Array2::zeros((rows, cols)),
-            north_m: Array2::zeros((rows, cols)),
-            quality: Array2::zeros((rows, cols)),
-            cell_size_m,
-        }
-    }
-}
-
-/// The displacement of the landform as a whole.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
-pub struct Dominant {
-    /// East component, metres.
-    pub east_m: f64,
-    /// North component, metres.
-    pub north_m: f64,
-    /// Length of the vector, metres.
-    pub distance_m: f64,
-    /// Direction of travel, compass degrees clockwise from north in [0, 360); 0 when the distance is 0.
-    pub azimuth_deg: f64,
-    /// NCC of the whole relief at the best whole-cell shift, -1 to 1.
-    pub ncc: f64,
-    /// Share of the landform's cells (relief more than `min_relief_m` above the base) whose vector
-    /// was measured with quality at least `min_quality`; 0 when the dense field was not used.
-    pub support: f64,
-}
-
-impl Dominant {
-    /// A dominant displacement from east and north components in metres.
-    pub fn from_components(east_m: f64, north_m: f64, ncc: f64, support: f64) -> Self {
-        let distance_m = east_m.hypot(north_m);
-        let azimuth_deg = if distance_m > 0.0 {
-            east_m.atan2(north_m).to_degrees().rem_euclid(360.0)
-        } else {
-            0.0
-        };
-        // rem_euclid can round -0.0000001 up to 360.0 exactly; keep the documented range.
-        let azimuth_deg = if azimuth_deg >= 360.0 {
-            0.0
-        } else {
-            azimuth_deg
-        };
-        Dominant {
-            east_m,
-            north_m,
-            distance_m,
-            azimuth_deg,
-            ncc,
-            support,
-        }
-    }
-    /// Migration rate in metres per year over `years` (None unless `years` > 0).
-    pub fn rate_m_per_yr(&self, years: f64) -> Option<f64> {
-        (years.is_finite() && years > 0.0).then(|| self.distance_m / years)
-    }
-}
-
-/// Whether the displacement can be trusted, and if not, why.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Verdict {
-    /// The field and the dominant displacement are usable for the morph and the record.
-    Trusted,
-    /// The two surveys share too few cells with data.
-    LittleOverlap {
-        /// Share of cells with data in both, out of those with data in either.
-        share: f64,
-        /// The `min_overlap` setting.
-        required: f64,
-    },
-    /// At least one survey is too flat to match (relief standard deviation below the setting).
-    NoTexture {
-        /// Smaller of the two surveys' relief standard deviations, metres.
-        relief_std_m: f64,
-        /// The `min_relief_m` setting.
-        required_m: f64,
-    },
-    /// The best match lies at the edge of the search disc: the true displacement may be larger.
-    AtSearchLimit {
-        /// Distance of the best match, metres.
-        distance_m: f64,
-        /// The `search_radius_m` setting.
-        radius_m: f64,
-    },
-    /// The relief of the two surveys correlates too weakly at the best shift (reshaped, not moved).
-    WeakMatch {
-        /// Best whole-relief NCC found.
-        ncc: f64,
-        /// The `min_quality` setting.
-        required: f64,
-    },
-    /// The two rasters differ in shape (a bug upstream: `align` guarantees one geometry).
-    ShapeMismatch {
-        /// (rows, cols) of the earlier raster.
-        earlier: (usize, usize),
-        /// (rows, cols) of the later raster.
-        later: (usize, usize),
-    },
-}
-
-impl Verdict {
-    /// True for [`Verdict::Trusted`].
-    pub fn is_trusted(&self) -> bool {
-        matches!(self, Verdict::Trusted)
-    }
-}
-
-impl std::fmt::Display for Verdict {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match *self {
-            Verdict::Trusted => write!(f, "displacement trusted"),
-            Verdict::LittleOverlap { share, required } => write!(
-                f,
-                "the surveys overlap on {:.0}% of their cells (at least {:.0}% needed); check the survey \
-                 extents or lower flow.min_overlap",
-                share * 100.0,
-                required * 100.0
-            ),
-            Verdict::NoTexture { relief_std_m, required_m } => write!(
-                f,
-                "no texture to match: relief varies by {relief_std_m:.3} m (at least {required_m} m needed); \
-                 nothing moves that can be followed, or lower flow.min_relief_m"
-            ),
-            Verdict::AtSearchLimit { distance_m, radius_m } => write!(
-                f,
-                "best match {distance_m:.1} m away, at the edge of the {radius_m} m search; raise \
-                 flow.search_radius_m if the landform really moved that far"
-            ),
-            Verdict::WeakMatch { ncc, required } => write!(
-                f,
-                "the relief correlates only {ncc:.2} at the best shift (at least {required} needed); the \
-                 landform changed shape more than it moved"
-            ),
-            Verdict::ShapeMismatch { earlier, later } => write!(
-                f,
-                "rasters differ in shape ({}x{} vs {}x{}); align the surveys first",
-                earlier.0, earlier.1, later.0, later.1
-            ),
-        }
-    }
-}
-
-/// Everything [`estimate`] finds for one pair of surveys.
-#[derive(Debug, Clone)]
-pub struct FlowResult {
-    /// The dense field (zero with zero quality when the verdict is not `Trusted`).
-    pub field: FlowField,
-    /// The landform's displacement, when a correlation peak was found (also on some untrusted
-    /// verdicts, for the warning).
-    pub dominant: Option<Dominant>,
-    /// Whether to use the result.
-    pub verdict: Verdict,
-}
-
 /// Whole-cell shifts searched on the coarse level at most this many cells away; sets the depth of
 /// the pyramid (12 keeps the coarse search at about 450 NCC evaluations).
 const COARSE_RADIUS_CELLS: f64 = 12.0;
@@ -323,10 +156,80 @@ const MIN_LEVEL_CELLS: usize = 24;
 /// Aperture test: smallest eigenvalue ratio of the window's structure matrix.
 const MIN_APERTURE: f32 = 0.01;
 
+/// The options made safe to use (out-of-range values replaced by defaults) and put in cells.
+struct Settings {
+    cell_m: f64,
+    radius_m: f64,
+    min_q: f32,
+    min_relief_m: f64,
+    min_overlap: f64,
+    window_cells: f64,
+    fill_cells: f64,
+    iters: usize,
+}
+
+impl Settings {
+    fn new(o: &FlowOptions, cell_size_m: f64) -> Self {
+        let def = FlowOptions::default();
+        let positive = |v: f64, d: f64| if v.is_finite() && v > 0.0 { v } else { d };
+        let cell_m = positive(cell_size_m, 1.0);
+        let min_q = if (0.0..=1.0).contains(&o.min_quality) {
+            o.min_quality
+        } else {
+            def.min_quality
+        };
+        let min_relief_m = if o.min_relief_m.is_finite() && o.min_relief_m >= 0.0 {
+            o.min_relief_m
+        } else {
+            def.min_relief_m
+        };
+        let min_overlap = if (0.0..=1.0).contains(&o.min_overlap) {
+            o.min_overlap
+        } else {
+            def.min_overlap
+        };
+        Settings {
+            cell_m,
+            radius_m: positive(o.search_radius_m, def.search_radius_m),
+            min_q,
+            min_relief_m,
+            min_overlap,
+            window_cells: positive(o.window_m, def.window_m) / cell_m,
+            fill_cells: positive(o.fill_radius_m, def.fill_radius_m) / cell_m,
+            iters: o.iterations.clamp(1, 50),
+        }
+    }
+}
+
+/// One pyramid level: both reliefs at one resolution (level l has cells 2^l times wider).
+struct Level {
+    a: Vec<f32>,
+    b: Vec<f32>,
+    d: Dims,
+    /// Fewest overlapping pairs an NCC may rest on: a quarter of the cells with data in both.
+    min_pairs: usize,
+}
+
+impl Level {
+    fn new(a: Vec<f32>, b: Vec<f32>, d: Dims) -> Self {
+        let n = a
+            .iter()
+            .zip(&b)
+            .filter(|(x, y)| x.is_finite() && y.is_finite())
+            .count();
+        Level {
+            a,
+            b,
+            d,
+            min_pairs: (n / 4).max(16).min(d.len()),
+        }
+    }
+}
+
 /// Estimates the displacement from survey `a` (earlier) to survey `b` (later).
 ///
 /// `cell_size_m` is the width of a (square) cell in metres. Never fails: problems are reported in
-/// [`FlowResult::verdict`]. Invalid options are clamped to the nearest sane value (call
+/// [`FlowResult::verdict`]. Invalid options are replaced by their defaults (call
 /// [`FlowOptions::validate`] first to report them).
 ///
 /// # Allocations
@@ -338,13 +241,9 @@ pub fn estimate(
     opts: &FlowOptions,
 ) -> FlowResult {
     let (rows, cols) = a.dim();
-    let cell = if cell_size_m.is_finite() && cell_size_m > 0.0 {
-        cell_size_m
-    } else {
-        1.0
-    };
+    let s = Settings::new(opts, cell_size_m);
     let untrusted = |verdict: Verdict, dominant: Option<Dominant>| FlowResult {
-        field: FlowField::zeros(rows, cols, cell),
+        field: FlowField::zeros(rows, cols, s.cell_m),
         dominant,
         verdict,
     };
@@ -361,29 +260,30 @@ pub fn estimate(
     let fa: Vec<f32> = a.iter().copied().collect();
     let fb: Vec<f32> = b.iter().copied().collect();
 
-    // Overlap.
-    let (mut both, mut either) = (0usize, 0usize);
-    for (x, y) in fa.iter().zip(&fb) {
-        both += (x.is_finite() && y.is_finite()) as usize;
-        either += (x.is_finite() || y.is_finite()) as usize;
-    }
+    let (both, either) = fa
+        .iter()
+        .zip(&fb)
+        .fold((0usize, 0usize), |(n2, n1), (x, y)| {
+            (
+                n2 + (x.is_finite() && y.is_finite()) as usize,
+                n1 + (x.is_finite() || y.is_finite()) as usize,
+            )
+        });
     let share = if either == 0 {
         0.0
     } else {
         both as f64 / either as f64
     };
-    let min_overlap = opts.min_overlap.clamp(0.0, 1.0);
-    if either == 0 || share < min_overlap || both < 16 {
+    if either == 0 || share < s.min_overlap || both < 16 {
         return untrusted(
             Verdict::LittleOverlap {
                 share,
-                required: min_overlap,
+                required: s.min_overlap,
             },
             None,
         );
     }
 
-    // Base plane and relief.
     let p = raster::base_plane(&fa, &fb, d);
     let relief = |z: &[f32]| -> Vec<f32> {
         z.iter()
@@ -393,73 +293,88 @@ pub fn estimate(
             })
             .collect()
     };
-    let ra = relief(&fa);
-    let rb = relief(&fb);
+    let (ra, rb) = (relief(&fa), relief(&fb));
     let relief_std_m = relief_std(&ra, &rb).min(relief_std(&rb, &ra));
-    let min_relief_m = if opts.min_relief_m.is_finite() {
-        opts.min_relief_m.max(0.0)
-    } else {
-        0.1
-    };
-    if relief_std_m.is_nan() || relief_std_m < min_relief_m || relief_std_m == 0.0 {
+    if relief_std_m.is_nan() || relief_std_m < s.min_relief_m || relief_std_m == 0.0 {
         return untrusted(
             Verdict::NoTexture {
                 relief_std_m,
-                required_m: min_relief_m,
+                required_m: s.min_relief_m,
             },
             None,
         );
     }
 
-    // Pyramid deep enough that the search radius is about COARSE_RADIUS_CELLS on the top level.
-    let radius_m = if opts.search_radius_m.is_finite() && opts.search_radius_m > 0.0 {
-        opts.search_radius_m
-    } else {
-        60.0
+    let levels = pyramid(ra, rb, d, s.radius_m / s.cell_m);
+    let (peak, (g_row, g_col)) = match dominant_shift(&levels, &s) {
+        Ok(found) => found,
+        Err((verdict, dom)) => return untrusted(verdict, dom),
     };
-    let radius_cells = radius_m / cell;
-    let mut levels: Vec<(Vec<f32>, Vec<f32>, Dims)> = vec![(ra, rb, d)];
+    let (u, v, q) = dense_field(&levels, &s, (g_row, g_col));
+
+    let dominant = match landform_mean(&levels[0].a, &u, &v, &q, &s) {
+        Some((dv, du, support)) => {
+            Dominant::from_components(du * s.cell_m, -dv * s.cell_m, peak.ncc, support)
+        }
+        None => Dominant::from_components(g_col * s.cell_m, -g_row * s.cell_m, peak.ncc, 0.0),
+    };
+    if dominant.distance_m > s.radius_m {
+        let verdict = Verdict::AtSearchLimit {
+            distance_m: dominant.distance_m,
+            radius_m: s.radius_m,
+        };
+        return untrusted(verdict, Some(dominant));
+    }
+    let to_array =
+        |f: Vec<f32>| Array2::from_shape_vec((rows, cols), f).expect("field has the grid's shape");
+    let k = s.cell_m as f32;
+    FlowResult {
+        field: FlowField {
+            east_m: to_array(u.iter().map(|x| x * k).collect()),
+            north_m: to_array(v.iter().map(|y| -y * k).collect()),
+            quality: to_array(q),
+            cell_size_m: s.cell_m,
+        },
+        dominant: Some(dominant),
+        verdict: Verdict::Trusted,
+    }
+}
+
+/// Halves the reliefs until the search radius is about [`COARSE_RADIUS_CELLS`] on the top level
+/// (or the next level would be too small). Level 0 is the full grid.
+fn pyramid(ra: Vec<f32>, rb: Vec<f32>, d: Dims, radius_cells: f64) -> Vec<Level> {
+    let mut levels = vec![Level::new(ra, rb, d)];
     loop {
         let top = &levels[levels.len() - 1];
         let scale = (1usize << (levels.len() - 1)) as f64;
-        let next_short = top.2.rows.min(top.2.cols) / 2;
-        if radius_cells / scale <= COARSE_RADIUS_CELLS || next_short < MIN_LEVEL_CELLS {
-            break;
+        if radius_cells / scale <= COARSE_RADIUS_CELLS
+            || top.d.rows.min(top.d.cols) / 2 < MIN_LEVEL_CELLS
+        {
+            return levels;
         }
-        let (ha, hd) = raster::halve(&top.0, top.2);
-        let (hb, _) = raster::halve(&top.1, top.2);
-        levels.push((ha, hb, hd));
+        let (ha, hd) = raster::halve(&top.a, top.d);
+        let (hb, _) = raster::halve(&top.b, top.d);
+        levels.push(Level::new(ha, hb, hd));
     }
-    let top = levels.len() - 1;
-    let min_pairs = |l: usize| {
-        let (la, lb, ld) = &levels[l];
-        let n = la
-            .iter()
-            .zip(lb)
-            .filter(|(x, y)| x.is_finite() && y.is_finite())
-            .count();
-        (n / 4).max(16).min(ld.len())
-    };
+}
 
-    // Dominant displacement: coarse disc search, climb down, sub-cell fit.
-    let min_q = if opts.min_quality.is_finite() {
-        opts.min_quality.clamp(0.0, 1.0)
-    } else {
-        0.6
+/// Whole-relief NCC: disc search on the top level, hill-climb down the pyramid, sub-cell fit on
+/// level 0. Gives the whole-cell peak and the sub-cell (rows, cols) shift, or the verdict that stops
+/// the estimate (with the shift found so far, when there is one).
+#[allow(clippy::type_complexity)]
+fn dominant_shift(
+    levels: &[Level],
+    s: &Settings,
+) -> Result<(global::Peak, (f64, f64)), (Verdict, Option<Dominant>)> {
+    let weak = |ncc: f64| Verdict::WeakMatch {
+        ncc,
+        required: s.min_q as f64,
     };
-    let coarse_radius = radius_cells / (1usize << top) as f64;
-    let (la, lb, ld) = &levels[top];
-    let Some((mut peak, at_limit)) =
-        global::search_disc(la, lb, *ld, coarse_radius, min_pairs(top))
-    else {
-        return untrusted(
-            Verdict::WeakMatch {
-                ncc: 0.0,
-                required: min_q as f64,
-            },
-            None,
-        );
-    };
+    let top = levels.len() - 1;
+    let coarse_radius = s.radius_m / s.cell_m / (1usize << top) as f64;
+    let t = &levels[top];
+    let (mut peak, at_limit) = global::search_disc(&t.a, &t.b, t.d, coarse_radius, t.min_pairs)
+        .ok_or((weak(0.0), None))?;
     log::debug!(
         "flow: {} pyramid levels, coarse peak ({}, {}) ncc {:.3}",
         top + 1,
@@ -467,81 +382,70 @@ pub fn estimate(
         peak.col,
         peak.ncc
     );
-    for l in (0..top).rev() {
-        let (la, lb, ld) = &levels[l];
-        match global::climb(la, lb, *ld, (2 * peak.row, 2 * peak.col), min_pairs(l), 8) {
-            Some(pk) => peak = pk,
-            None => {
-                return untrusted(
-                    Verdict::WeakMatch {
-                        ncc: peak.ncc,
-                        required: min_q as f64,
-                    },
-                    None,
-                )
-            }
-        }
+    for l in levels[..top].iter().rev() {
+        peak = global::climb(
+            &l.a,
+            &l.b,
+            l.d,
+            (2 * peak.row, 2 * peak.col),
+            l.min_pairs,
+            8,
+        )
+        .ok_or((weak(peak.ncc), None))?;
     }
-    let (la, lb, ld) = &levels[0];
-    let (g_row, g_col) = global::subcell(la, lb, *ld, peak, min_pairs(0));
-    let global_dom = Dominant::from_components(g_col * cell, -g_row * cell, peak.ncc, 0.0);
-    if at_limit || global_dom.distance_m > radius_m {
-        return untrusted(
+    let l0 = &levels[0];
+    let (g_row, g_col) = global::subcell(&l0.a, &l0.b, l0.d, peak, l0.min_pairs);
+    let dom = Dominant::from_components(g_col * s.cell_m, -g_row * s.cell_m, peak.ncc, 0.0);
+    if at_limit || dom.distance_m > s.radius_m {
+        return Err((
             Verdict::AtSearchLimit {
-                distance_m: global_dom.distance_m,
-                radius_m,
+                distance_m: dom.distance_m,
+                radius_m: s.radius_m,
             },
-            Some(global_dom),
-        );
+            Some(dom),
+        ));
     }
-    if peak.ncc < min_q as f64 {
-        return untrusted(
-            Verdict::WeakMatch {
-                ncc: peak.ncc,
-                required: min_q as f64,
-            },
-            Some(global_dom),
-        );
+    if peak.ncc < s.min_q as f64 {
+        return Err((weak(peak.ncc), Some(dom)));
     }
+    Ok((peak, (g_row, g_col)))
+}
 
-    // Dense field, coarse to fine, started from the dominant displacement.
-    let window_cells = if opts.window_m.is_finite() && opts.window_m > 0.0 {
-        opts.window_m / cell
-    } else {
-        16.0
-    };
-    let fill_cells = if opts.fill_radius_m.is_finite() && opts.fill_radius_m > 0.0 {
-        opts.fill_radius_m / cell
-    } else {
-        40.0
-    };
-    let iters = opts.iterations.clamp(1, 50);
+/// Dense field (u = columns east, v = rows south, in level-0 cells) and its quality, coarse to fine
+/// from the dominant shift `(g_row, g_col)`.
+fn dense_field(
+    levels: &[Level],
+    s: &Settings,
+    (g_row, g_col): (f64, f64),
+) -> (Vec<f32>, Vec<f32>, Vec<f32>) {
+    let top = levels.len() - 1;
     let scale_top = (1usize << top) as f32;
-    let mut u = vec![g_col as f32 / scale_top; levels[top].2.len()];
-    let mut v = vec![g_row as f32 / scale_top; levels[top].2.len()];
+    let mut u = vec![g_col as f32 / scale_top; levels[top].d.len()];
+    let mut v = vec![g_row as f32 / scale_top; levels[top].d.len()];
     let mut q = Vec::new();
-    for l in (0..=top).rev() {
-        let (la, lb, ld) = &levels[l];
-        let ld = *ld;
-        let short = ld.rows.min(ld.cols);
-        let h = ((window_cells / 2.0).round() as usize).clamp(2, (short / 4).max(2));
+    for (l, lv) in levels.iter().enumerate().rev() {
+        let ld = lv.d;
+        // Same window in cells on every level, so it covers more ground on coarse levels.
+        let h =
+            ((s.window_cells / 2.0).round() as usize).clamp(2, (ld.rows.min(ld.cols) / 4).max(2));
         let scale = (1usize << l) as f32;
-        let mut s = Scratch::new(ld);
-        dense::refine(la, lb, ld, (&mut u, &mut v), h, iters, &mut s);
+        let mut scratch = Scratch::new(ld);
+        dense::refine(&lv.a, &lv.b, ld, (&mut u, &mut v), h, s.iters, &mut scratch);
         let rule = QualityRule {
             h,
-            min_std_m: (min_relief_m as f32 * 0.1).max(1e-4),
+            min_std_m: (s.min_relief_m as f32 * 0.1).max(1e-4),
             min_aperture: MIN_APERTURE,
         };
-        q = dense::quality(la, lb, ld, &u, &v, rule, &mut s);
-        let rejected = dense::reject_outliers(&u, &v, &mut q, ld, (h / 2).max(1), min_q);
+        q = dense::quality(&lv.a, &lv.b, ld, &u, &v, rule, &mut scratch);
+        let rejected = dense::reject_outliers(&u, &v, &mut q, ld, (h / 2).max(1), s.min_q);
         let fill = FillRule {
-            min_q,
+            min_q: s.min_q,
             h_small: (h / 2).max(1),
-            h_large: ((fill_cells / scale as f64).round() as usize).clamp(1, ld.rows.max(ld.cols)),
+            h_large: ((s.fill_cells / scale as f64).round() as usize)
+                .clamp(1, ld.rows.max(ld.cols)),
             prior: (g_col as f32 / scale, g_row as f32 / scale),
         };
-        dense::smooth_fill(&mut u, &mut v, &q, ld, fill, &mut s);
+        dense::smooth_fill(&mut u, &mut v, &q, ld, fill, &mut scratch);
         log::debug!(
             "flow: level {l} ({}x{}), window {} cells, {rejected} outliers rejected",
             ld.rows,
@@ -549,63 +453,42 @@ pub fn estimate(
             2 * h + 1
         );
         if l > 0 {
-            let fine = levels[l - 1].2;
+            let fine = levels[l - 1].d;
             u = raster::double_field(&u, ld, fine);
             v = raster::double_field(&v, ld, fine);
         }
     }
+    (u, v, q)
+}
 
-    // Dominant refined from the field: mean over the landform (relief above `min_relief_m`, so
-    // that noise on bare ground does not count), weighted by quality x relief.
-    let ra = &levels[0].0;
+/// Mean (rows, cols) displacement over the landform — cells more than `min_relief_m` above the
+/// base, so that noise on bare ground does not count — weighted by quality x relief, with the
+/// share of landform cells that were measured. None when no landform cell was measured.
+fn landform_mean(
+    ra: &[f32],
+    u: &[f32],
+    v: &[f32],
+    q: &[f32],
+    s: &Settings,
+) -> Option<(f64, f64, f64)> {
+    let floor = s.min_relief_m.max(1e-3);
     let (mut sw, mut su, mut sv) = (0.0f64, 0.0f64, 0.0f64);
     let (mut land, mut measured) = (0usize, 0usize);
-    for i in 0..d.len() {
-        let h = ra[i];
-        if h.is_nan() || h as f64 <= min_relief_m.max(1e-3) {
+    for i in 0..ra.len() {
+        let h = ra[i] as f64;
+        if h.is_nan() || h <= floor {
             continue;
         }
         land += 1;
-        if q[i] >= min_q {
+        if q[i] >= s.min_q {
             measured += 1;
-            let w = q[i] as f64 * h as f64;
+            let w = q[i] as f64 * h;
             sw += w;
             su += w * u[i] as f64;
             sv += w * v[i] as f64;
         }
     }
-    let support = if land == 0 {
-        0.0
-    } else {
-        measured as f64 / land as f64
-    };
-    let dominant = if sw > 0.0 {
-        Dominant::from_components(su / sw * cell, -sv / sw * cell, peak.ncc, support)
-    } else {
-        global_dom
-    };
-    if dominant.distance_m > radius_m {
-        return untrusted(
-            Verdict::AtSearchLimit {
-                distance_m: dominant.distance_m,
-                radius_m,
-            },
-            Some(dominant),
-        );
-    }
-    let to_array =
-        |f: Vec<f32>| Array2::from_shape_vec((rows, cols), f).expect("field has the grid's shape");
-    let k = cell as f32;
-    FlowResult {
-        field: FlowField {
-            east_m: to_array(u.iter().map(|x| x * k).collect()),
-            north_m: to_array(v.iter().map(|y| -y * k).collect()),
-            quality: to_array(q),
-            cell_size_m: cell,
-        },
-        dominant: Some(dominant),
-        verdict: Verdict::Trusted,
-    }
+    (sw > 0.0).then(|| (sv / sw, su / sw, measured as f64 / land as f64))
 }
 
 /// Standard deviation of `x` over the cells where both `x` and `other` have data.
