@@ -450,3 +450,17 @@ fn debug_errors() {
         }
     }
 }
+
+#[test]
+fn verdict_serialises_with_its_reason() {
+    let v = Verdict::AtSearchLimit {
+        distance_m: 15.0,
+        radius_m: 15.0,
+    };
+    let j = serde_json::to_string(&v).unwrap();
+    assert_eq!(
+        j,
+        r#"{"verdict":"at-search-limit","distance_m":15.0,"radius_m":15.0}"#
+    );
+    assert!(v.to_string().contains("search_radius_m"));
+}

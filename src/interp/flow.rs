@@ -18,7 +18,9 @@
 //!    Gharib 1991). REFERENCES.md §4. NCC over the whole overlap is normalised by the overlap, so
 //!    a partly overlapping pair is not biased towards small shifts the way a plain correlation is.
 //! 3. **Dense field**: iterative windowed Lucas–Kanade (Lucas & Kanade 1981) with warping, coarse to
-//!    fine (Bergen et al. 1992), started on the coarse level from the dominant displacement. Chosen
+//!    fine (Bergen et al. 1992), started on the coarse level from the dominant displacement. The
+//!    window is triangular (two box passes), whose spectrum is never negative, so cell-to-cell
+//!    errors shrink from one iteration to the next instead of growing. Chosen
 //!    over NCC block matching because dune surfaces are smooth (gradients are well defined, and
 //!    sub-cell accuracy comes from the warp without a peak-shape assumption) and because it costs a
 //!    few window sums per cell per iteration, independent of the window size and search radius.
@@ -70,7 +72,8 @@ pub struct FlowOptions {
     /// that should move on its own. Default: 16.
     pub window_m: f64,
     /// Largest displacement searched, in metres. A dominant displacement at the edge of this disc
-    /// gives [`Verdict::AtSearchLimit`]. Default: 60.
+    /// gives [`Verdict::AtSearchLimit`]. Also sets the depth of the coarse-to-fine pyramid: levels
+    /// are added until this radius is about 12 cells on the coarsest one. Default: 60.
     pub search_radius_m: f64,
     /// Lucas–Kanade iterations on each pyramid level. Default: 4.
     pub iterations: usize,

@@ -94,7 +94,16 @@ pub fn morph_into(
         east.as_slice().expect("standard layout"),
         north.as_slice().expect("standard layout"),
     );
-    let inv_cell = (1.0 / field.cell_size_m) as f32;
+    let inv_cell = if field.cell_size_m.is_finite() && field.cell_size_m > 0.0 {
+        (1.0 / field.cell_size_m) as f32
+    } else {
+        // A field without a usable cell size cannot be placed: blend without moving anything.
+        log::warn!(
+            "morph: displacement field has cell size {} m; blending without warping",
+            field.cell_size_m
+        );
+        0.0
+    };
     let d = RasterDims { rows, cols };
     let write = |dst: &mut [f32]| {
         dst.par_chunks_mut(cols * BAND_ROWS)

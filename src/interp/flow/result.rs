@@ -77,7 +77,8 @@ impl Dominant {
 }
 
 /// Whether the displacement can be trusted, and if not, why.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[serde(tag = "verdict", rename_all = "kebab-case")]
 pub enum Verdict {
     /// The field and the dominant displacement are usable for the morph and the record.
     Trusted,
