@@ -319,6 +319,61 @@ fn two_landforms_moving_differently_are_told_apart() {
         "moving {moving} static {fixed}"
     );
     assert!(res.field.north_m[[60, 60]].abs() < 0.2 && res.field.north_m[[60, 170]].abs() < 0.2);
+
+    // Through the morph, the moving mound travels and the static one stays as it was.
+    let mut mid = Array2::zeros((rows, cols));
+    morph_into(&mut mid, &a, &b, &res.field, 0.5);
+    let crest = |z: &Array2<f32>, c_lo: usize, c_hi: usize| {
+        let mut best = (0, f32::MIN);
+        for c in c_lo..c_hi {
+            if z[[60, c]] > best.1 {
+                best = (c, z[[60, c]]);
+            }
+        }
+        best
+    };
+    let (c_move, _) = crest(&mid, 30, 110);
+    let (c_a, _) = crest(&a, 30, 110);
+    let (c_static, h_static) = crest(&mid, 130, 220);
+    let (c_static_a, h_static_a) = crest(&a, 130, 220);
+    // Check: known synthetic motion — moving crest halfway (4 cells) along at w=0.5 within one cell;
+    // static crest in place within one cell and its height within 1 %
+    assert!(
+        (c_move as i64 - (c_a as i64 + 4)).abs() <= 1,
+        "{c_move} vs {c_a}"
+    );
+    assert!((c_static as i64 - c_static_a as i64).abs() <= 1);
+    assert!((h_static - h_static_a).abs() < 0.01 * (h_static_a - 3.2));
+}
+
+#[test]
+fn a_mound_growing_in_place_fades_in_without_moving() {
+    let (rows, cols) = (120, 120);
+    let make = |k: f64, seed: u64| {
+        Array2::from_shape_fn((rows, cols), |(r, c)| {
+            (2.0 + 0.02 * r as f64 + k * landform(r as f64 - 60.0, c as f64 - 60.0)) as f32
+                + 0.01 * hash_noise(r, c, seed)
+        })
+    };
+    let a = make(1.0, 21);
+    let b = make(1.5, 22);
+    let res = estimate(&a, &b, 1.0, &FlowOptions::default());
+    assert!(res.verdict.is_trusted(), "{:?}", res.verdict);
+    let dom = res.dominant.unwrap();
+    // Check: analytic — a mound that only grows has no displacement; tolerance 0.2 cell
+    eprintln!("growth in place: {dom:?}");
+    assert!(dom.distance_m < 0.2, "{dom:?}");
+    let mut mid = Array2::zeros((rows, cols));
+    morph_into(&mut mid, &a, &b, &res.field, 0.5);
+    let peak = |z: &Array2<f32>| z.iter().fold(f32::MIN, |m, &v| m.max(v)) - (2.0 + 0.02 * 60.0);
+    // Check: Beier & Neely (1992) warp-and-blend with no motion reduces to the cross-dissolve — peak at
+    // w=0.5 is the mean of the two peaks; REFERENCES.md §5, within 2 %
+    let want = 0.5 * (peak(&a) + peak(&b));
+    assert!(
+        (peak(&mid) - want).abs() < 0.02 * want,
+        "{} vs {want}",
+        peak(&mid)
+    );
 }
 
 #[test]

@@ -2,7 +2,9 @@
 //! for whole-cell shifts, searched in a disc on a coarse pyramid level, climbed down the pyramid,
 //! and given a sub-cell offset by a three-point peak fit.
 
-use super::raster::Dims;
+use rayon::prelude::*;
+
+use super::raster::{sample_or_nan, Dims};
 
 /// A whole-cell shift of the later survey against the earlier one and its NCC.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -175,6 +177,135 @@ pub(crate) fn subcell(a: &[f32], b: &[f32], d: Dims, p: Peak, min_pairs: usize) 
     let dr = peak_offset(at(-1, 0), p.ncc, at(1, 0));
     let dc = peak_offset(at(0, -1), p.ncc, at(0, 1));
     (p.row as f64 + dr, p.col as f64 + dc)
+}
+
+/// Refines a whole-relief shift `(rows, cols)` by Gauss–Newton on one global translation with a
+/// gain and an offset: minimises the sum over the overlap of `(b(x + t) - g*a(x) - o)^2` (the
+/// Lucas–Kanade step for a single window covering the grid). The gain makes it blind to a landform
+/// that grows or shrinks in place, which a mean of the dense field is not (growth reads as
+/// outward motion on every flank, and on an asymmetric dune those do not cancel). None when the
+/// system is singular or the step runs more than 2 cells away from `start`.
+pub(crate) fn refine_translation(
+    a: &[f32],
+    b: &[f32],
+    d: Dims,
+    start: (f64, f64),
+    iters: usize,
+) -> Option<(f64, f64)> {
+    let (rows, cols) = (d.rows, d.cols);
+    if rows < 3 || cols < 3 {
+        return None;
+    }
+    let (mut tr, mut tc) = start;
+    let mut bw = vec![0.0f32; d.len()];
+    for _ in 0..iters {
+        let (ftr, ftc) = (tr as f32, tc as f32);
+        bw.par_chunks_mut(cols).enumerate().for_each(|(r, row)| {
+            for (c, o) in row.iter_mut().enumerate() {
+                *o = sample_or_nan(b, d, r as f32 + ftr, c as f32 + ftc);
+            }
+        });
+        let bw = &bw;
+        // Per-row partial sums of the 4x4 normal equations (upper triangle) and right-hand side,
+        // combined in row order so the result does not depend on the thread count.
+        let partial: Vec<[f64; 14]> = (1..rows - 1)
+            .into_par_iter()
+            .map(|r| {
+                let mut acc = [0.0f64; 14];
+                for c in 1..cols - 1 {
+                    let i = r * cols + c;
+                    let x = a[i];
+                    let gx = 0.5 * (bw[i + 1] - bw[i - 1]);
+                    let gy = 0.5 * (bw[i + cols] - bw[i - cols]);
+                    if !(x.is_finite() && bw[i].is_finite() && gx.is_finite() && gy.is_finite()) {
+                        continue;
+                    }
+                    // Unknowns (dc, dr, g, o): gx*dc + gy*dr - g*x - o = -bw.
+                    let j = [gx as f64, gy as f64, -(x as f64), -1.0];
+                    let rhs = -(bw[i] as f64);
+                    let mut k = 0;
+                    for p in 0..4 {
+                        for q in p..4 {
+                            acc[k] += j[p] * j[q];
+                            k += 1;
+                        }
+                    }
+                    for p in 0..4 {
+                        acc[10 + p] += j[p] * rhs;
+                    }
+                }
+                acc
+            })
+            .collect();
+        let mut acc = [0.0f64; 14];
+        for p in &partial {
+            for (s, v) in acc.iter_mut().zip(p) {
+                *s += v;
+            }
+        }
+        let mut m = [[0.0f64; 5]; 4];
+        let mut k = 0;
+        for p in 0..4 {
+            for q in p..4 {
+                m[p][q] = acc[k];
+                m[q][p] = acc[k];
+                k += 1;
+            }
+            m[p][4] = acc[10 + p];
+        }
+        let x = solve4(m)?;
+        let (mut dc, mut dr) = (x[0], x[1]);
+        let step = dc.hypot(dr);
+        if !step.is_finite() {
+            return None;
+        }
+        if step > 1.0 {
+            dc /= step;
+            dr /= step;
+        }
+        tr += dr;
+        tc += dc;
+        if (tr - start.0).hypot(tc - start.1) > 2.0 {
+            return None;
+        }
+        if step < 1e-4 {
+            break;
+        }
+    }
+    Some((tr, tc))
+}
+
+/// Solves a 4x4 system given as an augmented matrix, by Gaussian elimination with partial pivoting.
+fn solve4(mut m: [[f64; 5]; 4]) -> Option<[f64; 4]> {
+    let scale = m
+        .iter()
+        .flat_map(|r| r[..4].iter())
+        .fold(0.0f64, |s, v| s.max(v.abs()));
+    if scale.is_nan() || scale <= 0.0 {
+        return None;
+    }
+    for col in 0..4 {
+        let piv = (col..4).max_by(|&i, &j| m[i][col].abs().total_cmp(&m[j][col].abs()))?;
+        if m[piv][col].abs() <= 1e-12 * scale {
+            return None;
+        }
+        m.swap(col, piv);
+        for row in col + 1..4 {
+            let f = m[row][col] / m[col][col];
+            for k in col..5 {
+                m[row][k] -= f * m[col][k];
+            }
+        }
+    }
+    let mut x = [0.0f64; 4];
+    for row in (0..4).rev() {
+        let mut s = m[row][4];
+        for k in row + 1..4 {
+            s -= m[row][k] * x[k];
+        }
+        x[row] = s / m[row][row];
+    }
+    Some(x)
 }
 
 #[cfg(test)]

@@ -39,7 +39,7 @@ pub struct Dominant {
     pub distance_m: f64,
     /// Direction of travel, compass degrees clockwise from north in [0, 360); 0 when the distance is 0.
     pub azimuth_deg: f64,
-    /// NCC of the whole relief at the best whole-cell shift, -1 to 1.
+    /// NCC of the whole relief at the best whole-cell shift, -1 to 1 (the match quality).
     pub ncc: f64,
     /// Share of the landform's cells (relief more than `min_relief_m` above the base) whose vector
     /// was measured with quality at least `min_quality`; 0 when the dense field was not used.
