@@ -457,56 +457,6 @@ fn tiny_and_odd_shapes_do_not_panic() {
 }
 
 #[test]
-#[ignore]
-fn debug_errors() {
-    let (rows, cols) = (150, 190);
-    for noise in [0.0f32, 0.02] {
-        for (w, it) in [(16.0, 4), (16.0, 10), (8.0, 4), (24.0, 4)] {
-            let a = survey(rows, cols, 70.0, 70.0, noise, 1);
-            let b = survey(rows, cols, 76.0, 87.0, noise, 2);
-            let res = estimate(
-                &a,
-                &b,
-                1.0,
-                &FlowOptions {
-                    window_m: w,
-                    iterations: it,
-                    ..Default::default()
-                },
-            );
-            let d = res.dominant.unwrap();
-            eprintln!(
-                "noise {noise} window {w} iters {it}: dom {:.3} {:.3}",
-                d.east_m, d.north_m
-            );
-            for lo in [0.5, 1.0, 2.0, 4.0] {
-                let (mut s, mut n, mut mx, mut bu, mut bv) = (0.0, 0, 0.0f64, 0.0, 0.0);
-                for ((r, c), &e) in res.field.east_m.indexed_iter() {
-                    let h = landform(r as f64 - 70.0, c as f64 - 70.0);
-                    if h <= lo || h > 2.0 * lo {
-                        continue;
-                    }
-                    let du = e as f64 - 17.0;
-                    let dv = -(res.field.north_m[[r, c]] as f64) - 6.0;
-                    s += du * du + dv * dv;
-                    n += 1;
-                    mx = mx.max((du * du + dv * dv).sqrt());
-                    bu += du;
-                    bv += dv;
-                }
-                eprintln!(
-                    "  band {lo}: n {n} rms {:.3} max {:.3} bias {:.3} {:.3}",
-                    (s / n as f64).sqrt(),
-                    mx,
-                    bu / n as f64,
-                    bv / n as f64
-                );
-            }
-        }
-    }
-}
-
-#[test]
 fn verdict_serialises_with_its_reason() {
     let v = Verdict::AtSearchLimit {
         distance_m: 15.0,
