@@ -185,6 +185,8 @@ pub(crate) fn subcell(a: &[f32], b: &[f32], d: Dims, p: Peak, min_pairs: usize) 
 /// that grows or shrinks in place, which a mean of the dense field is not (growth reads as
 /// outward motion on every flank, and on an asymmetric dune those do not cancel). None when the
 /// system is singular or the step runs more than 2 cells away from `start`.
+// Matrix code reads best with indices.
+#[allow(clippy::needless_range_loop)]
 pub(crate) fn refine_translation(
     a: &[f32],
     b: &[f32],
@@ -276,6 +278,7 @@ pub(crate) fn refine_translation(
 }
 
 /// Solves a 4x4 system given as an augmented matrix, by Gaussian elimination with partial pivoting.
+#[allow(clippy::needless_range_loop)]
 fn solve4(mut m: [[f64; 5]; 4]) -> Option<[f64; 4]> {
     let scale = m
         .iter()
