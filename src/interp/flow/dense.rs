@@ -375,3 +375,47 @@ pub(crate) fn smooth_fill(
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_pure_ramp_scores_zero_and_a_mound_scores_one() {
+        let d = Dims { rows: 40, cols: 40 };
+        let ramp: Vec<f32> = (0..d.len()).map(|i| 0.3 * (i % 40) as f32).collect();
+        let zero = vec![0.0f32; d.len()];
+        let rule = QualityRule {
+            h: 5,
+            min_std_m: 0.01,
+            min_aperture: 0.01,
+        };
+        let mut s = Scratch::new(d);
+        let q = quality(&ramp, &ramp, d, &zero, &zero, rule, &mut s);
+        // Check: REFERENCES.md §4 aperture problem — a pure ramp must be flagged (smaller eigenvalue 0)
+        assert!(q.iter().all(|&v| v == 0.0));
+        let mound: Vec<f32> = (0..d.len())
+            .map(|i| {
+                let (r, c) = ((i / 40) as f32 - 20.0, (i % 40) as f32 - 20.0);
+                (-(r * r + c * c) / 60.0).exp()
+            })
+            .collect();
+        let q = quality(&mound, &mound, d, &zero, &zero, rule, &mut s);
+        // Check: Lewis (1995) NCC — a surface against itself scores 1; abs diff < 1e-4 at the centre
+        assert!((q[20 * 40 + 20] - 1.0).abs() < 1e-4);
+    }
+
+    #[test]
+    fn median_test_rejects_a_lone_wild_vector() {
+        let d = Dims { rows: 9, cols: 9 };
+        let mut u: Vec<f32> = (0..d.len()).map(|i| 3.0 + 0.01 * (i % 9) as f32).collect();
+        let v = vec![-1.0f32; d.len()];
+        u[4 * 9 + 4] = 7.0;
+        let mut q = vec![1.0f32; d.len()];
+        let n = reject_outliers(&u, &v, &mut q, d, 1, 0.5);
+        // Check: from memory — Westerweel & Scarano (2005) normalised median test, threshold 2,
+        // noise 0.1 cell: a 4-cell spike in a smooth field is the only vector rejected
+        assert_eq!(n, 1);
+        assert_eq!(q[4 * 9 + 4], 0.0);
+    }
+}

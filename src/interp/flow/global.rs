@@ -357,6 +357,29 @@ mod tests {
     }
 
     #[test]
+    fn global_refinement_ignores_gain_and_offset() {
+        let d = Dims { rows: 64, cols: 64 };
+        let g = |r0: f64, c0: f64, k: f64, o: f64| -> Vec<f32> {
+            (0..d.len())
+                .map(|i| {
+                    let (r, c) = ((i / 64) as f64 - r0, (i % 64) as f64 - c0);
+                    (o + k * 3.0 * (-(r * r) / 50.0 - c * c / 18.0).exp()) as f32
+                })
+                .collect()
+        };
+        let a = g(32.0, 32.0, 1.0, 0.0);
+        // Moved (+2.3 cols, -1.7 rows), 1.6 times taller and 0.4 m higher overall.
+        let b = g(32.0 - 1.7, 32.0 + 2.3, 1.6, 0.4);
+        let (r, c) = refine_translation(&a, &b, d, (-2.0, 2.0), 20).unwrap();
+        // Check: analytic — a translated, rescaled copy is registered at the translation
+        // (REFERENCES.md §4 Lucas–Kanade step); 0.02 cell tolerance for bilinear resampling
+        assert!(
+            (c - 2.3).abs() < 0.02 && (r + 1.7).abs() < 0.02,
+            "({c}, {r})"
+        );
+    }
+
+    #[test]
     fn ncc_of_affine_copy_is_one_and_flat_is_none() {
         let d = Dims { rows: 16, cols: 16 };
         let a: Vec<f32> = (0..d.len()).map(|i| ((i * 7919) % 13) as f32).collect();
