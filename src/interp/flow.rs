@@ -17,30 +17,39 @@
 //!    offset by a three-point Gaussian fit (parabolic when a value is not positive; Willert &
 //!    Gharib 1991). REFERENCES.md §4. NCC over the whole overlap is normalised by the overlap, so
 //!    a partly overlapping pair is not biased towards small shifts the way a plain correlation is.
+//!    The estimate is then refined by Gauss–Newton on one translation of the whole relief with a
+//!    gain and an offset (a single Lucas–Kanade window covering the grid). The gain makes it blind
+//!    to growth in place. A mean of the dense field over the dune was tried first and rejected:
+//!    growth reads as outward motion on every flank, and on an asymmetric dune those do not cancel
+//!    (a mound grown by half in place gave 1.66 cells of "migration"; the global fit gives 0.0005).
 //! 3. **Dense field**: iterative windowed Lucas–Kanade (Lucas & Kanade 1981) with warping, coarse to
 //!    fine (Bergen et al. 1992), started on the coarse level from the dominant displacement. The
 //!    window is triangular (two box passes), whose spectrum is never negative, so cell-to-cell
-//!    errors shrink from one iteration to the next instead of growing. Chosen
-//!    over NCC block matching because dune surfaces are smooth (gradients are well defined, and
-//!    sub-cell accuracy comes from the warp without a peak-shape assumption) and because it costs a
-//!    few window sums per cell per iteration, independent of the window size and search radius.
+//!    errors shrink from one iteration to the next instead of growing. Chosen over NCC block
+//!    matching because dune surfaces are smooth (gradients are well defined, and sub-cell accuracy
+//!    comes from the warp without a peak-shape assumption) and because it costs a few window sums
+//!    per cell per iteration, independent of the window size and search radius.
 //!    On every level the field is scored, cleaned and filled:
 //!    - quality = NCC between the earlier relief and the later one warped by the field, over the
 //!      window; 0 where the window is flat, a pure ramp (aperture test on the structure matrix),
 //!      mostly nodata or anti-correlated;
-//!    - outliers are rejected by the normalised median test (Westerweel & Scarano 2005);
+//!    - outliers are rejected by the normalised median test (Westerweel & Scarano 2005, from
+//!      memory: threshold 2, noise level 0.1 cell);
 //!    - normalised convolution (weights = quality) smooths well-measured cells lightly and fills
 //!      weak ones (flat beach, nodata) from good vectors within `fill_radius_m`, fading towards the
 //!      dominant displacement where nothing was measured within reach. On static sloping ground
 //!      the filled value is harmless to the morph: a plane warped by any uniform vector and blended
 //!      with the weights of the morph reproduces itself.
-//! 4. **Dominant displacement, refined**: Gauss–Newton on one translation of the whole relief
-//!    with a gain and an offset (a single Lucas–Kanade window covering the grid), started from the
-//!    NCC estimate. The gain makes it blind to growth in place. A mean of the dense field over the
-//!    dune was tried first and rejected: growth reads as outward motion on every flank, and on an
-//!    asymmetric dune those do not cancel (a mound grown by half in place gave 1.66 cells of
-//!    "migration"; the global fit gives 0.0005). The field still supplies the support: the
-//!    share of the landform whose motion was measured rather than filled in.
+//! 4. **Support**: the share of the landform (relief above `min_relief_m`) whose motion was
+//!    measured rather than filled in, reported with the dominant displacement.
+//!
+//! # Limits
+//! - A field of evenly spaced, similar dunes looks the same after a move of one spacing: a true
+//!   move beyond the search radius can alias onto a smaller one inside it. Keep `search_radius_m`
+//!   below the dune spacing.
+//! - Where one dune moves and its neighbour does not, the dominant displacement is a blend,
+//!   weighted by how much relief each has; the field tells them apart.
+//! - Cells are assumed square.
 //!
 //! # Conventions
 //! The field lives on the grid of the earlier survey `a`: the sand at cell x of `a` is found at
