@@ -310,6 +310,7 @@ pub fn estimate(
             .collect()
     };
     let (ra, rb) = (relief(&fa), relief(&fb));
+    drop((fa, fb));
     let relief_std_m = relief_std(&ra, &rb).min(relief_std(&rb, &ra));
     if relief_std_m.is_nan() || relief_std_m < s.min_relief_m || relief_std_m == 0.0 {
         return untrusted(
