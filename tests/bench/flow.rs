@@ -91,6 +91,20 @@ fn main() {
             r.verdict
         );
 
+        if n == 1024 {
+            let mut walls = Vec::new();
+            for _ in 0..3 {
+                let ((), wall, _) = timed(|| {
+                    black_box(estimate(black_box(&a), black_box(&b), 1.0, &opts));
+                });
+                walls.push(wall);
+            }
+            println!(
+                "flow/estimate {n}x{n}, all threads: median {:.1} ms wall over 3 runs",
+                median(walls) * 1e3
+            );
+        }
+
         let mut out = Array2::zeros((n, n));
         for (label, threads) in [("1 thread", Some(&one)), ("all threads", None)] {
             let (mut walls, mut cpus) = (Vec::new(), Vec::new());
