@@ -172,3 +172,24 @@ pub struct FlowResult {
     /// Whether to use the result.
     pub verdict: Verdict,
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn azimuth_is_compass_and_rate_is_per_year() {
+        // Check: analytic — compass azimuth (clockwise from north) of unit moves; abs diff < 1e-9
+        let az = |e: f64, n: f64| Dominant::from_components(e, n, 1.0, 1.0).azimuth_deg;
+        assert!(az(0.0, 1.0).abs() < 1e-9);
+        assert!((az(1.0, 0.0) - 90.0).abs() < 1e-9);
+        assert!((az(0.0, -1.0) - 180.0).abs() < 1e-9);
+        assert!((az(-1.0, 0.0) - 270.0).abs() < 1e-9);
+        assert_eq!(az(0.0, 0.0), 0.0);
+        let d = Dominant::from_components(7.5, 10.0, 1.0, 1.0);
+        assert!((d.distance_m - 12.5).abs() < 1e-12);
+        // Check: REFERENCES.md §7 — 12.5 m from 2019.2 to 2021.5 is 5.434783 m/yr; abs diff < 1e-6
+        assert!((d.rate_m_per_yr(2021.5 - 2019.2).unwrap() - 5.434_783).abs() < 1e-6);
+        assert!(d.rate_m_per_yr(0.0).is_none());
+    }
+}
