@@ -1,0 +1,195 @@
+//! What `flow::estimate` returns: the field, the dominant displacement and the verdict.
+
+use ndarray::Array2;
+
+/// The displacement field on the grid of the earlier survey, in metres, with its quality.
+#[derive(Debug, Clone)]
+pub struct FlowField {
+    /// East component of the displacement from the earlier to the later survey, metres.
+    pub east_m: Array2<f32>,
+    /// North component of the displacement, metres (positive north, i.e. towards row 0).
+    pub north_m: Array2<f32>,
+    /// Per-cell quality from 0 to 1 (local NCC after warping); 0 where the vector was filled in
+    /// rather than measured (flat, ramp, nodata, outlier, or below `min_quality`).
+    pub quality: Array2<f32>,
+    /// Cell width in metres the components were converted with.
+    pub cell_size_m: f64,
+}
+
+impl FlowField {
+    /// A field of zero displacement and zero quality (what an untrusted result carries).
+    pub fn zeros(rows: usize, cols: usize, cell_size_m: f64) -> Self {
+        FlowField {
+            east_m: Array2::zeros((rows, cols)),
+            north_m: Array2::zeros((rows, cols)),
+            quality: Array2::zeros((rows, cols)),
+            cell_size_m,
+        }
+    }
+}
+
+/// The displacement of the landform as a whole.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Dominant {
+    /// East component, metres.
+    pub east_m: f64,
+    /// North component, metres.
+    pub north_m: f64,
+    /// Length of the vector, metres.
+    pub distance_m: f64,
+    /// Direction of travel, compass degrees clockwise from north in [0, 360); 0 when the distance is 0.
+    pub azimuth_deg: f64,
+    /// NCC of the whole relief at the best whole-cell shift, -1 to 1 (the match quality).
+    pub ncc: f64,
+    /// Share of the landform's cells (relief more than `min_relief_m` above the base) whose vector
+    /// was measured with quality at least `min_quality`; 0 when the dense field was not used.
+    pub support: f64,
+}
+
+impl Dominant {
+    /// A dominant displacement from east and north components in metres.
+    pub fn from_components(east_m: f64, north_m: f64, ncc: f64, support: f64) -> Self {
+        let distance_m = east_m.hypot(north_m);
+        let azimuth_deg = if distance_m > 0.0 {
+            east_m.atan2(north_m).to_degrees().rem_euclid(360.0)
+        } else {
+            0.0
+        };
+        // rem_euclid can round -0.0000001 up to 360.0 exactly; keep the documented range.
+        let azimuth_deg = if azimuth_deg >= 360.0 {
+            0.0
+        } else {
+            azimuth_deg
+        };
+        Dominant {
+            east_m,
+            north_m,
+            distance_m,
+            azimuth_deg,
+            ncc,
+            support,
+        }
+    }
+    /// Migration rate in metres per year over `years` (None unless `years` > 0).
+    pub fn rate_m_per_yr(&self, years: f64) -> Option<f64> {
+        (years.is_finite() && years > 0.0).then(|| self.distance_m / years)
+    }
+}
+
+/// Whether the displacement can be trusted, and if not, why.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[serde(tag = "verdict", rename_all = "kebab-case")]
+pub enum Verdict {
+    /// The field and the dominant displacement are usable for the morph and the record.
+    Trusted,
+    /// The two surveys share too few cells with data.
+    LittleOverlap {
+        /// Share of cells with data in both, out of those with data in either.
+        share: f64,
+        /// The `min_overlap` setting.
+        required: f64,
+    },
+    /// At least one survey is too flat to match (relief standard deviation below the setting).
+    NoTexture {
+        /// Smaller of the two surveys' relief standard deviations, metres.
+        relief_std_m: f64,
+        /// The `min_relief_m` setting.
+        required_m: f64,
+    },
+    /// The best match lies at the edge of the search disc: the true displacement may be larger.
+    AtSearchLimit {
+        /// Distance of the best match, metres.
+        distance_m: f64,
+        /// The `search_radius_m` setting.
+        radius_m: f64,
+    },
+    /// The relief of the two surveys correlates too weakly at the best shift (reshaped, not moved).
+    WeakMatch {
+        /// Best whole-relief NCC found.
+        ncc: f64,
+        /// The `min_quality` setting.
+        required: f64,
+    },
+    /// The two rasters differ in shape (a bug upstream: `align` guarantees one geometry).
+    ShapeMismatch {
+        /// (rows, cols) of the earlier raster.
+        earlier: (usize, usize),
+        /// (rows, cols) of the later raster.
+        later: (usize, usize),
+    },
+}
+
+impl Verdict {
+    /// True for [`Verdict::Trusted`].
+    pub fn is_trusted(&self) -> bool {
+        matches!(self, Verdict::Trusted)
+    }
+}
+
+impl std::fmt::Display for Verdict {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match *self {
+            Verdict::Trusted => write!(f, "displacement trusted"),
+            Verdict::LittleOverlap { share, required } => write!(
+                f,
+                "the surveys overlap on {:.0}% of their cells (at least {:.0}% needed); check the survey \
+                 extents or lower flow.min_overlap",
+                share * 100.0,
+                required * 100.0
+            ),
+            Verdict::NoTexture { relief_std_m, required_m } => write!(
+                f,
+                "no texture to match: relief varies by {relief_std_m:.3} m (at least {required_m} m needed); \
+                 nothing moves that can be followed, or lower flow.min_relief_m"
+            ),
+            Verdict::AtSearchLimit { distance_m, radius_m } => write!(
+                f,
+                "best match {distance_m:.1} m away, at the edge of the {radius_m} m search; raise \
+                 flow.search_radius_m if the landform really moved that far"
+            ),
+            Verdict::WeakMatch { ncc, required } => write!(
+                f,
+                "the relief correlates only {ncc:.2} at the best shift (at least {required} needed); the \
+                 landform changed shape more than it moved"
+            ),
+            Verdict::ShapeMismatch { earlier, later } => write!(
+                f,
+                "rasters differ in shape ({}x{} vs {}x{}); align the surveys first",
+                earlier.0, earlier.1, later.0, later.1
+            ),
+        }
+    }
+}
+
+/// Everything [`estimate`](super::estimate) finds for one pair of surveys.
+#[derive(Debug, Clone)]
+pub struct FlowResult {
+    /// The dense field (zero with zero quality when the verdict is not `Trusted`).
+    pub field: FlowField,
+    /// The landform's displacement, when a correlation peak was found (also on some untrusted
+    /// verdicts, for the warning).
+    pub dominant: Option<Dominant>,
+    /// Whether to use the result.
+    pub verdict: Verdict,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn azimuth_is_compass_and_rate_is_per_year() {
+        // Check: analytic — compass azimuth (clockwise from north) of unit moves; abs diff < 1e-9
+        let az = |e: f64, n: f64| Dominant::from_components(e, n, 1.0, 1.0).azimuth_deg;
+        assert!(az(0.0, 1.0).abs() < 1e-9);
+        assert!((az(1.0, 0.0) - 90.0).abs() < 1e-9);
+        assert!((az(0.0, -1.0) - 180.0).abs() < 1e-9);
+        assert!((az(-1.0, 0.0) - 270.0).abs() < 1e-9);
+        assert_eq!(az(0.0, 0.0), 0.0);
+        let d = Dominant::from_components(7.5, 10.0, 1.0, 1.0);
+        assert!((d.distance_m - 12.5).abs() < 1e-12);
+        // Check: REFERENCES.md §7 — 12.5 m from 2019.2 to 2021.5 is 5.434783 m/yr; abs diff < 1e-6
+        assert!((d.rate_m_per_yr(2021.5 - 2019.2).unwrap() - 5.434_783).abs() < 1e-6);
+        assert!(d.rate_m_per_yr(0.0).is_none());
+    }
+}
