@@ -7,12 +7,17 @@
 use std::path::{Path, PathBuf};
 
 use crate::align::{self, AlignedStack};
+use crate::annotate::{self, FrameStatus, InsetChart, Legend, Overlay};
 use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
 use crate::change::{self, ChangeRecord};
+use crate::encode::gif;
+use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
 use crate::error::{Error, Result};
-use crate::interp::{self, Surface};
-use crate::job::{Job, Method};
-use crate::render::{Frame, Renderer};
+use crate::geotiff::{self, WriteOptions};
+use crate::interp::flow::{self, FlowResult};
+use crate::interp::{self, morph, Surface};
+use crate::job::{Job, Method, ShellSurvey};
+use crate::render::{ramp, Colouring, Frame, Renderer};
 use crate::survey;
 use crate::timeline::{self, FrameKind, FrameTime, Timeline};
 
@@ -71,6 +76,9 @@ struct Prepared {
     timeline: Timeline,
     renderer: Renderer,
     record: ChangeRecord,
+    /// Per interval: the displacement field when the morph may use it (trusted), else None.
+    fields: Vec<Option<FlowResult>>,
+    warnings: Vec<String>,
 }
 
 fn prepare(job: &Job) -> Result<Prepared> {
@@ -85,8 +93,14 @@ fn prepare(job: &Job) -> Result<Prepared> {
     let range = stack
         .elevation_range()
         .expect("align refuses all-nodata grids");
-    let renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
+    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
         .map_err(|m| Error::job(&job.path, "view", m))?;
+    renderer
+        .set_water(&job.water)
+        .map_err(|m| Error::job(&job.path, "water", m))?;
+    renderer
+        .set_shell(&job.shell)
+        .map_err(|m| Error::job(&job.path, "shell", m))?;
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
     if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
         return Err(Error::job(
@@ -102,12 +116,50 @@ fn prepare(job: &Job) -> Result<Prepared> {
             ),
         ));
     }
-    let record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    let mut warnings = record.warnings.clone();
+    record.warnings.clear();
+
+    // The displacement field of every consecutive pair: the morph needs it, and the record reports
+    // the dominant displacement as the migration of the landform.
+    let cell_m = stack.geometry().cell_x_m();
+    let mut fields = Vec::with_capacity(stack.len() - 1);
+    for i in 0..stack.len() - 1 {
+        let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
+        let result = flow::estimate(stack.z(i), stack.z(i + 1), cell_m, &job.flow);
+        let pair = record
+            .pairs
+            .iter_mut()
+            .find(|p| p.from_index == i && p.to_index == i + 1);
+        match (&result.verdict, result.dominant, pair) {
+            (v, Some(d), Some(pair)) if v.is_trusted() => pair.set_migration(d.east_m, d.north_m),
+            _ => {}
+        }
+        if result.verdict.is_trusted() {
+            fields.push(Some(result));
+        } else {
+            let fallback = if job.methods[i] == Method::Morph {
+                "frames in this interval use the linear blend instead of the morph, and "
+            } else {
+                ""
+            };
+            let w = format!(
+                "{} -> {}: no reliable displacement ({}); {fallback}no migration is reported for this pair",
+                a.id, b.id, result.verdict
+            );
+            log::warn!("{w}");
+            warnings.push(w);
+            fields.push(None);
+        }
+    }
+    record.warnings.extend(warnings.iter().cloned());
     Ok(Prepared {
         stack,
         timeline,
         renderer,
         record,
+        fields,
+        warnings,
     })
 }
 
@@ -123,6 +175,56 @@ fn in_job_file(e: Error, path: &Path) -> Error {
     }
 }
 
+/// The method an interval really uses: the morph only where its displacement field is trusted.
+fn effective_method(job: &Job, fields: &[Option<FlowResult>], interval: usize) -> Method {
+    match (job.methods.get(interval), fields.get(interval)) {
+        (Some(Method::Morph), Some(Some(_))) => Method::Morph,
+        _ => Method::Linear,
+    }
+}
+
+fn make_surface(
+    out: &mut Surface,
+    stack: &AlignedStack,
+    fields: &[Option<FlowResult>],
+    job: &Job,
+    t: &FrameTime,
+) {
+    match t.kind {
+        FrameKind::Interpolated { from, to }
+            if effective_method(job, fields, from) == Method::Morph =>
+        {
+            let field = &fields[from]
+                .as_ref()
+                .expect("checked by effective_method")
+                .field;
+            out.kind = t.kind;
+            morph::morph_into(
+                &mut out.z,
+                stack.z(from),
+                stack.z(to),
+                field,
+                t.weight as f32,
+            );
+        }
+        _ => interp::linear_into(out, stack, t),
+    }
+}
+
+/// Frame durations in hundredths of a second, rounded so the running total stays exact.
+fn delays_cs(timeline: &Timeline) -> Vec<u16> {
+    let mut out = Vec::with_capacity(timeline.frames.len());
+    let mut elapsed = 0.0;
+    let mut written: i64 = 0;
+    for f in &timeline.frames {
+        elapsed += f.duration_s * 100.0;
+        let cs = (elapsed.round() as i64 - written).clamp(1, u16::MAX as i64);
+        written += cs;
+        out.push(cs as u16);
+    }
+    out
+}
+
 fn write_outputs(
     job: &Job,
     prepared: Prepared,
@@ -136,54 +238,246 @@ fn write_outputs(
         timeline,
         mut renderer,
         record,
+        fields,
+        mut warnings,
     } = prepared;
-    let (stack, timeline, record) = (&stack, &timeline, &record);
+    let (stack, timeline) = (&stack, &timeline);
     std::fs::create_dir_all(scratch).map_err(|e| Error::io(scratch, e))?;
+    let unit = job.change.display_unit;
+    let to_unit = |m: f64| m / unit.metres();
     let mut extra = vec![ExtraFile {
         name: "job/job.yaml".into(),
         content: ExtraContent::Bytes(job.text.clone().into_bytes()),
     }];
+
+    // First pass: the peak of every frame's surface, for the labels and the inset chart.
     let mut surface = Surface::for_stack(stack);
-    let mut frame = Frame::new(job.view.width, job.view.height);
-    let n = timeline.frames.len();
-    let mut warnings = record.warnings.clone();
+    let mut peaks = Vec::with_capacity(timeline.frames.len());
     for t in &timeline.frames {
-        make_surface(
-            &mut surface,
-            stack,
-            t,
-            job.methods.get(t.from).copied().unwrap_or(Method::Linear),
-        );
+        make_surface(&mut surface, stack, &fields, job, t);
+        peaks.push(surface.peak());
+    }
+    let years: Vec<f64> = timeline
+        .frames
+        .iter()
+        .map(|t| timeline::decimal_year(t.when))
+        .collect();
+    let series: Vec<(f64, f64)> = peaks
+        .iter()
+        .zip(&years)
+        .filter_map(|(p, y)| p.map(|(z, _, _)| (*y, to_unit(z as f64))))
+        .collect();
+    let survey_points: Vec<(f64, f64)> = timeline
+        .frames
+        .iter()
+        .zip(&peaks)
+        .zip(&years)
+        .filter(|((t, _), _)| t.kind.is_measured())
+        .filter_map(|((_, p), y)| p.map(|(z, _, _)| (*y, to_unit(z as f64))))
+        .collect();
+    let (z_lo, z_hi) = stack
+        .elevation_range()
+        .expect("align refuses all-nodata grids");
+    let legend = Legend {
+        title: "Elevation".into(),
+        stops: (0..16)
+            .map(|i| {
+                let c = ramp::viridis_srgb(i as f32 / 15.0);
+                [
+                    (c[0] * 255.0).round() as u8,
+                    (c[1] * 255.0).round() as u8,
+                    (c[2] * 255.0).round() as u8,
+                ]
+            })
+            .collect(),
+        min: to_unit(z_lo as f64),
+        max: to_unit(z_hi as f64),
+        unit: unit.symbol().into(),
+    };
+
+    // Second pass: render, label, keep for the GIF, write the PNG frames.
+    let n = timeline.frames.len();
+    let mut frame = Frame::new(job.view.width, job.view.height);
+    let mut kept: Vec<Frame> = Vec::with_capacity(if job.output.gif.is_some() { n } else { 0 });
+    let mut survey_frames: Vec<(usize, Frame)> = Vec::new();
+    let mut png = if job.output.png_frames {
+        let dir = scratch.join("frames");
+        std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
+        Some((png_seq::PngSequence::create(&dir, "frame-", n, false)?, dir))
+    } else {
+        None
+    };
+    let date_of = |i: usize| stack.surveys()[i].date.to_string();
+    let mut shell = Surface::for_stack(stack);
+    for t in &timeline.frames {
+        make_surface(&mut surface, stack, &fields, job, t);
+        let shell_index = match (job.shell_survey, t.kind) {
+            (ShellSurvey::None, _) => None,
+            (ShellSurvey::First, FrameKind::Measured { survey: 0 }) => None,
+            (ShellSurvey::First, _) => Some(0),
+            (ShellSurvey::Previous, FrameKind::Interpolated { from, .. }) => Some(from),
+            (ShellSurvey::Previous, FrameKind::Measured { survey }) => survey.checked_sub(1),
+        };
+        if let Some(i) = shell_index {
+            shell_cells_into(
+                &mut shell.z,
+                stack.z(i),
+                &surface.z,
+                job.shell_min_gap_m as f32,
+            );
+        }
+        let shell = shell_index.map(|_| &shell);
         let orbit = if n > 1 {
             t.index as f64 / (n - 1) as f64
         } else {
             0.0
         };
-        let _view = renderer.render_into(&surface, orbit, &mut frame);
-        if job.output.png_frames {
-            let name = format!("frame-{:05}.png", t.index + 1);
-            let path = scratch.join(&name);
-            image::save_buffer(
-                &path,
-                &frame.rgba,
-                frame.width,
-                frame.height,
-                image::ExtendedColorType::Rgba8,
-            )
-            .map_err(|e| Error::output(&path, format!("could not write the PNG frame: {e}")))?;
-            extra.push(ExtraFile {
-                name: format!("frames/{name}"),
-                content: ExtraContent::File(path),
-            });
+        let view =
+            renderer.render_scene_into(&surface, shell, Colouring::Elevation, orbit, &mut frame);
+        let peak = peaks[t.index];
+        let peak_px = peak.and_then(|(z, r, c)| {
+            let (x, y) = stack.geometry().cell_center(r, c);
+            view.project(x, y, z as f64)
+        });
+        let method = effective_method(job, &fields, t.from);
+        let status = match t.kind {
+            FrameKind::Measured { survey } => FrameStatus::Surveyed {
+                label: stack.surveys()[survey].label.clone(),
+            },
+            FrameKind::Interpolated { from, to } => FrameStatus::Interpolated {
+                method: method.name().to_string(),
+                from_date: date_of(from),
+                to_date: date_of(to),
+            },
+        };
+        let overlay = Overlay {
+            title: job.title.clone(),
+            date_text: t.when.date().to_string(),
+            status,
+            peak_height: peak.map_or(f64::NAN, |(z, _, _)| to_unit(z as f64)),
+            peak_unit: unit.symbol().into(),
+            peak_px,
+            legend: Some(legend.clone()),
+            north_angle_rad: view.north_px().map(|(dx, dy)| dx.atan2(-dy)),
+            metres_per_px: Some(view.metres_per_px()),
+            inset: Some(InsetChart {
+                title: "Peak elevation".into(),
+                unit: unit.symbol().into(),
+                series: series.clone(),
+                survey_points: survey_points.clone(),
+                current_year: years[t.index],
+            }),
+            credit: job.credit.clone(),
+        };
+        annotate::draw_overlay(&mut frame, &overlay, &job.labels);
+        if let Some((seq, _)) = png.as_mut() {
+            let row = png_seq::IndexRow {
+                time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
+                status: if t.kind.is_measured() {
+                    RowStatus::Surveyed
+                } else {
+                    RowStatus::Interpolated
+                },
+                from_survey: stack.surveys()[t.from].id.clone(),
+                to_survey: stack.surveys()[t.to].id.clone(),
+                peak_height: overlay.peak_height,
+                peak_unit: overlay.peak_unit.clone(),
+            };
+            seq.write_frame(&frame, row)?;
+        }
+        if let FrameKind::Measured { survey } = t.kind {
+            survey_frames.push((survey, frame.clone()));
+        }
+        if job.output.gif.is_some() {
+            kept.push(frame.clone());
         }
         if let Some(cb) = &opts.progress {
             cb(t.index + 1, n);
         }
     }
-    let figures = change::figures(stack, record, &job.change);
+    if let Some((seq, dir)) = png {
+        seq.finish()?;
+        extra.extend(files_under(&dir, "frames")?);
+    }
+    if let Some(name) = &job.output.gif {
+        let path = scratch.join(name);
+        let stats = gif::write_gif(&path, &kept, &delays_cs(timeline), &job.animation, false)?;
+        log::info!(
+            "{}: {} frames, {} bytes, mean colour error {:.2}",
+            name,
+            stats.frames,
+            stats.bytes,
+            stats.mean_colour_error
+        );
+        drop(kept);
+        extra.push(ExtraFile {
+            name: format!("animation/{name}"),
+            content: ExtraContent::File(path),
+        });
+    }
+    if job.output.poster {
+        let captions: Vec<String> = survey_frames
+            .iter()
+            .map(|(i, _)| {
+                let s = &stack.surveys()[*i];
+                let peak = record.surveys[*i].max_elevation_m / unit.metres();
+                format!("{} — peak {:.2} {}", s.date, peak, unit.symbol())
+            })
+            .collect();
+        let tiles: Vec<PosterTile> = survey_frames
+            .iter()
+            .zip(&captions)
+            .map(|((_, f), c)| PosterTile {
+                frame: f,
+                caption: c,
+            })
+            .collect();
+        let path = scratch.join("poster.png");
+        let opts = PosterOptions {
+            title: if job.poster.title.is_empty() {
+                job.title.clone()
+            } else {
+                job.poster.title.clone()
+            },
+            ..job.poster.clone()
+        };
+        png_seq::write_poster(&path, &tiles, &opts, false)?;
+        extra.push(ExtraFile {
+            name: "poster.png".into(),
+            content: ExtraContent::File(path),
+        });
+    }
+    // The displacement fields as two-band rasters (east, north in metres), for the record.
+    for (i, f) in fields.iter().enumerate() {
+        if let Some(f) = f {
+            let (a, b) = (&stack.surveys()[i].id, &stack.surveys()[i + 1].id);
+            let name = format!("displacement-{a}-{b}.tif");
+            let path = scratch.join(&name);
+            let wopts = WriteOptions {
+                nodata: None,
+                overwrite: false,
+                band_descriptions: vec![
+                    "east displacement (m)".into(),
+                    "north displacement (m)".into(),
+                ],
+            };
+            geotiff::write_bands(
+                &path,
+                stack.geometry(),
+                &[&f.field.east_m, &f.field.north_m],
+                &wopts,
+            )?;
+            extra.push(ExtraFile {
+                name: format!("fields/{name}"),
+                content: ExtraContent::File(path),
+            });
+        }
+    }
+
+    let figures = change::figures(stack, &record, &job.change);
     let archive = archive::write_archive(
         folder,
-        record,
+        &record,
         &figures,
         &extra,
         &ArchiveOptions {
@@ -205,12 +499,36 @@ fn write_outputs(
     })
 }
 
-fn make_surface(out: &mut Surface, stack: &AlignedStack, t: &FrameTime, method: Method) {
-    match (t.kind, method) {
-        (FrameKind::Interpolated { .. }, Method::Morph)
-        | (_, Method::Linear)
-        | (FrameKind::Measured { .. }, _) => interp::linear_into(out, stack, t),
-    }
+/// Keeps the shell's cells that stand at least `min_gap_m` above the surface; the rest become
+/// nodata, so the shell shows where sand used to be and never flickers against the surface.
+fn shell_cells_into(
+    out: &mut ndarray::Array2<f32>,
+    shell: &ndarray::Array2<f32>,
+    surface: &ndarray::Array2<f32>,
+    min_gap_m: f32,
+) {
+    ndarray::Zip::from(out)
+        .and(shell)
+        .and(surface)
+        .for_each(|o, &s, &z| {
+            *o = if s - z >= min_gap_m { s } else { f32::NAN };
+        });
+}
+
+/// Every file under `dir`, named `prefix/<file>` for the archive, sorted by name.
+fn files_under(dir: &Path, prefix: &str) -> Result<Vec<ExtraFile>> {
+    let mut names: Vec<String> = std::fs::read_dir(dir)
+        .map_err(|e| Error::io(dir, e))?
+        .filter_map(|e| e.ok().map(|e| e.file_name().to_string_lossy().into_owned()))
+        .collect();
+    names.sort();
+    Ok(names
+        .into_iter()
+        .map(|n| ExtraFile {
+            name: format!("{prefix}/{n}"),
+            content: ExtraContent::File(dir.join(n)),
+        })
+        .collect())
 }
 
 /// Refuses to touch an existing folder unless overwriting was asked for.

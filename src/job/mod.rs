@@ -11,9 +11,13 @@ use std::path::{Path, PathBuf};
 use chrono::NaiveDate;
 
 use crate::align::AreaOfInterest;
+use crate::annotate::LabelOptions;
 use crate::change::ChangeOptions;
+use crate::encode::gif::GifOptions;
+use crate::encode::png_seq::PosterOptions;
 use crate::error::{Error, Result};
-use crate::render::{LightOptions, ViewOptions};
+use crate::interp::flow::FlowOptions;
+use crate::render::{LightOptions, ShellOptions, ViewOptions, WaterOptions};
 use crate::timeline::FramePlan;
 
 /// The version of the job format this program reads (`format_version` in the file).
@@ -36,6 +40,17 @@ impl Method {
             Method::Morph => "morph",
         }
     }
+}
+
+/// Which survey is drawn as a translucent shell over each frame.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ShellSurvey {
+    /// No shell.
+    None,
+    /// The first survey, on every frame after it.
+    First,
+    /// The survey before the frame (the earlier end of its interval).
+    Previous,
 }
 
 /// One survey as the job lists it (the grid is not read yet).
@@ -62,6 +77,8 @@ pub struct OutputSpec {
     pub gif: Option<String>,
     /// Whether to write the numbered PNG frames.
     pub png_frames: bool,
+    /// Whether to write the poster of the surveys side by side.
+    pub poster: bool,
     /// Whether an existing output folder may be replaced.
     pub overwrite: bool,
 }
@@ -91,6 +108,25 @@ pub struct Job {
     pub view: ViewOptions,
     /// Sun and shading.
     pub sun: LightOptions,
+    /// Water plane.
+    pub water: WaterOptions,
+    /// Which surface to draw as a translucent shell, if any.
+    pub shell_survey: ShellSurvey,
+    /// How the shell looks.
+    pub shell: ShellOptions,
+    /// The shell is drawn only where it stands at least this far above the frame's surface, in
+    /// metres (where the two nearly agree, drawing both would only flicker).
+    pub shell_min_gap_m: f64,
+    /// Displacement field settings (used by the morph and the migration figures).
+    pub flow: FlowOptions,
+    /// Which labels to draw.
+    pub labels: LabelOptions,
+    /// Credit line (agency, survey source), if any.
+    pub credit: Option<String>,
+    /// GIF palette, dithering and looping.
+    pub animation: GifOptions,
+    /// Poster layout.
+    pub poster: PosterOptions,
     /// Change record settings.
     pub change: ChangeOptions,
     /// Outputs.

@@ -3,8 +3,12 @@
 
 use serde::Deserialize;
 
+use crate::annotate::LabelOptions;
 use crate::change::ChangeOptions;
-use crate::render::{LightOptions, ViewOptions};
+use crate::encode::gif::GifOptions;
+use crate::encode::png_seq::PosterOptions;
+use crate::interp::flow::FlowOptions;
+use crate::render::{LightOptions, ShellOptions, ViewOptions, WaterOptions};
 
 /// The whole job file as written.
 #[derive(Debug, Deserialize)]
@@ -23,6 +27,20 @@ pub(super) struct JobFile {
     pub view: ViewOptions,
     #[serde(default)]
     pub sun: LightOptions,
+    #[serde(default)]
+    pub water: WaterOptions,
+    #[serde(default)]
+    pub shell: ShellEntry,
+    #[serde(default)]
+    pub flow: FlowOptions,
+    #[serde(default)]
+    pub labels: LabelOptions,
+    #[serde(default)]
+    pub credit: Option<String>,
+    #[serde(default)]
+    pub animation: GifOptions,
+    #[serde(default)]
+    pub poster: PosterOptions,
     #[serde(default)]
     pub change: ChangeOptions,
     pub output: OutputEntry,
@@ -78,6 +96,29 @@ pub(super) struct InBetweenEntry {
     pub per_interval: Option<Vec<String>>,
 }
 
+/// The translucent shell: which surface, and how it looks.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub(super) struct ShellEntry {
+    /// `none`, `first` (the first survey) or `previous` (the survey before the frame).
+    pub survey: String,
+    pub rgb: [u8; 3],
+    pub opacity: f64,
+    pub min_gap_m: f64,
+}
+
+impl Default for ShellEntry {
+    fn default() -> Self {
+        let d = ShellOptions::default();
+        ShellEntry {
+            survey: "none".into(),
+            rgb: d.rgb,
+            opacity: d.opacity,
+            min_gap_m: 0.3,
+        }
+    }
+}
+
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub(super) struct OutputEntry {
@@ -86,6 +127,8 @@ pub(super) struct OutputEntry {
     pub gif: Option<String>,
     #[serde(default = "default_true")]
     pub png_frames: bool,
+    #[serde(default = "default_true")]
+    pub poster: bool,
     #[serde(default)]
     pub overwrite: bool,
 }

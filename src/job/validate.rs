@@ -5,9 +5,10 @@ use std::path::Path;
 use chrono::{Datelike, NaiveDate};
 
 use super::schema::{JobFile, OutputEntry};
-use super::{Job, Method, OutputSpec, SurveySpec, FORMAT_VERSION};
+use super::{Job, Method, OutputSpec, ShellSurvey, SurveySpec, FORMAT_VERSION};
 use crate::align::AreaOfInterest;
 use crate::error::{Error, Result};
+use crate::render::ShellOptions;
 use crate::timeline::FramePlan;
 
 /// Most frames a job may ask for (about 14 minutes at 12 fps): a guard against typos such as
@@ -289,6 +290,33 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         ));
     }
 
+    let shell_survey = match f.shell.survey.as_str() {
+        "none" => ShellSurvey::None,
+        "first" => ShellSurvey::First,
+        "previous" => ShellSurvey::Previous,
+        other => {
+            return Err(bad(
+                "shell.survey",
+                format!("\"{other}\" is not a choice; use `none`, `first` or `previous`"),
+            ));
+        }
+    };
+    if !(f.shell.min_gap_m >= 0.0 && f.shell.min_gap_m < 100.0) {
+        return Err(bad(
+            "shell.min_gap_m",
+            format!(
+                "{} m is out of range; use 0 to 100 m, e.g. 0.3",
+                f.shell.min_gap_m
+            ),
+        ));
+    }
+    f.flow.validate().map_err(|m| bad("flow", m))?;
+    if !(1..=256).contains(&f.animation.colours) {
+        return Err(bad(
+            "animation.colours",
+            format!("{} is out of range; use 2 to 256", f.animation.colours),
+        ));
+    }
     let output = resolve_output(path, here, &f.output)?;
     Ok(Job {
         path: path.to_path_buf(),
@@ -302,6 +330,18 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         methods,
         view: f.view,
         sun: f.sun,
+        water: f.water,
+        shell_survey,
+        shell: ShellOptions {
+            rgb: f.shell.rgb,
+            opacity: f.shell.opacity,
+        },
+        shell_min_gap_m: f.shell.min_gap_m,
+        flow: f.flow,
+        labels: f.labels,
+        credit: f.credit,
+        animation: f.animation,
+        poster: f.poster,
         change: f.change,
         output,
     })
@@ -332,6 +372,7 @@ fn resolve_output(path: &Path, here: &Path, o: &OutputEntry) -> Result<OutputSpe
         folder: here.join(&o.folder),
         gif: o.gif.clone(),
         png_frames: o.png_frames,
+        poster: o.poster,
         overwrite: o.overwrite,
     })
 }
