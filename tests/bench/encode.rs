@@ -7,7 +7,7 @@
 use std::time::Instant;
 
 use dunereel::annotate::{draw_overlay, FrameStatus, LabelOptions, Overlay};
-use dunereel::encode::gif::{GifOptions, GifWriter};
+use dunereel::encode::gif::{write_gif, Dither, GifOptions, GifWriter};
 use dunereel::encode::quantize::PaletteBuilder;
 use dunereel::render::Frame;
 
@@ -138,7 +138,7 @@ fn main() {
         let mut mapper = dunereel::encode::quantize::Mapper::new(&palette);
         let mut idx = vec![0u8; (w * h) as usize];
         for f in &frames[..3] {
-            mapper.map_frame(&f.rgba, w as usize, 12.0, &mut idx);
+            mapper.map_frame(&f.rgba, w as usize, 8.0, &mut idx);
         }
         return;
     }
@@ -149,7 +149,7 @@ fn main() {
     let mut t_map_plain = Vec::new();
     for _ in 0..runs {
         let t = CpuClock::now();
-        mapper.map_frame(&frames[1].rgba, w as usize, 12.0, &mut idx);
+        mapper.map_frame(&frames[1].rgba, w as usize, 8.0, &mut idx);
         t_map.push(t.ms());
         let t = CpuClock::now();
         mapper.map_frame(&frames[1].rgba, w as usize, 0.0, &mut idx);
@@ -239,4 +239,46 @@ fn main() {
     );
     println!("  difference frame, labels only: {:7.2} ms", labels);
     println!("  mean bytes per frame          : {:7.0}", median(bytes));
+
+    // File size per frame at 960x540 (the orbit size target: 120 frames <= 12 MB, 100 kB a frame),
+    // for a few option sets. Sizes, not times: one run each.
+    let small: Vec<Frame> = (0..6)
+        .map(|k| terrain(960, 540, k as f32 * 6.0, "2027-05-01"))
+        .collect();
+    println!("size at 960x540, 6 orbit-like frames, bytes per frame after the first:");
+    for (name, opts) in [
+        ("256 colours, ordered dither 12", GifOptions::default()),
+        (
+            "256 colours, ordered dither 6",
+            GifOptions {
+                dither: Dither::Ordered { spread: 6.0 },
+                ..Default::default()
+            },
+        ),
+        (
+            "256 colours, no dither",
+            GifOptions {
+                dither: Dither::None,
+                ..Default::default()
+            },
+        ),
+        (
+            "128 colours, no dither",
+            GifOptions {
+                colours: 128,
+                dither: Dither::None,
+                ..Default::default()
+            },
+        ),
+    ] {
+        let path = dir.path().join("size.gif");
+        let one = write_gif(&path, &small[..1], &[4], &opts, true).expect("write");
+        let all = write_gif(&path, &small, &[4; 6], &opts, true).expect("write");
+        println!(
+            "  {name:32}: first {:7} B, then {:7.0} B/frame, mean error {:.2} levels",
+            one.bytes,
+            (all.bytes - one.bytes) as f64 / 5.0,
+            all.mean_colour_error
+        );
+    }
 }
