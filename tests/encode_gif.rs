@@ -193,7 +193,14 @@ fn structure_decoders_and_palette_agree() {
     let mut err = 0.0;
     for (k, f) in frames.iter().enumerate() {
         let mut out = vec![0u8; 96 * 64];
-        err += mapper.map_frame(&f.rgba, 96, 12.0, &mut out);
+        let GifOptions {
+            dither: Dither::Ordered { spread },
+            ..
+        } = opts
+        else {
+            unreachable!()
+        };
+        err += mapper.map_frame(&f.rgba, 96, spread, &mut out);
         assert_eq!(out, idx[k], "frame {k}: indices differ from the mapper's");
     }
     // Reported error matches the decoded frames, and is bounded.
@@ -214,7 +221,7 @@ fn structure_decoders_and_palette_agree() {
         stats.mean_colour_error
     );
     assert!((err / n - stats.mean_colour_error).abs() < 1e-3);
-    // Check: common practice, no source — a smooth field in 256 colours plus a ±6-level Bayer
+    // Check: common practice, no source — a smooth field in 256 colours plus a ±4-level Bayer
     // offset stays within 8 RGB levels on average.
     assert!(stats.mean_colour_error < 8.0, "{}", stats.mean_colour_error);
 }

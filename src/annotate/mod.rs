@@ -2,13 +2,14 @@
 //! marker, colour legend, north arrow, scale bar, inset chart and credit.
 //!
 //! `text` draws strings with the embedded font, `draw` draws shapes, `fit` sets text into a box,
-//! and `layout` places everything on a frame ([`draw_overlay`]).
+//! `overlay` holds what a frame says, `layout` places it and `paint` draws it ([`draw_overlay`]).
 pub mod draw;
 pub mod fit;
 pub mod layout;
+pub mod overlay;
+pub mod paint;
 pub mod text;
 
-pub use layout::{
-    draw_overlay, plan, FrameStatus, InsetChart, LabelOptions, Legend, Optional, Overlay, Plan,
-    DROP_ORDER,
-};
+pub use layout::{plan, Optional, Plan, Rect, DROP_ORDER};
+pub use overlay::{FrameStatus, InsetChart, LabelOptions, Legend, Overlay};
+pub use paint::draw_overlay;

@@ -41,7 +41,8 @@ pub enum Dither {
 pub struct GifOptions {
     /// Number of colours in the global palette, 2–256. Default: 256.
     pub colours: u16,
-    /// Dithering. Default: ordered with a spread of 12 levels.
+    /// Dithering. Default: ordered with a spread of 8 levels (a compromise: wider spreads hide more
+    /// banding but cost LZW compression; see the size table of `cargo bench --bench encode`).
     pub dither: Dither,
     /// Times the animation repeats after the first play, as written in the NETSCAPE2.0 block; 0 loops
     /// forever. Default: 0.
@@ -56,7 +57,7 @@ impl Default for GifOptions {
     fn default() -> Self {
         GifOptions {
             colours: 256,
-            dither: Dither::Ordered { spread: 12.0 },
+            dither: Dither::Ordered { spread: 8.0 },
             loop_count: 0,
             difference_frames: true,
             palette_sample_step: 1,

@@ -1,4 +1,5 @@
-//! Frames -> files: animated GIF and numbered PNG sequence, each written atomically.
+//! Frames -> files: animated GIF, numbered PNG sequence with an index CSV, and a poster; each file
+//! written atomically.
 //!
 //! - `atomic`: write under a temporary name, rename when complete, never replace unless asked.
 //! - `quantize`: one palette for a whole animation (median cut) and nearest-colour mapping with
@@ -9,3 +10,10 @@ pub mod atomic;
 pub mod gif;
 pub mod png_seq;
 pub mod quantize;
+
+pub use self::gif::{delays_cs, write_gif, Dither, GifOptions, GifStats, GifWriter};
+pub use atomic::{write_atomic, AtomicFile};
+pub use png_seq::{
+    write_png, write_poster, IndexRow, PngSequence, PosterOptions, PosterTile, RowStatus,
+};
+pub use quantize::{Palette, PaletteBuilder};

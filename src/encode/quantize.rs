@@ -27,13 +27,29 @@ pub fn bayer_threshold(x: usize, y: usize) -> f32 {
     (BAYER4[y & 3][x & 3] as f32 + 0.5) / 16.0
 }
 
+/// Bits per channel of the palette histogram cells.
 const BITS: u32 = 6;
 const CELLS: usize = 1 << (3 * BITS);
-const SHIFT: u32 = 8 - BITS;
+/// Bits per channel of the mapper's lookup cells (finer cells: shorter candidate lists).
+const MBITS: u32 = 7;
+const MCELLS: usize = 1 << (3 * MBITS);
+const MSHIFT: u32 = 8 - MBITS;
+
+/// Index of the cell of `B` bits per channel holding (r, g, b).
+#[inline]
+fn cell_index<const B: u32>(r: u8, g: u8, b: u8) -> usize {
+    let s = 8 - B;
+    ((r as usize >> s) << (2 * B)) | ((g as usize >> s) << B) | (b as usize >> s)
+}
 
 #[inline]
 fn cell_of(r: u8, g: u8, b: u8) -> usize {
-    ((r as usize >> SHIFT) << (2 * BITS)) | ((g as usize >> SHIFT) << BITS) | (b as usize >> SHIFT)
+    cell_index::<BITS>(r, g, b)
+}
+
+#[inline]
+fn mcell_of(r: u8, g: u8, b: u8) -> usize {
+    cell_index::<MBITS>(r, g, b)
 }
 
 /// A palette of 1 to 256 RGB colours.
@@ -291,18 +307,18 @@ impl Mapper {
                 .iter()
                 .map(|c| [c[0] as i32, c[1] as i32, c[2] as i32])
                 .collect(),
-            info: vec![0; CELLS],
+            info: vec![0; MCELLS],
             candidates: Vec::new(),
         }
     }
 
     fn fill_cell(&mut self, cell: usize) -> u32 {
         let lo = [
-            ((cell >> (2 * BITS)) << SHIFT) as i32,
-            (((cell >> BITS) & ((1 << BITS) - 1)) << SHIFT) as i32,
-            ((cell & ((1 << BITS) - 1)) << SHIFT) as i32,
+            ((cell >> (2 * MBITS)) << MSHIFT) as i32,
+            (((cell >> MBITS) & ((1 << MBITS) - 1)) << MSHIFT) as i32,
+            ((cell & ((1 << MBITS) - 1)) << MSHIFT) as i32,
         ];
-        let hi = lo.map(|v| v + (1 << SHIFT) - 1);
+        let hi = lo.map(|v| v + (1 << MSHIFT) - 1);
         let mut best_far = i32::MAX;
         let mut near = [0i32; 256];
         for (i, p) in self.palette.iter().enumerate() {
@@ -348,7 +364,7 @@ impl Mapper {
         let mut n = 0u64;
         for p in rgba.chunks_exact(4) {
             self.nearest(p[0], p[1], p[2]);
-            let info = self.info[cell_of(p[0], p[1], p[2])];
+            let info = self.info[mcell_of(p[0], p[1], p[2])];
             n += if info & 1 == 1 {
                 1
             } else if info == BRUTE {
@@ -363,7 +379,7 @@ impl Mapper {
     /// Index of the nearest palette colour to (r, g, b).
     #[inline]
     pub fn nearest(&mut self, r: u8, g: u8, b: u8) -> u8 {
-        let cell = cell_of(r, g, b);
+        let cell = mcell_of(r, g, b);
         let mut info = self.info[cell];
         if info == 0 {
             info = self.fill_cell(cell);
@@ -413,11 +429,12 @@ impl Mapper {
             0.0
         };
         let sqrt_table = sqrt_table();
-        // Offsets per Bayer cell, in whole colour levels, computed once.
-        let mut offs = [[0i32; 4]; 4];
-        for (y, row) in offs.iter_mut().enumerate() {
-            for (x, o) in row.iter_mut().enumerate() {
-                *o = ((bayer_threshold(x, y) - 0.5) * spread).round() as i32;
+        // Dithered channel values per Bayer cell: a table lookup instead of an add and a clamp.
+        let mut dith = vec![[0u8; 256]; 16];
+        for (k, t) in dith.iter_mut().enumerate() {
+            let off = ((bayer_threshold(k & 3, k >> 2) - 0.5) * spread).round() as i32;
+            for (v, o) in t.iter_mut().enumerate() {
+                *o = (v as i32 + off).clamp(0, 255) as u8;
             }
         }
         for (y, (src_row, dst_row)) in rgba
@@ -425,21 +442,29 @@ impl Mapper {
             .zip(out.chunks_exact_mut(width))
             .enumerate()
         {
-            let orow = &offs[y & 3];
+            let tables = &dith[(y & 3) * 4..(y & 3) * 4 + 4];
             let mut row_err = 0u64;
+            // One remembered colour per Bayer column: flat areas (background, sky) repeat it, and
+            // then index and error are known without a lookup.
+            let mut memo = [(u32::MAX, 0u8, 0u32); 4];
             for (x, (p, o)) in src_row.chunks_exact(4).zip(dst_row.iter_mut()).enumerate() {
-                let off = orow[x & 3];
-                let d = |v: u8| (v as i32 + off).clamp(0, 255) as u8;
-                let idx = self.nearest(d(p[0]), d(p[1]), d(p[2]));
-                let q = self.palette[idx as usize];
-                let (dr, dg, db) = (q[0] - p[0] as i32, q[1] - p[1] as i32, q[2] - p[2] as i32);
-                let d2 = (dr * dr + dg * dg + db * db) as usize;
-                // Integer sums from a table keep the float add (and its latency) out of the loop.
-                row_err += match sqrt_table.get(d2) {
-                    Some(&v) => v as u64,
-                    None => ((d2 as f64).sqrt() * SQRT_SCALE) as u64,
-                };
-                *o = idx;
+                let key = u32::from_le_bytes([p[0], p[1], p[2], 0]);
+                let m = &mut memo[x & 3];
+                if m.0 != key {
+                    let t = &tables[x & 3];
+                    let idx = self.nearest(t[p[0] as usize], t[p[1] as usize], t[p[2] as usize]);
+                    let q = self.palette[idx as usize];
+                    let (dr, dg, db) = (q[0] - p[0] as i32, q[1] - p[1] as i32, q[2] - p[2] as i32);
+                    let d2 = (dr * dr + dg * dg + db * db) as usize;
+                    // Integer sums from a table keep float adds (and their latency) out of the loop.
+                    let e = match sqrt_table.get(d2) {
+                        Some(&v) => v,
+                        None => ((d2 as f64).sqrt() * SQRT_SCALE) as u32,
+                    };
+                    *m = (key, idx, e);
+                }
+                row_err += m.2 as u64;
+                *o = m.1;
             }
             err_sum += row_err as f64 / SQRT_SCALE;
         }

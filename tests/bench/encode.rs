@@ -1,13 +1,16 @@
 //! Bench: encoding 1280x720 frames into the animated GIF on one core (target ≤ 15 ms a frame).
 //!
-//! Reports medians of several runs for: adding a frame to the palette histogram; a whole first
-//! frame; a difference frame where every pixel moved (an orbiting camera); a difference frame where
-//! only the labels changed (a fixed camera on a still survey). Run with `cargo bench --bench encode`.
+//! Reports medians of several runs (thread CPU time, so other work on the machine matters less) for:
+//! adding a frame to the palette histogram; mapping a frame to the palette; the gif crate's LZW
+//! alone; a whole first frame; a difference frame where every pixel moved (an orbiting camera); a
+//! difference frame where only the labels changed (a fixed camera on a still survey); and a table
+//! of file sizes per frame at 960x540 for a few option sets. Run with `cargo bench --bench encode`
+//! (`-- --map-only` runs only the mapping, for an instruction-counting profiler).
 
 use std::time::Instant;
 
 use dunereel::annotate::{draw_overlay, FrameStatus, LabelOptions, Overlay};
-use dunereel::encode::gif::{GifOptions, GifWriter};
+use dunereel::encode::gif::{write_gif, Dither, GifOptions, GifWriter};
 use dunereel::encode::quantize::PaletteBuilder;
 use dunereel::render::Frame;
 
@@ -44,28 +47,49 @@ fn terrain(w: u32, h: u32, shift_px: f32, date: &str) -> Frame {
     f
 }
 
-/// A stopwatch of this thread's time on a CPU (Linux `/proc/thread-self/schedstat`, ns), so the
-/// figures stay meaningful while other work shares the machine; falls back to wall time elsewhere.
+/// A stopwatch of this thread's CPU time (POSIX `clock_gettime(CLOCK_THREAD_CPUTIME_ID)`, ns
+/// resolution), so the figures stay meaningful while other work shares the machine.
 struct CpuClock {
+    start_ns: Option<u64>,
     wall: Instant,
-    cpu_ns: Option<u64>,
 }
 
+#[repr(C)]
+struct Timespec {
+    tv_sec: i64,
+    tv_nsec: i64,
+}
+
+extern "C" {
+    fn clock_gettime(clock: i32, tp: *mut Timespec) -> i32;
+}
+
+/// Linux value of CLOCK_THREAD_CPUTIME_ID.
+const CLOCK_THREAD_CPUTIME_ID: i32 = 3;
+
 fn thread_cpu_ns() -> Option<u64> {
-    let s = std::fs::read_to_string("/proc/thread-self/schedstat").ok()?;
-    s.split_whitespace().next()?.parse().ok()
+    if !cfg!(all(target_os = "linux", target_pointer_width = "64")) {
+        return None;
+    }
+    let mut ts = Timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    // SAFETY: `ts` is a valid, writable timespec with the 64-bit Linux layout (checked above).
+    let rc = unsafe { clock_gettime(CLOCK_THREAD_CPUTIME_ID, &mut ts) };
+    (rc == 0).then(|| ts.tv_sec as u64 * 1_000_000_000 + ts.tv_nsec as u64)
 }
 
 impl CpuClock {
     fn now() -> Self {
         CpuClock {
+            start_ns: thread_cpu_ns(),
             wall: Instant::now(),
-            cpu_ns: thread_cpu_ns(),
         }
     }
     /// Milliseconds on the CPU since `now()` (wall time if the CPU clock is unavailable).
     fn ms(&self) -> f64 {
-        match (self.cpu_ns, thread_cpu_ns()) {
+        match (self.start_ns, thread_cpu_ns()) {
             (Some(a), Some(b)) => (b - a) as f64 / 1e6,
             _ => self.wall.elapsed().as_secs_f64() * 1e3,
         }
@@ -92,7 +116,11 @@ fn main() {
         .collect();
     let labels_only = terrain(w, h, 0.0, "2027-09-30");
     let dir = tempfile::tempdir().expect("temp dir");
-    let runs = 21;
+    let runs = if std::env::args().any(|a| a == "--map-only") {
+        1
+    } else {
+        21
+    };
 
     let mut t_hist = Vec::new();
     let mut builder = PaletteBuilder::new();
@@ -108,6 +136,15 @@ fn main() {
     let palette = builder.build(256);
     let t_build = t.ms();
 
+    if std::env::args().any(|a| a == "--map-only") {
+        // For instruction counting under a profiler: just the palette mapping, three times.
+        let mut mapper = dunereel::encode::quantize::Mapper::new(&palette);
+        let mut idx = vec![0u8; (w * h) as usize];
+        for f in &frames[..3] {
+            mapper.map_frame(&f.rgba, w as usize, 8.0, &mut idx);
+        }
+        return;
+    }
     let opts = GifOptions::default();
     let mut mapper = dunereel::encode::quantize::Mapper::new(&palette);
     let mut idx = vec![0u8; (w * h) as usize];
@@ -115,7 +152,7 @@ fn main() {
     let mut t_map_plain = Vec::new();
     for _ in 0..runs {
         let t = CpuClock::now();
-        mapper.map_frame(&frames[1].rgba, w as usize, 12.0, &mut idx);
+        mapper.map_frame(&frames[1].rgba, w as usize, 8.0, &mut idx);
         t_map.push(t.ms());
         let t = CpuClock::now();
         mapper.map_frame(&frames[1].rgba, w as usize, 0.0, &mut idx);
@@ -205,4 +242,49 @@ fn main() {
     );
     println!("  difference frame, labels only: {:7.2} ms", labels);
     println!("  mean bytes per frame          : {:7.0}", median(bytes));
+
+    // File size per frame at 960x540 (the orbit size target: 120 frames <= 12 MB, 100 kB a frame),
+    // for a few option sets. Sizes, not times: one run each.
+    let small: Vec<Frame> = (0..6)
+        .map(|k| terrain(960, 540, k as f32 * 6.0, "2027-05-01"))
+        .collect();
+    println!("size at 960x540, 6 orbit-like frames, bytes per frame after the first:");
+    for (name, opts) in [
+        (
+            "256 colours, ordered dither 8 (default)",
+            GifOptions::default(),
+        ),
+        (
+            "256 colours, ordered dither 6",
+            GifOptions {
+                dither: Dither::Ordered { spread: 6.0 },
+                ..Default::default()
+            },
+        ),
+        (
+            "256 colours, no dither",
+            GifOptions {
+                dither: Dither::None,
+                ..Default::default()
+            },
+        ),
+        (
+            "128 colours, no dither",
+            GifOptions {
+                colours: 128,
+                dither: Dither::None,
+                ..Default::default()
+            },
+        ),
+    ] {
+        let path = dir.path().join("size.gif");
+        let one = write_gif(&path, &small[..1], &[4], &opts, true).expect("write");
+        let all = write_gif(&path, &small, &[4; 6], &opts, true).expect("write");
+        println!(
+            "  {name:40}: first {:7} B, then {:7.0} B/frame, mean error {:.2} levels",
+            one.bytes,
+            (all.bytes - one.bytes) as f64 / 5.0,
+            all.mean_colour_error
+        );
+    }
 }
