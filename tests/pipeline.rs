@@ -22,10 +22,21 @@ fn small_job_writes_a_verifiable_archive() {
         .unwrap()
         .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
         .collect();
-    assert_eq!(frames.iter().filter(|n| n.ends_with(".png")).count(), 10, "{frames:?}");
+    assert_eq!(
+        frames.iter().filter(|n| n.ends_with(".png")).count(),
+        10,
+        "{frames:?}"
+    );
     let index = std::fs::read_to_string(out.join("data/frames/index.csv")).unwrap();
     assert_eq!(index.lines().count(), 11);
-    assert_eq!(index.lines().filter(|l| l.contains(",interpolated,")).count(), 7, "{index}");
+    assert_eq!(
+        index
+            .lines()
+            .filter(|l| l.contains(",interpolated,"))
+            .count(),
+        7,
+        "{index}"
+    );
     assert!(out.join("data/animation/animation.gif").is_file());
     assert!(out.join("data/poster.png").is_file());
     // The dune moves 6 m/yr east: the record reports it from the displacement field.
@@ -35,7 +46,10 @@ fn small_job_writes_a_verifiable_archive() {
     let east = first["migration_east_m"].as_f64().unwrap();
     let north = first["migration_north_m"].as_f64().unwrap();
     // Check: analytic — fixture dune translated by exactly 6.0 m east, 0 north; within 0.1 cell
-    assert!((east - 6.0).abs() < 0.1 && north.abs() < 0.1, "{east} {north}");
+    assert!(
+        (east - 6.0).abs() < 0.1 && north.abs() < 0.1,
+        "{east} {north}"
+    );
     // The survey without a stated uncertainty is flagged in the record.
     assert!(
         report.warnings.iter().any(|w| w.contains("2033-03-01")),

@@ -119,7 +119,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
                 ));
             }
         }
-        let grid = here.join(&s.grid);
+        let grid = tidy(&here.join(&s.grid));
         if !grid.is_file() {
             return Err(bad(
                 &key("grid"),
@@ -347,6 +347,25 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
     })
 }
 
+/// Removes `.` and `name/..` pairs without touching the file system, so records show
+/// `/data/demo-data/a.tif` rather than `/data/jobs/../demo-data/a.tif`.
+fn tidy(p: &Path) -> std::path::PathBuf {
+    use std::path::Component;
+    let mut out = std::path::PathBuf::new();
+    for c in p.components() {
+        match c {
+            Component::CurDir => {}
+            Component::ParentDir
+                if matches!(out.components().next_back(), Some(Component::Normal(_))) =>
+            {
+                out.pop();
+            }
+            other => out.push(other),
+        }
+    }
+    out
+}
+
 fn resolve_output(path: &Path, here: &Path, o: &OutputEntry) -> Result<OutputSpec> {
     if o.folder.trim().is_empty() {
         return Err(Error::job(
@@ -369,7 +388,7 @@ fn resolve_output(path: &Path, here: &Path, o: &OutputEntry) -> Result<OutputSpe
         }
     }
     Ok(OutputSpec {
-        folder: here.join(&o.folder),
+        folder: tidy(&here.join(&o.folder)),
         gif: o.gif.clone(),
         png_frames: o.png_frames,
         poster: o.poster,
@@ -409,6 +428,15 @@ mod tests {
         parse(&d.path().join("job.yaml"), text.into())
             .unwrap_err()
             .to_string()
+    }
+
+    #[test]
+    fn paths_are_tidied() {
+        assert_eq!(
+            tidy(Path::new("/a/jobs/../data/./x.tif")),
+            Path::new("/a/data/x.tif")
+        );
+        assert_eq!(tidy(Path::new("../x")), Path::new("../x"));
     }
 
     #[test]
