@@ -311,6 +311,12 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         ));
     }
     f.flow.validate().map_err(|m| bad("flow", m))?;
+    if !f.labels.status {
+        return Err(bad(
+            "labels.status",
+            "the measured/interpolated mark can't be turned off: frames between surveys must say they are not measurements; remove this key".into(),
+        ));
+    }
     if !(1..=256).contains(&f.animation.colours) {
         return Err(bad(
             "animation.colours",
