@@ -118,3 +118,58 @@ fn same_job_gives_identical_frames_and_tables() {
         |p: &std::path::Path| std::fs::read_to_string(p.join("manifest-sha256.txt")).unwrap();
     assert_eq!(manifest(&a), manifest(&b));
 }
+
+#[test]
+fn one_thread_and_two_threads_give_identical_outputs() {
+    let d = tempfile::tempdir().unwrap();
+    let path = common::moving_dune_job(
+        d.path(),
+        "in_between: { method: morph }\nsun: { shadows: true }\n",
+    );
+    let job = job::load(&path).unwrap();
+    let run_in = |threads: usize, name: &str| {
+        let out = d.path().join(name);
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| {
+            run_job(
+                &job,
+                &RunOptions {
+                    output_folder: Some(out.clone()),
+                    ..Default::default()
+                },
+            )
+        })
+        .unwrap();
+        std::fs::read_to_string(out.join("manifest-sha256.txt")).unwrap()
+    };
+    let one = run_in(1, "one");
+    let two = run_in(2, "two");
+    assert!(one.contains("data/animation/animation.gif"));
+    assert_eq!(one, two);
+}
+
+#[test]
+fn morph_job_is_trusted_and_indexes_every_frame() {
+    let d = tempfile::tempdir().unwrap();
+    let path = common::moving_dune_job(d.path(), "in_between: { method: morph }\n");
+    let job = job::load(&path).unwrap();
+    let report = run_job(&job, &RunOptions::default()).unwrap();
+    assert!(
+        report
+            .warnings
+            .iter()
+            .all(|w| !w.contains("no reliable displacement")),
+        "{:?}",
+        report.warnings
+    );
+    let index = std::fs::read_to_string(d.path().join("out/data/frames/index.csv")).unwrap();
+    let interpolated = index
+        .lines()
+        .filter(|l| l.contains(",interpolated,"))
+        .count();
+    let surveyed = index.lines().filter(|l| l.contains(",surveyed,")).count();
+    assert_eq!((surveyed, interpolated), (3, 7), "{index}");
+}

@@ -24,7 +24,7 @@ use crate::render::Frame;
 
 /// Dithering applied when mapping frames to the palette.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Deserialize, serde::Serialize)]
-#[serde(rename_all = "snake_case", deny_unknown_fields)]
+#[serde(rename_all = "snake_case", tag = "kind", deny_unknown_fields)]
 pub enum Dither {
     /// Nearest colour only (bands on smooth ramps, smallest files).
     None,

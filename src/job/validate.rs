@@ -437,6 +437,27 @@ mod tests {
     }
 
     #[test]
+    fn section_options_parse() {
+        let d = job_dir();
+        let text = format!(
+            "{MINIMAL}animation: {{ dither: {{ kind: ordered, spread: 4 }}, colours: 64 }}\nshell: {{ survey: previous }}\nwater: {{ level_m: 1.5 }}\nflow: {{ search_radius_m: 30 }}\nlabels: {{ inset_chart: false }}\nchange: {{ display_unit: us-survey-foot }}\n"
+        );
+        let job = parse(&d.path().join("job.yaml"), text).unwrap();
+        assert_eq!(job.animation.colours, 64);
+        assert_eq!(job.shell_survey, ShellSurvey::Previous);
+        assert_eq!(job.water.level_m, Some(1.5));
+        assert!(!job.labels.inset_chart);
+        assert_eq!(
+            job.change.display_unit,
+            crate::grid::LinearUnit::UsSurveyFoot
+        );
+        let text = format!("{MINIMAL}animation: {{ dither: {{ kind: none }} }}\n");
+        assert!(parse(&d.path().join("job.yaml"), text).is_ok());
+        let e = err(&format!("{MINIMAL}labels: {{ status: false }}\n"));
+        assert!(e.contains("labels.status"), "{e}");
+    }
+
+    #[test]
     fn paths_are_tidied() {
         assert_eq!(
             tidy(Path::new("/a/jobs/../data/./x.tif")),
