@@ -1,4 +1,5 @@
-//! One frame: reduced heights -> lit, projected vertices -> binned triangles -> row bands -> sRGB frame.
+//! One frame's preparation: reduced heights -> shadows -> lit, projected vertices -> triangles
+//! binned to row bands and the block's sides; `bands.rs` then draws the bands.
 //!
 //! Buffers are made once per job in [`Buffers::new`] and reused; the translucent shell's buffers are
 //! made on the first frame that draws a shell. Every parallel step writes disjoint outputs, so the
@@ -6,18 +7,17 @@
 
 use rayon::prelude::*;
 
+use super::bands::{self, BandScene, BAND_OUT_ROWS};
 use super::camera::{Camera, NEAR_M};
 use super::lod;
 use super::ramp::{srgb_to_linear, Encoder, Ramp};
-use super::raster::{draw_triangle, draw_triangle_layer, Band, Vert};
+use super::raster::Vert;
 use super::shade::{blinn_phong, dot3, horn_gradient, lambert, normal, sun_vector};
 use super::shadow::cast_shadow_into;
 use super::{Colouring, Frame, FrameView, Renderer, ViewOptions};
 use crate::grid::GridGeometry;
 use crate::interp::Surface;
 
-/// Output rows per band: 45 bands on a 720-row frame, a few per thread and cheap to bin into.
-const BAND_OUT_ROWS: usize = 16;
 /// Quad rows per binning chunk.
 const CHUNK_QUAD_ROWS: usize = 8;
 
@@ -57,10 +57,10 @@ pub(crate) struct Buffers {
 
 /// One quad of the block's side: top edge (a, b) and base (b, a), front-facing already decided.
 #[derive(Debug, Clone, Copy)]
-struct Side {
-    v: [Vert; 4],
-    ymin: f32,
-    ymax: f32,
+pub(super) struct Side {
+    pub(super) v: [Vert; 4],
+    pub(super) ymin: f32,
+    pub(super) ymax: f32,
 }
 
 fn n_bins(lr: usize, ih: usize, ss: usize) -> (usize, usize) {
@@ -125,14 +125,14 @@ impl Buffers {
 
 /// Camera in f32 for the per-vertex loop.
 #[derive(Debug, Clone, Copy)]
-struct CamF {
-    eye: [f32; 3],
-    right: [f32; 3],
-    up: [f32; 3],
-    fwd: [f32; 3],
-    focal: f32,
-    half_w: f32,
-    half_h: f32,
+pub(super) struct CamF {
+    pub(super) eye: [f32; 3],
+    pub(super) right: [f32; 3],
+    pub(super) up: [f32; 3],
+    pub(super) fwd: [f32; 3],
+    pub(super) focal: f32,
+    pub(super) half_w: f32,
+    pub(super) half_h: f32,
 }
 
 impl CamF {
@@ -166,13 +166,13 @@ impl CamF {
 
 /// Light parameters in f32.
 #[derive(Debug, Clone, Copy)]
-pub(crate) struct Light {
-    pub(crate) sun: [f32; 3],
-    pub(crate) ambient: f32,
-    pub(crate) diffuse: f32,
-    pub(crate) specular: f32,
-    pub(crate) shininess: f32,
-    pub(crate) intensity: f32,
+pub(super) struct Light {
+    pub(super) sun: [f32; 3],
+    pub(super) ambient: f32,
+    pub(super) diffuse: f32,
+    pub(super) specular: f32,
+    pub(super) shininess: f32,
+    pub(super) intensity: f32,
 }
 
 impl Light {
@@ -317,33 +317,6 @@ fn bin_quads(
             }
         }
     });
-}
-
-#[inline]
-fn draw_binned(
-    band: &mut Band,
-    bins: &[Vec<Vec<u32>>],
-    bi: usize,
-    verts: &[Vert],
-    lc: usize,
-    under: Option<&[f32]>,
-) {
-    for chunk in bins {
-        for &q in &chunk[bi] {
-            let i = q as usize;
-            let (a, b, c, d) = (&verts[i], &verts[i + 1], &verts[i + lc], &verts[i + lc + 1]);
-            match under {
-                None => {
-                    draw_triangle(band, a, b, c, false);
-                    draw_triangle(band, b, d, c, false);
-                }
-                Some(u) => {
-                    draw_triangle_layer(band, u, a, b, c);
-                    draw_triangle_layer(band, u, b, d, c);
-                }
-            }
-        }
-    }
 }
 
 /// Front-facing side quads of the block around the reduced grid.
@@ -613,12 +586,6 @@ pub(super) fn render(
         );
     }
     draw_surface &= lr >= 2 && lc >= 2;
-
-    // Bands.
-    let ss = b.ss;
-    let (iw, ih) = (b.iw, b.ih);
-    let band_rows = BAND_OUT_ROWS * ss;
-    let sky = (lin(v.sky_top_rgb), lin(v.sky_bottom_rgb));
     let water = r.water.level_m.map(|level| {
         let (west, south, east, north) = g.extent();
         let unit = g.horizontal_unit.metres();
@@ -632,135 +599,38 @@ pub(super) fn render(
             r.water.opacity as f32,
         )
     });
-    let shell_alpha = r.shell.opacity as f32;
-    let out_w = v.width as usize;
-    let enc = &b.encoder;
-    let (verts, bins, sides) = (&b.verts, &b.bins, &b.sides);
-    let (shell_verts, shell_bins) = (&b.shell_verts, &b.shell_bins);
-    let has_shell = shell.is_some();
-    let mut layers: Vec<(&mut [f32], &mut [f32])> = if has_shell {
-        b.layer_rgb
-            .chunks_mut(band_rows * iw * 3)
-            .zip(b.layer_depth.chunks_mut(band_rows * iw))
-            .collect()
-    } else {
-        Vec::new()
+    let scene = BandScene {
+        ss: b.ss,
+        iw: b.iw,
+        ih: b.ih,
+        out_w: v.width as usize,
+        sky: (lin(v.sky_top_rgb), lin(v.sky_bottom_rgb)),
+        draw_surface,
+        lc,
+        verts: &b.verts,
+        bins: &b.bins,
+        sides: &b.sides,
+        shell_verts: &b.shell_verts,
+        shell_bins: &b.shell_bins,
+        shell_alpha: r.shell.opacity as f32,
+        water,
+        cam,
+        light,
+        enc: &b.encoder,
     };
-    let mut layer_iter = layers
-        .iter_mut()
-        .map(Some)
-        .chain(std::iter::repeat_with(|| None));
-    let jobs: Vec<_> = b
-        .rgb
-        .chunks_mut(band_rows * iw * 3)
-        .zip(b.depth.chunks_mut(band_rows * iw))
-        .zip(frame.rgba.chunks_mut(BAND_OUT_ROWS * out_w * 4))
-        .enumerate()
-        .map(|(bi, ((rgb, depth), out))| (bi, rgb, depth, out, layer_iter.next().flatten()))
-        .collect();
-    jobs.into_par_iter()
-        .for_each(|(bi, rgb, depth, out, layer)| {
-            let y0 = bi * band_rows;
-            let rows = depth.len() / iw;
-            // Sky gradient.
-            for y in 0..rows {
-                let t = ((y0 + y) as f32 + 0.5) / ih as f32;
-                let c = [0, 1, 2].map(|k| sky.0[k] + (sky.1[k] - sky.0[k]) * t);
-                for px in rgb[y * iw * 3..(y + 1) * iw * 3].chunks_exact_mut(3) {
-                    px.copy_from_slice(&c);
-                }
-            }
-            depth.iter_mut().for_each(|d| *d = 0.0);
-            let mut band = Band {
-                y0,
-                rows,
-                width: iw,
-                rgb,
-                depth,
-            };
-            if draw_surface {
-                draw_binned(&mut band, bins, bi, verts, lc, None);
-                let (fy0, fy1) = (y0 as f32, (y0 + rows) as f32);
-                for s in sides.iter().filter(|s| s.ymax >= fy0 && s.ymin <= fy1) {
-                    draw_triangle(&mut band, &s.v[0], &s.v[1], &s.v[2], true);
-                    draw_triangle(&mut band, &s.v[0], &s.v[2], &s.v[3], true);
-                }
-            }
-            if let Some((lrgb, ldepth)) = layer {
-                ldepth.iter_mut().for_each(|d| *d = 0.0);
-                let under: &[f32] = band.depth;
-                let mut lband = Band {
-                    y0,
-                    rows,
-                    width: iw,
-                    rgb: lrgb,
-                    depth: ldepth,
-                };
-                draw_binned(&mut lband, shell_bins, bi, shell_verts, lc, Some(under));
-                for i in 0..rows * iw {
-                    if lband.depth[i] > 0.0 {
-                        for k in 0..3 {
-                            let o = &mut band.rgb[i * 3 + k];
-                            *o += (lband.rgb[i * 3 + k] - *o) * shell_alpha;
-                        }
-                    }
-                }
-            }
-            if let Some((wz, hw, hh, wcol, alpha)) = water {
-                let lit = [0, 1, 2].map(|k| {
-                    wcol[k] * (light.ambient + light.diffuse * light.sun[2]) * light.intensity
-                });
-                for y in 0..rows {
-                    let b_up = -((y0 + y) as f32 + 0.5 - cam.half_h) / cam.focal;
-                    for x in 0..iw {
-                        let a_r = (x as f32 + 0.5 - cam.half_w) / cam.focal;
-                        let d =
-                            [0, 1, 2].map(|k| cam.fwd[k] + a_r * cam.right[k] + b_up * cam.up[k]);
-                        if d[2] == 0.0 {
-                            continue;
-                        }
-                        let t = (wz - cam.eye[2]) / d[2];
-                        if t <= NEAR_M as f32 {
-                            continue;
-                        }
-                        let (hx, hy) = (cam.eye[0] + t * d[0], cam.eye[1] + t * d[1]);
-                        let i = y * iw + x;
-                        if hx.abs() > hw || hy.abs() > hh || 1.0 / t <= band.depth[i] {
-                            continue;
-                        }
-                        let len = dot3(d, d).sqrt();
-                        let vdir = [-d[0] / len, -d[1] / len, -d[2] / len];
-                        let spec = light.specular
-                            * blinn_phong([0.0, 0.0, 1.0], light.sun, vdir, light.shininess * 4.0);
-                        for (o, l) in band.rgb[i * 3..i * 3 + 3].iter_mut().zip(lit) {
-                            *o += (l + spec * light.intensity - *o) * alpha;
-                        }
-                    }
-                }
-            }
-            // Resolve: box filter of ss × ss samples, then sRGB.
-            let out_rows = out.len() / (out_w * 4);
-            let norm = 1.0 / (ss * ss) as f32;
-            for oy in 0..out_rows {
-                for ox in 0..out_w {
-                    let mut acc = [0.0f32; 3];
-                    for sy in 0..ss {
-                        let row = (oy * ss + sy) * iw;
-                        for sx in 0..ss {
-                            let i = (row + ox * ss + sx) * 3;
-                            acc[0] += band.rgb[i];
-                            acc[1] += band.rgb[i + 1];
-                            acc[2] += band.rgb[i + 2];
-                        }
-                    }
-                    let o = &mut out[(oy * out_w + ox) * 4..(oy * out_w + ox) * 4 + 4];
-                    o[0] = enc.byte(acc[0] * norm);
-                    o[1] = enc.byte(acc[1] * norm);
-                    o[2] = enc.byte(acc[2] * norm);
-                    o[3] = 255;
-                }
-            }
-        });
+    let (layer_rgb, layer_depth) = if shell.is_some() {
+        (&mut b.layer_rgb[..], &mut b.layer_depth[..])
+    } else {
+        (&mut [][..], &mut [][..])
+    };
+    bands::draw_all(
+        &scene,
+        &mut b.rgb,
+        &mut b.depth,
+        layer_rgb,
+        layer_depth,
+        &mut frame.rgba,
+    );
     fv
 }
 
@@ -769,40 +639,5 @@ impl Renderer {
     #[cfg(test)]
     pub(crate) fn depth_at(&self, x: usize, y: usize) -> f32 {
         self.buffers.depth[y * self.buffers.iw + x]
-    }
-}
-
-/// A synthetic field of transverse dunes (gentle stoss, steep lee, wandering crests, small ripples),
-/// for tests and benches; deterministic.
-pub fn synthetic_dunes(rows: usize, cols: usize, cell_m: f64) -> Surface {
-    use crate::grid::LinearUnit;
-    let geometry = GridGeometry {
-        cols,
-        rows,
-        origin_x: 250_000.0,
-        origin_y: 1_500_000.0,
-        cell_x: cell_m,
-        cell_y: cell_m,
-        epsg: None,
-        horizontal_unit: LinearUnit::Metre,
-    };
-    let w = cols as f64 * cell_m;
-    let z = ndarray::Array2::from_shape_fn((rows, cols), |(r, c)| {
-        let x = c as f64 * cell_m;
-        let y = r as f64 * cell_m;
-        let wave = w / 5.0;
-        let phase = (x + 0.06 * w * (std::f64::consts::TAU * y / (0.7 * w)).sin()) / wave;
-        let u = phase - phase.floor();
-        // Stoss rises over 75 % of the wavelength, lee falls over 25 %.
-        let prof = if u < 0.75 { u / 0.75 } else { (1.0 - u) / 0.25 };
-        let prof = prof * prof * (3.0 - 2.0 * prof);
-        let amp = 0.55 + 0.45 * (std::f64::consts::TAU * (y / (0.9 * w) + x / (2.3 * w))).sin();
-        let ripple = 0.15 * (x / (3.0 * cell_m.max(0.5)) + 0.5 * (y / 7.0).sin()).sin();
-        (2.0 + 9.0 * prof * amp + ripple + 1.5 * (y / w)) as f32
-    });
-    Surface {
-        geometry,
-        z,
-        kind: crate::timeline::FrameKind::Measured { survey: 0 },
     }
 }

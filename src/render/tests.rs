@@ -3,7 +3,7 @@
 
 use ndarray::Array2;
 
-use super::scene::synthetic_dunes;
+use super::synthetic::synthetic_dunes;
 use super::*;
 use crate::grid::LinearUnit;
 use crate::timeline::FrameKind;
