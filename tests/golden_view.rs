@@ -174,4 +174,12 @@ fn write_previews() {
     let mut f = Frame::new(640, 480);
     r.render_into(&s, 0.0, &mut f);
     save("low-sun-east.png", &f);
+    let west = LightOptions {
+        azimuth_deg: 260.0,
+        altitude_deg: 12.0,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &west, (0.0, 16.0)).unwrap();
+    r.render_into(&s, 0.0, &mut f);
+    save("low-sun-west.png", &f);
 }

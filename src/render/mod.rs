@@ -141,6 +141,47 @@ fn check(ok: bool, msg: impl FnOnce() -> String) -> Result<(), String> {
     }
 }
 
+/// When `view.eye` is set, the facing, elevation and distance it implies (checked), else the view.
+fn apply_eye(
+    g: &GridGeometry,
+    view: &ViewOptions,
+    range_m: (f32, f32),
+) -> Result<ViewOptions, String> {
+    let Some([ex, ey, ez]) = view.eye else {
+        return Ok(view.clone());
+    };
+    check(ex.is_finite() && ey.is_finite() && ez.is_finite(), || {
+        format!("view.eye: [{ex}, {ey}, {ez}] is not three numbers; give [x, y, elevation_m]")
+    })?;
+    let (west, south, east, north) = g.extent();
+    let [tx, ty] = view
+        .target
+        .unwrap_or([(west + east) / 2.0, (south + north) / 2.0]);
+    let unit = g.horizontal_unit.metres();
+    let k = view.vertical_exaggeration;
+    let tz = f64::from(range_m.0 + range_m.1) / 2.0 * k;
+    let d = [(tx - ex) * unit, (ty - ey) * unit, tz - ez * k];
+    let horiz = (d[0] * d[0] + d[1] * d[1]).sqrt();
+    let dist = (horiz * horiz + d[2] * d[2]).sqrt();
+    let elevation_deg = (-d[2]).atan2(horiz).to_degrees();
+    check((5.0..=90.0).contains(&elevation_deg), || {
+        format!(
+            "view.eye: from [{ex}, {ey}, {ez}] the line of sight to the target is {elevation_deg:.1}° below the horizon; raise the eye so it looks down by 5° to 90°"
+        )
+    })?;
+    let facing_deg = if horiz > 1e-9 {
+        d[0].atan2(d[1]).to_degrees().rem_euclid(360.0)
+    } else {
+        view.facing_deg
+    };
+    Ok(ViewOptions {
+        facing_deg,
+        elevation_deg,
+        distance_m: Some(dist),
+        ..view.clone()
+    })
+}
+
 impl Renderer {
     /// Checks the options against the grid and allocates per-job buffers.
     ///
@@ -156,7 +197,8 @@ impl Renderer {
         light: &LightOptions,
         elevation_range_m: (f32, f32),
     ) -> Result<Renderer, String> {
-        let v = view;
+        let derived = apply_eye(geometry, view, elevation_range_m)?;
+        let v = &derived;
         check((1..=MAX_FRAME_PX).contains(&v.width), || {
             format!("view.width: {} is outside 1..={MAX_FRAME_PX}; give the frame width in pixels, e.g. 960", v.width)
         })?;

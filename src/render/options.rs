@@ -21,6 +21,10 @@ pub struct ViewOptions {
     pub elevation_deg: f64,
     /// Distance from the camera to the target in metres; absent = fit the whole grid in view. Default: fit.
     pub distance_m: Option<f64>,
+    /// Camera position `[x, y, z_m]` (map coordinates, metres of elevation before exaggeration);
+    /// when given it replaces `facing_deg`, `elevation_deg` and `distance_m`, and an orbit turns it
+    /// around the target. Default: none.
+    pub eye: Option<[f64; 3]>,
     /// Point looked at, `[x, y]` in map coordinates; absent = the grid's centre. Default: centre.
     pub target: Option<[f64; 2]>,
     /// Vertical field of view in degrees, 5 to 120. Default: 40.
@@ -58,6 +62,7 @@ impl Default for ViewOptions {
             facing_deg: 20.0,
             elevation_deg: 35.0,
             distance_m: None,
+            eye: None,
             target: None,
             fov_deg: 40.0,
             orbit_deg: 0.0,
