@@ -7,6 +7,8 @@
 //! linear light (box filter) and encodes sRGB into its rows of the frame. Bands share nothing
 //! writable, so they run in parallel with the same result for any thread count.
 
+use std::cell::RefCell;
+
 use rayon::prelude::*;
 
 use super::camera::NEAR_M;
@@ -70,30 +72,42 @@ fn draw_binned(
     }
 }
 
-/// Draws every band of the frame in parallel. `layer_rgb`/`layer_depth` are empty when there is no
-/// shell, else the size of `rgb`/`depth`.
-pub(super) fn draw_all(
-    scene: &BandScene,
-    rgb: &mut [f32],
-    depth: &mut [f32],
-    layer_rgb: &mut [f32],
-    layer_depth: &mut [f32],
-    rgba: &mut [u8],
-) {
+thread_local! {
+    /// Per-thread colour scratch of one band (and the shell layer's colour and depth), made on a
+    /// thread's first band and reused: a band's working set then stays in cache between frames
+    /// instead of streaming a frame-sized colour buffer through memory. Every band initialises
+    /// what it reads, so the contents left by earlier bands never reach the output.
+    static SCRATCH: RefCell<[Vec<f32>; 3]> = const { RefCell::new([Vec::new(), Vec::new(), Vec::new()]) };
+}
+
+/// Draws every band of the frame in parallel into `rgba`, keeping the frame's depth in `depth`.
+pub(super) fn draw_all(scene: &BandScene, depth: &mut [f32], has_shell: bool, rgba: &mut [u8]) {
     let band_rows = BAND_OUT_ROWS * scene.ss;
-    let iw = scene.iw;
-    let mut layers = layer_rgb
-        .chunks_mut(band_rows * iw * 3)
-        .zip(layer_depth.chunks_mut(band_rows * iw));
-    let jobs: Vec<_> = rgb
-        .chunks_mut(band_rows * iw * 3)
-        .zip(depth.chunks_mut(band_rows * iw))
+    let jobs: Vec<_> = depth
+        .chunks_mut(band_rows * scene.iw)
         .zip(rgba.chunks_mut(BAND_OUT_ROWS * scene.out_w * 4))
         .enumerate()
-        .map(|(bi, ((rgb, depth), out))| (bi, rgb, depth, out, layers.next()))
         .collect();
-    jobs.into_par_iter()
-        .for_each(|(bi, rgb, depth, out, layer)| draw_band(scene, bi, rgb, depth, out, layer));
+    jobs.into_par_iter().for_each(|(bi, (depth, out))| {
+        SCRATCH.with(|cell| {
+            let mut scratch = cell.borrow_mut();
+            let [rgb, lrgb, ldepth] = &mut *scratch;
+            let n = depth.len();
+            if rgb.len() < n * 3 {
+                rgb.resize(n * 3, 0.0);
+            }
+            let layer = if has_shell {
+                if lrgb.len() < n * 3 {
+                    lrgb.resize(n * 3, 0.0);
+                    ldepth.resize(n, 0.0);
+                }
+                Some((&mut lrgb[..n * 3], &mut ldepth[..n]))
+            } else {
+                None
+            };
+            draw_band(scene, bi, &mut rgb[..n * 3], depth, out, layer);
+        });
+    });
 }
 
 /// Draws band `bi` into its rows.

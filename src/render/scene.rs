@@ -46,10 +46,7 @@ pub(crate) struct Buffers {
     ss: usize,
     iw: usize,
     ih: usize,
-    rgb: Vec<f32>,
     depth: Vec<f32>,
-    layer_rgb: Vec<f32>,
-    layer_depth: Vec<f32>,
     elevation_ramp: Ramp,
     change_ramp: Ramp,
     encoder: Encoder,
@@ -112,10 +109,7 @@ impl Buffers {
             ss,
             iw,
             ih,
-            rgb: vec![0.0; iw * ih * 3],
             depth: vec![0.0; iw * ih],
-            layer_rgb: Vec::new(),
-            layer_depth: Vec::new(),
             elevation_ramp: Ramp::elevation(),
             change_ramp: Ramp::change(),
             encoder: Encoder::default(),
@@ -556,8 +550,6 @@ pub(super) fn render(
         if b.shell_bins.len() != chunks {
             b.shell_bins = vec![vec![Vec::new(); bands]; chunks];
         }
-        b.layer_rgb.resize(b.iw * b.ih * 3, 0.0);
-        b.layer_depth.resize(b.iw * b.ih, 0.0);
         let z = heights(&s.z, &mut b.z_copy);
         lod::reduce_into(z, g.rows, g.cols, r.level, k, &mut b.shell_zk);
         let col = lin(r.shell.rgb);
@@ -618,19 +610,7 @@ pub(super) fn render(
         light,
         enc: &b.encoder,
     };
-    let (layer_rgb, layer_depth) = if shell.is_some() {
-        (&mut b.layer_rgb[..], &mut b.layer_depth[..])
-    } else {
-        (&mut [][..], &mut [][..])
-    };
-    bands::draw_all(
-        &scene,
-        &mut b.rgb,
-        &mut b.depth,
-        layer_rgb,
-        layer_depth,
-        &mut frame.rgba,
-    );
+    bands::draw_all(&scene, &mut b.depth, shell.is_some(), &mut frame.rgba);
     fv
 }
 
