@@ -405,11 +405,13 @@ impl Renderer {
                     .fold(0.0, f64::max)
             }
         };
-        // Level of detail from the projected cell size at the target.
-        let focal_int = (f64::from(v.height) / 2.0) / (v.fov_deg.to_radians() / 2.0).tan()
-            * f64::from(v.supersample);
+        // Level of detail from the projected cell size at the target, in output pixels (so the
+        // supersampling factor buys smoother edges, not four times the triangles: at 1280x720 a
+        // 1024² grid costs 56 ms a frame at cells of 1 output pixel against 33 ms at 2, bench
+        // `render`, 1 thread, 2x2 supersampling).
+        let focal_out = (f64::from(v.height) / 2.0) / (v.fov_deg.to_radians() / 2.0).tan();
         let cell_m = geometry.cell_x_m().min(geometry.cell_y_m());
-        let cell_px = cell_m * focal_int / distance_m;
+        let cell_px = cell_m * focal_out / distance_m;
         let level = lod::choose_level(cell_px, v.lod_min_cell_px, geometry.rows, geometry.cols);
         log::debug!("render: level of detail {level} (cell {cell_px:.2} px at the target), distance {distance_m:.1} m");
         let buffers = scene::Buffers::new(geometry, v, level);

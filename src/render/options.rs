@@ -38,8 +38,8 @@ pub struct ViewOptions {
     pub vertical_exaggeration: f64,
     /// Anti-aliasing: each pixel is the mean of supersample × supersample samples, 1 to 4. Default: 2.
     pub supersample: u32,
-    /// Level of detail: grids are reduced until a cell spans at least this many (supersampled)
-    /// pixels at the target, 0.5 to 16. Default: 2.
+    /// Level of detail: grids are reduced until a cell spans at least this many output pixels at
+    /// the target, 0.5 to 16 (smaller = more detail, slower). Default: 2.
     pub lod_min_cell_px: f64,
     /// Draw the terrain block's sides down to `base_m`. Default: true.
     pub block_sides: bool,

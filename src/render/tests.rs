@@ -469,10 +469,12 @@ impl Renderer {
 fn supersampling_is_the_box_mean_of_a_finer_render() {
     let s = synthetic_dunes(60, 80, 1.0);
     let light = LightOptions::default();
+    // Same level of detail in both: it is chosen from the cell size in output pixels.
     let small = ViewOptions {
         width: 64,
         height: 48,
         supersample: 2,
+        lod_min_cell_px: 1.0,
         ..Default::default()
     };
     let big = ViewOptions {
