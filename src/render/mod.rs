@@ -189,8 +189,9 @@ impl Renderer {
     /// A message naming the option at fault and the fix.
     ///
     /// # Allocations
-    /// The frame-sized colour and depth buffers (16 bytes a supersample) and the reduced-level
-    /// vertex buffers, once.
+    /// The frame-sized depth buffer (4 bytes a supersample) and the reduced-level vertex buffers
+    /// (at most one vertex per supersample), once; each rayon thread also keeps one band's colour
+    /// scratch (12 bytes a supersample of 16 output rows).
     pub fn new(
         geometry: &GridGeometry,
         view: &ViewOptions,
@@ -412,7 +413,16 @@ impl Renderer {
         let focal_out = (f64::from(v.height) / 2.0) / (v.fov_deg.to_radians() / 2.0).tan();
         let cell_m = geometry.cell_x_m().min(geometry.cell_y_m());
         let cell_px = cell_m * focal_out / distance_m;
-        let level = lod::choose_level(cell_px, v.lod_min_cell_px, geometry.rows, geometry.cols);
+        let mut level = lod::choose_level(cell_px, v.lod_min_cell_px, geometry.rows, geometry.cols);
+        // Never more vertices than samples on the frame: finer levels cannot show more and would
+        // only cost memory (a 4096² grid at level 0 needs about 0.6 GB of vertex buffers).
+        let samples = (samples as usize).max(1);
+        while level < lod::max_level(geometry.rows, geometry.cols) && {
+            let (lr, lc) = lod::level_shape(geometry.rows, geometry.cols, level);
+            lr * lc > samples
+        } {
+            level += 1;
+        }
         log::debug!("render: level of detail {level} (cell {cell_px:.2} px at the target), distance {distance_m:.1} m");
         let buffers = scene::Buffers::new(geometry, v, level);
         Ok(Renderer {

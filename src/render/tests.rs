@@ -352,6 +352,21 @@ fn eye_position_sets_the_view() {
 }
 
 #[test]
+fn level_of_detail_never_exceeds_the_samples_on_screen() {
+    let g = geometry(512, 512, 1.0);
+    let view = ViewOptions {
+        width: 64,
+        height: 32,
+        supersample: 1,
+        lod_min_cell_px: 0.5,
+        ..Default::default()
+    };
+    let r = Renderer::new(&g, &view, &LightOptions::default(), (0.0, 10.0)).unwrap();
+    let (lr, lc) = lod::level_shape(512, 512, r.level_of_detail());
+    assert!(lr * lc <= 64 * 32, "level {}", r.level_of_detail());
+}
+
+#[test]
 fn options_read_from_yaml_with_defaults_and_reject_unknown_keys() {
     let v: ViewOptions = serde_yaml::from_str("orbit_deg: 90\nsupersample: 3\n").unwrap();
     assert_eq!((v.orbit_deg, v.supersample, v.width), (90.0, 3, 960));
