@@ -41,7 +41,9 @@ use crate::grid::GridGeometry;
 use crate::interp::Surface;
 
 pub use camera::Camera;
-pub use options::{Colouring, LightOptions, ShellOptions, ViewOptions, WaterOptions, MAX_FRAME_PX};
+pub use options::{
+    Colouring, Drape, LightOptions, ShellOptions, ViewOptions, WaterOptions, MAX_FRAME_PX,
+};
 
 /// An RGBA image that frames are rendered into, then labelled, then encoded.
 #[derive(Debug, Clone, PartialEq)]

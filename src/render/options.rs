@@ -173,7 +173,7 @@ impl Default for ShellOptions {
 }
 
 /// How a surface is coloured.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy)]
 pub enum Colouring<'a> {
     /// By elevation on the fixed elevation ramp.
     Elevation,
@@ -187,4 +187,77 @@ pub enum Colouring<'a> {
         /// Level of detection in metres: smaller changes are drawn as no change.
         lod_m: f32,
     },
+    /// By an RGB raster (an orthophoto) draped over the surface; cells outside it keep the
+    /// elevation colour.
+    Drape(&'a Drape),
+}
+
+/// An RGB raster to drape over the surface, on its own geometry (same CRS as the grid).
+#[derive(Debug, Clone)]
+pub struct Drape {
+    geometry: crate::grid::GridGeometry,
+    /// Linear-light colour per cell, row-major (rows north to south), 3 floats a cell.
+    linear: Vec<[f32; 3]>,
+}
+
+impl Drape {
+    /// A drape from sRGB bytes of shape (rows, cols, 3) on `geometry`, checked against the grid
+    /// it will be draped on.
+    ///
+    /// # Errors
+    /// A message when the shape does not match the geometry or the raster misses the grid.
+    pub fn new(
+        geometry: &crate::grid::GridGeometry,
+        rgb: &ndarray::Array3<u8>,
+        grid: &crate::grid::GridGeometry,
+    ) -> Result<Drape, String> {
+        let (rows, cols, bands) = rgb.dim();
+        if (rows, cols) != (geometry.rows, geometry.cols) || bands != 3 || rows == 0 || cols == 0 {
+            return Err(format!(
+                "drape: the raster is {cols}x{rows}x{bands} but its header says {}x{}x3; give an RGB raster of 3 bands",
+                geometry.cols, geometry.rows
+            ));
+        }
+        let (w, s, e, n) = geometry.extent();
+        let (gw, gs, ge, gn) = grid.extent();
+        if w >= ge || e <= gw || s >= gn || n <= gs {
+            return Err(format!(
+                "drape: the raster ({w}..{e}, {s}..{n}) does not overlap the grid ({gw}..{ge}, {gs}..{gn}); give an image of the same area in the same CRS"
+            ));
+        }
+        let lut: Vec<f32> = (0..=255u8)
+            .map(|v| super::ramp::srgb_to_linear(f32::from(v) / 255.0))
+            .collect();
+        let linear = rgb
+            .outer_iter()
+            .flat_map(|row| {
+                row.outer_iter()
+                    .map(|px| [0, 1, 2].map(|k| lut[px[k] as usize]))
+                    .collect::<Vec<_>>()
+            })
+            .collect();
+        Ok(Drape {
+            geometry: geometry.clone(),
+            linear,
+        })
+    }
+
+    /// Bilinear linear-light colour at a map point, or None outside the raster.
+    pub fn linear_at(&self, x: f64, y: f64) -> Option<[f32; 3]> {
+        let g = &self.geometry;
+        let (r, c) = g.to_cell(x, y);
+        if !(r >= -0.5 && c >= -0.5 && r <= g.rows as f64 - 0.5 && c <= g.cols as f64 - 0.5) {
+            return None;
+        }
+        let r = r.clamp(0.0, (g.rows - 1) as f64);
+        let c = c.clamp(0.0, (g.cols - 1) as f64);
+        let (r0, c0) = (r.floor() as usize, c.floor() as usize);
+        let (r1, c1) = ((r0 + 1).min(g.rows - 1), (c0 + 1).min(g.cols - 1));
+        let (fr, fc) = ((r - r0 as f64) as f32, (c - c0 as f64) as f32);
+        let at = |rr: usize, cc: usize| self.linear[rr * g.cols + cc];
+        let (a, b, cq, d) = (at(r0, c0), at(r0, c1), at(r1, c0), at(r1, c1));
+        Some([0, 1, 2].map(|k| {
+            (a[k] * (1.0 - fc) + b[k] * fc) * (1.0 - fr) + (cq[k] * (1.0 - fc) + d[k] * fc) * fr
+        }))
+    }
 }

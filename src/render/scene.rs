@@ -448,15 +448,54 @@ pub(super) fn render(
         let zk = &b.zk;
         let ramp = &b.elevation_ramp;
         let shadow = r.light.shadows.then_some(&b.shadow[..]);
+        let elevation = move |i: usize| ramp.at((zk[i] / k - lo) * inv_range);
+        let (xs, ys) = (&b.xs, &b.ys);
+        let (west, south, east, north) = g.extent();
+        let (cx, cy) = ((west + east) / 2.0, (south + north) / 2.0);
+        let unit = g.horizontal_unit.metres();
         match colouring {
-            Colouring::Elevation => {
-                let albedo = move |i: usize| ramp.at((zk[i] / k - lo) * inv_range);
+            Colouring::Change { reference, .. } if reference.dim() != (g.rows, g.cols) => {
+                log::warn!("render: change reference has the wrong shape; colouring by elevation");
                 vertex_pass(
                     zk,
                     lr,
                     lc,
-                    &b.xs,
-                    &b.ys,
+                    xs,
+                    ys,
+                    b.dx,
+                    b.dy,
+                    &cam,
+                    shadow,
+                    &light,
+                    &elevation,
+                    &mut b.verts,
+                );
+            }
+            Colouring::Change {
+                reference,
+                limit_m,
+                lod_m,
+            } => {
+                b.change.resize(lr * lc, 0.0);
+                let zr = heights(reference, &mut b.z_copy);
+                lod::reduce_into(zr, g.rows, g.cols, r.level, 1.0, &mut b.change);
+                let (chg, cramp) = (&b.change, &b.change_ramp);
+                let limit = limit_m.max(1e-6);
+                let albedo = move |i: usize| {
+                    let d = zk[i] / k - chg[i];
+                    let d = if d.is_finite() && d.abs() >= lod_m {
+                        d
+                    } else {
+                        0.0
+                    };
+                    cramp.at(0.5 + 0.5 * (d / limit).clamp(-1.0, 1.0))
+                };
+                vertex_pass(
+                    zk,
+                    lr,
+                    lc,
+                    xs,
+                    ys,
                     b.dx,
                     b.dy,
                     &cam,
@@ -466,60 +505,44 @@ pub(super) fn render(
                     &mut b.verts,
                 );
             }
-            Colouring::Change {
-                reference,
-                limit_m,
-                lod_m,
-            } => {
-                if reference.dim() != (g.rows, g.cols) {
-                    log::warn!(
-                        "render: change reference has the wrong shape; colouring by elevation"
+            Colouring::Drape(drape) => {
+                let albedo = move |i: usize| {
+                    let (x, y) = (
+                        cx + f64::from(xs[i % lc]) / unit,
+                        cy + f64::from(ys[i / lc]) / unit,
                     );
-                    let albedo = move |i: usize| ramp.at((zk[i] / k - lo) * inv_range);
-                    vertex_pass(
-                        zk,
-                        lr,
-                        lc,
-                        &b.xs,
-                        &b.ys,
-                        b.dx,
-                        b.dy,
-                        &cam,
-                        shadow,
-                        &light,
-                        &albedo,
-                        &mut b.verts,
-                    );
-                } else {
-                    b.change.resize(lr * lc, 0.0);
-                    let zr = heights(reference, &mut b.z_copy);
-                    lod::reduce_into(zr, g.rows, g.cols, r.level, 1.0, &mut b.change);
-                    let (chg, cramp) = (&b.change, &b.change_ramp);
-                    let limit = limit_m.max(1e-6);
-                    let albedo = move |i: usize| {
-                        let d = zk[i] / k - chg[i];
-                        let d = if d.is_finite() && d.abs() >= lod_m {
-                            d
-                        } else {
-                            0.0
-                        };
-                        cramp.at(0.5 + 0.5 * (d / limit).clamp(-1.0, 1.0))
-                    };
-                    vertex_pass(
-                        zk,
-                        lr,
-                        lc,
-                        &b.xs,
-                        &b.ys,
-                        b.dx,
-                        b.dy,
-                        &cam,
-                        shadow,
-                        &light,
-                        &albedo,
-                        &mut b.verts,
-                    );
-                }
+                    drape.linear_at(x, y).unwrap_or_else(|| elevation(i))
+                };
+                vertex_pass(
+                    zk,
+                    lr,
+                    lc,
+                    xs,
+                    ys,
+                    b.dx,
+                    b.dy,
+                    &cam,
+                    shadow,
+                    &light,
+                    &albedo,
+                    &mut b.verts,
+                );
+            }
+            Colouring::Elevation => {
+                vertex_pass(
+                    zk,
+                    lr,
+                    lc,
+                    xs,
+                    ys,
+                    b.dx,
+                    b.dy,
+                    &cam,
+                    shadow,
+                    &light,
+                    &elevation,
+                    &mut b.verts,
+                );
             }
         }
         let band_rows = BAND_OUT_ROWS * b.ss;

@@ -600,3 +600,53 @@ fn wrong_sized_frame_and_surface_do_not_panic() {
     r.render_into(&other, 0.0, &mut f);
     assert_eq!(r.depth_at(48, 32), 0.0, "sky only");
 }
+
+#[test]
+fn drape_colours_the_surface_and_must_overlap() {
+    let s = surface(Array2::from_elem((40, 40), 5.0), 1.0);
+    // A drape of the same area: west half red, east half blue, at 4 m pixels.
+    let dg = GridGeometry {
+        rows: 10,
+        cols: 10,
+        cell_x: 4.0,
+        cell_y: 4.0,
+        ..s.geometry.clone()
+    };
+    let rgb = ndarray::Array3::from_shape_fn((10, 10, 3), |(_, c, k)| match (c < 5, k) {
+        (true, 0) | (false, 2) => 230u8,
+        _ => 20,
+    });
+    let drape = Drape::new(&dg, &rgb, &s.geometry).unwrap();
+    let view = ViewOptions {
+        elevation_deg: 90.0,
+        ..plain_view()
+    };
+    let light = LightOptions {
+        ambient: 1.0,
+        diffuse: 0.0,
+        specular: 0.0,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &light, (0.0, 10.0)).unwrap();
+    let mut f = Frame::new(96, 64);
+    r.render_scene_into(&s, None, Colouring::Drape(&drape), 0.0, &mut f);
+    let (w, e) = (px(&f, 36, 32), px(&f, 60, 32));
+    // Check: analytic — with ambient light 1 and no diffuse term the drape's own colour shows (±2).
+    assert!(
+        (w[0] as i32 - 230).abs() <= 2 && (w[2] as i32 - 20).abs() <= 2,
+        "{w:?}"
+    );
+    assert!(
+        (e[2] as i32 - 230).abs() <= 2 && (e[0] as i32 - 20).abs() <= 2,
+        "{e:?}"
+    );
+    let far = GridGeometry {
+        origin_x: 90_000.0,
+        ..dg.clone()
+    };
+    assert!(Drape::new(&far, &rgb, &s.geometry)
+        .unwrap_err()
+        .contains("does not overlap"));
+    let wrong = ndarray::Array3::<u8>::zeros((10, 9, 3));
+    assert!(Drape::new(&dg, &wrong, &s.geometry).is_err());
+}
