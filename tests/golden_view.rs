@@ -182,6 +182,13 @@ fn write_previews() {
     let mut r = Renderer::new(&s.geometry, &view, &west, (0.0, 16.0)).unwrap();
     r.render_into(&s, 0.0, &mut f);
     save("low-sun-west.png", &f);
+    let hollows = LightOptions {
+        hollow_darkening: 0.8,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &hollows, (0.0, 16.0)).unwrap();
+    r.render_into(&s, 0.0, &mut f);
+    save("hollows.png", &f);
     let orbit = ViewOptions {
         width: 480,
         height: 270,

@@ -294,6 +294,7 @@ impl Renderer {
             ("specular", l.specular, 0.0, 1.0),
             ("shininess", l.shininess, 1.0, 1000.0),
             ("shadow_softness_cells", l.shadow_softness_cells, 0.0, 10.0),
+            ("hollow_darkening", l.hollow_darkening, 0.0, 1.0),
         ] {
             check(val.is_finite() && (lo..=hi).contains(&val), || {
                 format!("light.{name}: {val} is outside {lo}..={hi}")

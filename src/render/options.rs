@@ -113,6 +113,9 @@ pub struct LightOptions {
     pub shadows: bool,
     /// Width of the shadow edge in cells of the drawn level (0 = hard edge), 0 to 10. Default: 1.
     pub shadow_softness_cells: f64,
+    /// Sky-visibility (ambient occlusion) darkening of hollows, 0 (off) to 1: the ambient light of
+    /// a cell is reduced by this share of the sky directions it cannot see. Default: 0.
+    pub hollow_darkening: f64,
 }
 
 impl Default for LightOptions {
@@ -127,6 +130,7 @@ impl Default for LightOptions {
             intensity: 1.0,
             shadows: true,
             shadow_softness_cells: 1.0,
+            hollow_darkening: 0.0,
         }
     }
 }

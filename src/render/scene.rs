@@ -34,6 +34,8 @@ pub(crate) struct Buffers {
     dy: f32,
     zk: Vec<f32>,
     shadow: Vec<f32>,
+    sky: Vec<f32>,
+    sky_dir: Vec<f32>,
     scratch: Vec<f32>,
     change: Vec<f32>,
     verts: Vec<Vert>,
@@ -97,6 +99,8 @@ impl Buffers {
             dy: (cym * b as f64) as f32,
             zk: vec![0.0; n],
             shadow: vec![0.0; n],
+            sky: Vec::new(),
+            sky_dir: Vec::new(),
             scratch: Vec::new(),
             change: Vec::new(),
             verts: vec![Vert::default(); n],
@@ -183,17 +187,19 @@ impl Light {
 }
 
 /// Linear colour of a surface point: `I·(albedo·(ka + kd·max(0,n·s)·(1−shadow)) + ks·spec·(1−shadow))`
-/// (REFERENCES.md §1, "full pixel"); `v` points from the surface to the eye.
+/// (REFERENCES.md §1, "full pixel"), with the ambient term scaled by the sky visibility `sky`
+/// (1 = open); `v` points from the surface to the eye.
 #[inline]
 pub(crate) fn light_point(
     albedo: [f32; 3],
     n: [f32; 3],
     v: [f32; 3],
     shadow: f32,
+    sky: f32,
     l: &Light,
 ) -> [f32; 3] {
     let lit = 1.0 - shadow;
-    let d = l.ambient + l.diffuse * lambert(n, l.sun) * lit;
+    let d = l.ambient * sky + l.diffuse * lambert(n, l.sun) * lit;
     let s = if l.specular > 0.0 {
         l.specular * blinn_phong(n, l.sun, v, l.shininess) * lit
     } else {
@@ -224,6 +230,7 @@ fn vertex_pass(
     dy: f32,
     cam: &CamF,
     shadow: Option<&[f32]>,
+    sky: Option<&[f32]>,
     light: &Light,
     albedo: &(dyn Fn(usize) -> [f32; 3] + Sync),
     out: &mut [Vert],
@@ -252,11 +259,12 @@ fn vertex_pass(
                 let el = dot3(e, e).sqrt();
                 let v = [e[0] / el, e[1] / el, e[2] / el];
                 let sh = shadow.map_or(0.0, |s| s[i]);
+                let open = sky.map_or(1.0, |s| s[i]);
                 *o = Vert {
                     x,
                     y,
                     iz,
-                    rgb: light_point(albedo(i), n, v, sh, light),
+                    rgb: light_point(albedo(i), n, v, sh, open, light),
                 };
             }
         });
@@ -384,6 +392,43 @@ fn build_sides(
     }
 }
 
+/// Sun altitude of the sky-visibility test: a direction counts as hidden when the terrain rises
+/// above this angle in it. A crude openness estimate (eight directions, one angle); common
+/// practice, no source.
+const SKY_TEST_ALT_DEG: f64 = 15.0;
+/// Directions of the sky-visibility test.
+const SKY_DIRECTIONS: usize = 8;
+
+/// Fills `b.sky` with `1 − darkening × (share of hidden directions)` for every reduced cell, using
+/// the cast-shadow sweep toward each of eight compass directions.
+fn sky_visibility_into(b: &mut Buffers, darkening: f32) {
+    let n = b.lr * b.lc;
+    b.sky.clear();
+    b.sky.resize(n, 0.0);
+    b.sky_dir.resize(n, 0.0);
+    for j in 0..SKY_DIRECTIONS {
+        let az = (j as f64 + 0.5) * 360.0 / SKY_DIRECTIONS as f64;
+        cast_shadow_into(
+            &b.zk,
+            b.lr,
+            b.lc,
+            b.dx,
+            b.dy,
+            az,
+            SKY_TEST_ALT_DEG,
+            1.0,
+            &mut b.sky_dir,
+            &mut b.scratch,
+        );
+        b.sky
+            .par_iter_mut()
+            .zip(b.sky_dir.par_iter())
+            .for_each(|(s, d)| *s += d);
+    }
+    let scale = darkening / SKY_DIRECTIONS as f32;
+    b.sky.par_iter_mut().for_each(|s| *s = 1.0 - scale * *s);
+}
+
 fn lin(rgb: [u8; 3]) -> [f32; 3] {
     rgb.map(|c| srgb_to_linear(c as f32 / 255.0))
 }
@@ -443,11 +488,16 @@ pub(super) fn render(
                 &mut b.scratch,
             );
         }
+        let darkening = r.light.hollow_darkening as f32;
+        if darkening > 0.0 {
+            sky_visibility_into(b, darkening);
+        }
         let (lo, hi) = r.range_m;
         let inv_range = 1.0 / (hi - lo);
         let zk = &b.zk;
         let ramp = &b.elevation_ramp;
         let shadow = r.light.shadows.then_some(&b.shadow[..]);
+        let sky = (darkening > 0.0).then_some(&b.sky[..]);
         let elevation = move |i: usize| ramp.at((zk[i] / k - lo) * inv_range);
         let (xs, ys) = (&b.xs, &b.ys);
         let (west, south, east, north) = g.extent();
@@ -466,6 +516,7 @@ pub(super) fn render(
                     b.dy,
                     &cam,
                     shadow,
+                    sky,
                     &light,
                     &elevation,
                     &mut b.verts,
@@ -500,6 +551,7 @@ pub(super) fn render(
                     b.dy,
                     &cam,
                     shadow,
+                    sky,
                     &light,
                     &albedo,
                     &mut b.verts,
@@ -523,6 +575,7 @@ pub(super) fn render(
                     b.dy,
                     &cam,
                     shadow,
+                    sky,
                     &light,
                     &albedo,
                     &mut b.verts,
@@ -539,6 +592,7 @@ pub(super) fn render(
                     b.dy,
                     &cam,
                     shadow,
+                    sky,
                     &light,
                     &elevation,
                     &mut b.verts,
@@ -586,6 +640,7 @@ pub(super) fn render(
             b.dx,
             b.dy,
             &cam,
+            None,
             None,
             &light,
             &albedo,

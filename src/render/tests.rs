@@ -367,6 +367,50 @@ fn level_of_detail_never_exceeds_the_samples_on_screen() {
 }
 
 #[test]
+fn hollows_are_darkened_only_when_asked() {
+    // A plain with a narrow, deep pit in the middle, seen from straight above, lit by ambient only.
+    let mut z = Array2::from_elem((41, 41), 10.0f32);
+    for r in 18..23 {
+        for c in 18..23 {
+            z[[r, c]] = 0.0;
+        }
+    }
+    let s = surface(z, 1.0);
+    let view = ViewOptions {
+        elevation_deg: 90.0,
+        vertical_exaggeration: 1.0,
+        ..plain_view()
+    };
+    let ambient_only = LightOptions {
+        ambient: 1.0,
+        diffuse: 0.0,
+        specular: 0.0,
+        ..Default::default()
+    };
+    let dark = LightOptions {
+        hollow_darkening: 1.0,
+        ..ambient_only.clone()
+    };
+    let mut f0 = Frame::new(96, 64);
+    let mut f1 = Frame::new(96, 64);
+    Renderer::new(&s.geometry, &view, &ambient_only, (0.0, 10.0))
+        .unwrap()
+        .render_into(&s, 0.0, &mut f0);
+    Renderer::new(&s.geometry, &view, &dark, (0.0, 10.0))
+        .unwrap()
+        .render_into(&s, 0.0, &mut f1);
+    let sum = |p: [u8; 3]| p.iter().map(|&v| v as u32).sum::<u32>();
+    // The pit floor loses light; the open plain far from it does not.
+    assert!(
+        sum(px(&f1, 48, 32)) + 20 < sum(px(&f0, 48, 32)),
+        "{:?} {:?}",
+        px(&f1, 48, 32),
+        px(&f0, 48, 32)
+    );
+    assert_eq!(px(&f1, 30, 12), px(&f0, 30, 12));
+}
+
+#[test]
 fn options_read_from_yaml_with_defaults_and_reject_unknown_keys() {
     let v: ViewOptions = serde_yaml::from_str("orbit_deg: 90\nsupersample: 3\n").unwrap();
     assert_eq!((v.orbit_deg, v.supersample, v.width), (90.0, 3, 960));
@@ -387,7 +431,16 @@ fn busy_scene(threads: usize) -> Frame {
         orbit_deg: 200.0,
         ..Default::default()
     };
-    let mut r = Renderer::new(&s.geometry, &view, &LightOptions::default(), (0.0, 15.0)).unwrap();
+    let mut r = Renderer::new(
+        &s.geometry,
+        &view,
+        &LightOptions {
+            hollow_darkening: 0.5,
+            ..Default::default()
+        },
+        (0.0, 15.0),
+    )
+    .unwrap();
     r.set_water(&WaterOptions {
         level_m: Some(4.0),
         ..Default::default()
