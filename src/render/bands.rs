@@ -14,8 +14,9 @@ use rayon::prelude::*;
 use super::camera::NEAR_M;
 use super::ramp::Encoder;
 use super::raster::{draw_triangle, draw_triangle_layer, Band, Vert};
-use super::scene::{CamF, Light, Side};
+use super::scene::{CamF, Light};
 use super::shade::{blinn_phong, dot3};
+use super::sides::Side;
 
 /// Output rows per band: 45 bands on a 720-row frame, a few per thread and cheap to bin into.
 pub(super) const BAND_OUT_ROWS: usize = 16;

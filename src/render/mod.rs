@@ -12,16 +12,22 @@
 //!   exaggeration) to a pixel, for labels; `north_px` and `metres_per_px` serve a north arrow and a
 //!   scale bar.
 //!
+//! Beyond the contract: `Renderer::set_water`, `Renderer::set_shell` and
+//! `Renderer::render_scene_into(surface, shell, colouring, orbit_fraction, frame)` add a water plane,
+//! a translucent second surface and colouring by change (DEM of difference) or by a draped RGB
+//! raster. Options (`options.rs`) deserialise straight from the job YAML.
+//!
 //! Pipeline of one frame (files of this module):
 //! 1. `lod.rs`: the surface is reduced to the level of detail chosen once per job from the projected
 //!    cell size, heights multiplied by the vertical exaggeration.
-//! 2. `shadow.rs`: cast shadows from the sun's horizon over that level.
-//! 3. `scene.rs`: per vertex, Horn normals (`shade.rs`), elevation colour (`ramp.rs`), Lambert +
-//!    ambient + Blinn-Phong light, projection through the look-at camera (`camera.rs`); triangles
-//!    binned to row bands; block sides and an optional translucent shell surface and water plane.
-//! 4. `raster.rs`: each row band (in parallel, rayon) fills its sky gradient, rasterises its
-//!    triangles with a depth buffer, composites translucent layers, then averages the supersamples
-//!    and encodes linear light to sRGB bytes into its rows of the frame.
+//! 2. `shadow.rs`: cast shadows from the sun's horizon over that level (and, if asked, the sky
+//!    visibility that darkens hollows).
+//! 3. `scene.rs`: per vertex, Horn normals (`shade.rs`), colour (`ramp.rs`), Lambert + ambient +
+//!    Blinn-Phong light, projection through the look-at camera (`camera.rs`); triangles binned to
+//!    row bands; the block's sides (`sides.rs`); the shell surface likewise.
+//! 4. `bands.rs` with `raster.rs`: each row band (in parallel, rayon) fills its sky gradient,
+//!    rasterises its triangles with a depth buffer, blends the shell and the water plane, then
+//!    averages the supersamples and encodes linear light to sRGB bytes into its rows of the frame.
 //!
 //! Determinism: every parallel step writes disjoint outputs computed from inputs fixed before the
 //! step, in a fixed order, so the frame is bit-identical for any thread count.
@@ -35,6 +41,7 @@ pub mod raster;
 mod scene;
 pub mod shade;
 pub mod shadow;
+mod sides;
 mod synthetic;
 
 use crate::grid::GridGeometry;

@@ -14,6 +14,7 @@ use super::ramp::{srgb_to_linear, Encoder, Ramp};
 use super::raster::Vert;
 use super::shade::{blinn_phong, dot3, horn_gradient, lambert, normal, sun_vector};
 use super::shadow::cast_shadow_into;
+use super::sides::{self, Side};
 use super::{Colouring, Frame, FrameView, Renderer, ViewOptions};
 use crate::grid::GridGeometry;
 use crate::interp::Surface;
@@ -24,21 +25,21 @@ const CHUNK_QUAD_ROWS: usize = 8;
 /// Per-job buffers of the renderer.
 #[derive(Debug)]
 pub(crate) struct Buffers {
-    lr: usize,
-    lc: usize,
+    pub(super) lr: usize,
+    pub(super) lc: usize,
     /// Local metres (east, north) of each reduced column / row.
-    xs: Vec<f32>,
-    ys: Vec<f32>,
+    pub(super) xs: Vec<f32>,
+    pub(super) ys: Vec<f32>,
     /// Cell size of the reduced level in metres.
     dx: f32,
     dy: f32,
-    zk: Vec<f32>,
+    pub(super) zk: Vec<f32>,
     shadow: Vec<f32>,
     sky: Vec<f32>,
     sky_dir: Vec<f32>,
     scratch: Vec<f32>,
     change: Vec<f32>,
-    verts: Vec<Vert>,
+    pub(super) verts: Vec<Vert>,
     bins: Vec<Vec<Vec<u32>>>,
     shell_zk: Vec<f32>,
     shell_verts: Vec<Vert>,
@@ -52,14 +53,6 @@ pub(crate) struct Buffers {
     elevation_ramp: Ramp,
     change_ramp: Ramp,
     encoder: Encoder,
-}
-
-/// One quad of the block's side: top edge (a, b) and base (b, a), front-facing already decided.
-#[derive(Debug, Clone, Copy)]
-pub(super) struct Side {
-    pub(super) v: [Vert; 4],
-    pub(super) ymin: f32,
-    pub(super) ymax: f32,
 }
 
 fn n_bins(lr: usize, ih: usize, ss: usize) -> (usize, usize) {
@@ -147,7 +140,7 @@ impl CamF {
         }
     }
     #[inline]
-    fn project(&self, p: [f32; 3]) -> (f32, f32, f32) {
+    pub(super) fn project(&self, p: [f32; 3]) -> (f32, f32, f32) {
         let d = [p[0] - self.eye[0], p[1] - self.eye[1], p[2] - self.eye[2]];
         let zc = dot3(d, self.fwd);
         if zc <= NEAR_M as f32 {
@@ -321,115 +314,7 @@ fn bin_quads(
     });
 }
 
-/// Front-facing side quads of the block around the reduced grid.
-#[allow(clippy::too_many_arguments)]
-fn build_sides(
-    out: &mut Vec<Side>,
-    b: &Buffers,
-    cam: &CamF,
-    base_k: f32,
-    side_lin: [f32; 3],
-    light: &Light,
-) {
-    out.clear();
-    let (lr, lc) = (b.lr, b.lc);
-    // (vertex index a, vertex index b, outward normal) along each edge; a→b runs so that the quad
-    // (a, b, base b, base a) is front-facing seen from outside.
-    let mut push = |ia: usize, ib: usize, n: [f32; 3], pa: [f32; 2], pb: [f32; 2]| {
-        let (va, vb) = (b.verts[ia], b.verts[ib]);
-        if !va.x.is_finite() || !vb.x.is_finite() {
-            return;
-        }
-        let mid = [
-            (pa[0] + pb[0]) / 2.0,
-            (pa[1] + pb[1]) / 2.0,
-            (b.zk[ia] + b.zk[ib]) / 2.0,
-        ];
-        let to_eye = [
-            cam.eye[0] - mid[0],
-            cam.eye[1] - mid[1],
-            cam.eye[2] - mid[2],
-        ];
-        if dot3(n, to_eye) <= 0.0 {
-            return;
-        }
-        let shade = (light.ambient + light.diffuse * lambert(n, light.sun)) * light.intensity;
-        let top = side_lin.map(|c| c * shade);
-        let bottom = side_lin.map(|c| c * shade * 0.55);
-        let base = |p: [f32; 2], rgb: [f32; 3]| {
-            let (x, y, iz) = cam.project([p[0], p[1], base_k]);
-            Vert { x, y, iz, rgb }
-        };
-        let v = [
-            Vert { rgb: top, ..va },
-            Vert { rgb: top, ..vb },
-            base(pb, bottom),
-            base(pa, bottom),
-        ];
-        if v.iter().any(|v| !v.x.is_finite()) {
-            return;
-        }
-        let ymin = v.iter().map(|v| v.y).fold(f32::MAX, f32::min);
-        let ymax = v.iter().map(|v| v.y).fold(f32::MIN, f32::max);
-        out.push(Side { v, ymin, ymax });
-    };
-    let (x0, x1, y0, y1) = (b.xs[0], b.xs[lc - 1], b.ys[0], b.ys[lr - 1]);
-    for c in 0..lc - 1 {
-        push(c, c + 1, [0.0, 1.0, 0.0], [b.xs[c], y0], [b.xs[c + 1], y0]);
-        let (ia, ib) = ((lr - 1) * lc + c, (lr - 1) * lc + c + 1);
-        push(ia, ib, [0.0, -1.0, 0.0], [b.xs[c], y1], [b.xs[c + 1], y1]);
-    }
-    for r in 0..lr - 1 {
-        push(
-            r * lc,
-            (r + 1) * lc,
-            [-1.0, 0.0, 0.0],
-            [x0, b.ys[r]],
-            [x0, b.ys[r + 1]],
-        );
-        let (ia, ib) = (r * lc + lc - 1, (r + 1) * lc + lc - 1);
-        push(ia, ib, [1.0, 0.0, 0.0], [x1, b.ys[r]], [x1, b.ys[r + 1]]);
-    }
-}
-
-/// Sun altitude of the sky-visibility test: a direction counts as hidden when the terrain rises
-/// above this angle in it. A crude openness estimate (eight directions, one angle); common
-/// practice, no source.
-const SKY_TEST_ALT_DEG: f64 = 15.0;
-/// Directions of the sky-visibility test.
-const SKY_DIRECTIONS: usize = 8;
-
-/// Fills `b.sky` with `1 − darkening × (share of hidden directions)` for every reduced cell, using
-/// the cast-shadow sweep toward each of eight compass directions.
-fn sky_visibility_into(b: &mut Buffers, darkening: f32) {
-    let n = b.lr * b.lc;
-    b.sky.clear();
-    b.sky.resize(n, 0.0);
-    b.sky_dir.resize(n, 0.0);
-    for j in 0..SKY_DIRECTIONS {
-        let az = (j as f64 + 0.5) * 360.0 / SKY_DIRECTIONS as f64;
-        cast_shadow_into(
-            &b.zk,
-            b.lr,
-            b.lc,
-            b.dx,
-            b.dy,
-            az,
-            SKY_TEST_ALT_DEG,
-            1.0,
-            &mut b.sky_dir,
-            &mut b.scratch,
-        );
-        b.sky
-            .par_iter_mut()
-            .zip(b.sky_dir.par_iter())
-            .for_each(|(s, d)| *s += d);
-    }
-    let scale = darkening / SKY_DIRECTIONS as f32;
-    b.sky.par_iter_mut().for_each(|s| *s = 1.0 - scale * *s);
-}
-
-fn lin(rgb: [u8; 3]) -> [f32; 3] {
+pub(super) fn lin(rgb: [u8; 3]) -> [f32; 3] {
     rgb.map(|c| srgb_to_linear(c as f32 / 255.0))
 }
 
@@ -490,7 +375,17 @@ pub(super) fn render(
         }
         let darkening = r.light.hollow_darkening as f32;
         if darkening > 0.0 {
-            sky_visibility_into(b, darkening);
+            super::shadow::sky_visibility_into(
+                &b.zk,
+                b.lr,
+                b.lc,
+                b.dx,
+                b.dy,
+                darkening,
+                &mut b.sky,
+                &mut b.sky_dir,
+                &mut b.scratch,
+            );
         }
         let (lo, hi) = r.range_m;
         let inv_range = 1.0 / (hi - lo);
@@ -603,7 +498,7 @@ pub(super) fn render(
         bin_quads(&b.verts, lr, lc, band_rows, b.iw, &mut b.bins);
         let mut sides = std::mem::take(&mut b.sides);
         if v.block_sides {
-            build_sides(&mut sides, b, &cam, r.base_m * k, lin(v.side_rgb), &light);
+            sides::build_sides(&mut sides, b, &cam, r.base_m * k, lin(v.side_rgb), &light);
         } else {
             sides.clear();
         }
