@@ -174,4 +174,31 @@ fn write_previews() {
     let mut f = Frame::new(640, 480);
     r.render_into(&s, 0.0, &mut f);
     save("low-sun-east.png", &f);
+    let west = LightOptions {
+        azimuth_deg: 260.0,
+        altitude_deg: 12.0,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &west, (0.0, 16.0)).unwrap();
+    r.render_into(&s, 0.0, &mut f);
+    save("low-sun-west.png", &f);
+    let hollows = LightOptions {
+        hollow_darkening: 0.8,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &hollows, (0.0, 16.0)).unwrap();
+    r.render_into(&s, 0.0, &mut f);
+    save("hollows.png", &f);
+    let orbit = ViewOptions {
+        width: 480,
+        height: 270,
+        orbit_deg: 360.0,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &orbit, &LightOptions::default(), (0.0, 16.0)).unwrap();
+    let mut f = Frame::new(480, 270);
+    for (i, t) in [0.25, 0.5, 0.75].iter().enumerate() {
+        r.render_into(&s, *t, &mut f);
+        save(&format!("orbit-{i}.png"), &f);
+    }
 }

@@ -12,32 +12,45 @@
 //!   exaggeration) to a pixel, for labels; `north_px` and `metres_per_px` serve a north arrow and a
 //!   scale bar.
 //!
+//! Beyond the contract: `Renderer::set_water`, `Renderer::set_shell` and
+//! `Renderer::render_scene_into(surface, shell, colouring, orbit_fraction, frame)` add a water plane,
+//! a translucent second surface and colouring by change (DEM of difference) or by a draped RGB
+//! raster. Options (`options.rs`) deserialise straight from the job YAML.
+//!
 //! Pipeline of one frame (files of this module):
 //! 1. `lod.rs`: the surface is reduced to the level of detail chosen once per job from the projected
 //!    cell size, heights multiplied by the vertical exaggeration.
-//! 2. `shadow.rs`: cast shadows from the sun's horizon over that level.
-//! 3. `scene.rs`: per vertex, Horn normals (`shade.rs`), elevation colour (`ramp.rs`), Lambert +
-//!    ambient + Blinn-Phong light, projection through the look-at camera (`camera.rs`); triangles
-//!    binned to row bands; block sides and an optional translucent shell surface and water plane.
-//! 4. `raster.rs`: each row band (in parallel, rayon) fills its sky gradient, rasterises its
-//!    triangles with a depth buffer, composites translucent layers, then averages the supersamples
-//!    and encodes linear light to sRGB bytes into its rows of the frame.
+//! 2. `shadow.rs`: cast shadows from the sun's horizon over that level (and, if asked, the sky
+//!    visibility that darkens hollows).
+//! 3. `scene.rs`: per vertex, Horn normals (`shade.rs`), colour (`ramp.rs`), Lambert + ambient +
+//!    Blinn-Phong light, projection through the look-at camera (`camera.rs`); triangles binned to
+//!    row bands; the block's sides (`sides.rs`); the shell surface likewise.
+//! 4. `bands.rs` with `raster.rs`: each row band (in parallel, rayon) fills its sky gradient,
+//!    rasterises its triangles with a depth buffer, blends the shell and the water plane, then
+//!    averages the supersamples and encodes linear light to sRGB bytes into its rows of the frame.
 //!
 //! Determinism: every parallel step writes disjoint outputs computed from inputs fixed before the
 //! step, in a fixed order, so the frame is bit-identical for any thread count.
 
+mod bands;
 pub mod camera;
 pub mod lod;
+mod options;
 pub mod ramp;
 pub mod raster;
 mod scene;
 pub mod shade;
 pub mod shadow;
+mod sides;
+mod synthetic;
 
 use crate::grid::GridGeometry;
 use crate::interp::Surface;
 
 pub use camera::Camera;
+pub use options::{
+    Colouring, Drape, LightOptions, ShellOptions, ViewOptions, WaterOptions, MAX_FRAME_PX,
+};
 
 /// An RGBA image that frames are rendered into, then labelled, then encoded.
 #[derive(Debug, Clone, PartialEq)]
@@ -61,186 +74,6 @@ impl Frame {
             rgba,
         }
     }
-}
-
-/// Largest frame side accepted, in pixels.
-pub const MAX_FRAME_PX: u32 = 8192;
-
-/// Where the camera stands and how it moves, plus the scene around the terrain.
-#[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
-#[serde(deny_unknown_fields, default)]
-pub struct ViewOptions {
-    /// Frame width in pixels, 1 to 8192. Default: 960.
-    pub width: u32,
-    /// Frame height in pixels, 1 to 8192. Default: 540.
-    pub height: u32,
-    /// Compass bearing, in degrees clockwise from north, of the direction the camera looks. Default: 20.
-    pub facing_deg: f64,
-    /// Angle of the line of sight below the horizon, in degrees (90 = straight down), 5 to 90. Default: 35.
-    pub elevation_deg: f64,
-    /// Distance from the camera to the target in metres; absent = fit the whole grid in view. Default: fit.
-    pub distance_m: Option<f64>,
-    /// Point looked at, `[x, y]` in map coordinates; absent = the grid's centre. Default: centre.
-    pub target: Option<[f64; 2]>,
-    /// Vertical field of view in degrees, 5 to 120. Default: 40.
-    pub fov_deg: f64,
-    /// Degrees the camera turns around the target over the whole animation (0 = fixed; 720 = two
-    /// turns; negative turns anticlockwise seen from above). Default: 0.
-    pub orbit_deg: f64,
-    /// Ease the orbit in and out (zero turning speed at the first and last frame). Default: true.
-    pub orbit_easing: bool,
-    /// Heights are multiplied by this for display (geometry, normals and shadows alike). Default: 2.
-    pub vertical_exaggeration: f64,
-    /// Anti-aliasing: each pixel is the mean of supersample × supersample samples, 1 to 4. Default: 2.
-    pub supersample: u32,
-    /// Level of detail: grids are reduced until a cell spans at least this many (supersampled)
-    /// pixels at the target, 0.5 to 16. Default: 2.
-    pub lod_min_cell_px: f64,
-    /// Draw the terrain block's sides down to `base_m`. Default: true.
-    pub block_sides: bool,
-    /// Elevation in metres of the block's base; absent = 20 % of the elevation range below the lowest
-    /// elevation, less 1 m. Default: automatic.
-    pub base_m: Option<f64>,
-    /// Colour of the block's sides, sRGB. Default: [150, 124, 96].
-    pub side_rgb: [u8; 3],
-    /// Sky colour at the top of the frame, sRGB. Default: [92, 136, 190].
-    pub sky_top_rgb: [u8; 3],
-    /// Sky colour at the bottom of the frame, sRGB. Default: [222, 230, 238].
-    pub sky_bottom_rgb: [u8; 3],
-}
-
-impl Default for ViewOptions {
-    fn default() -> Self {
-        ViewOptions {
-            width: 960,
-            height: 540,
-            facing_deg: 20.0,
-            elevation_deg: 35.0,
-            distance_m: None,
-            target: None,
-            fov_deg: 40.0,
-            orbit_deg: 0.0,
-            orbit_easing: true,
-            vertical_exaggeration: 2.0,
-            supersample: 2,
-            lod_min_cell_px: 2.0,
-            block_sides: true,
-            base_m: None,
-            side_rgb: [150, 124, 96],
-            sky_top_rgb: [92, 136, 190],
-            sky_bottom_rgb: [222, 230, 238],
-        }
-    }
-}
-
-impl ViewOptions {
-    /// A small, quick view for previews and tests: 320 × 180, no supersampling.
-    pub fn preview() -> Self {
-        ViewOptions {
-            width: 320,
-            height: 180,
-            supersample: 1,
-            ..Default::default()
-        }
-    }
-}
-
-/// The sun and the surface's response to it.
-#[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
-#[serde(deny_unknown_fields, default)]
-pub struct LightOptions {
-    /// Sun azimuth, compass degrees clockwise from north, in [0, 360). Default: 315.
-    pub azimuth_deg: f64,
-    /// Sun altitude above the horizon in degrees, in (0, 90]. Default: 40.
-    pub altitude_deg: f64,
-    /// Share of light that reaches every surface regardless of orientation, in [0, 1]. Default: 0.25.
-    pub ambient: f64,
-    /// Weight of the Lambert (diffuse) term, 0 to 2. Default: 0.85.
-    pub diffuse: f64,
-    /// Weight of the Blinn-Phong (specular) highlight, 0 to 1. Default: 0.12.
-    pub specular: f64,
-    /// Blinn-Phong shininess exponent (larger = tighter highlight), 1 to 1000. Default: 40.
-    pub shininess: f64,
-    /// Overall light multiplier, above 0 and at most 10. Default: 1.
-    pub intensity: f64,
-    /// Cast shadows from the sun's horizon. Default: true.
-    pub shadows: bool,
-    /// Width of the shadow edge in cells of the drawn level (0 = hard edge), 0 to 10. Default: 1.
-    pub shadow_softness_cells: f64,
-}
-
-impl Default for LightOptions {
-    fn default() -> Self {
-        LightOptions {
-            azimuth_deg: 315.0,
-            altitude_deg: 40.0,
-            ambient: 0.25,
-            diffuse: 0.85,
-            specular: 0.12,
-            shininess: 40.0,
-            intensity: 1.0,
-            shadows: true,
-            shadow_softness_cells: 1.0,
-        }
-    }
-}
-
-/// A flat water surface (a tidal datum, a flood level) drawn translucent over the terrain.
-#[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
-#[serde(deny_unknown_fields, default)]
-pub struct WaterOptions {
-    /// Water level in metres (same datum as the grids); absent = no water. Default: none.
-    pub level_m: Option<f64>,
-    /// Water colour, sRGB. Default: [40, 110, 170].
-    pub rgb: [u8; 3],
-    /// Opacity of the water, 0 (clear) to 1 (opaque). Default: 0.55.
-    pub opacity: f64,
-}
-
-impl Default for WaterOptions {
-    fn default() -> Self {
-        WaterOptions {
-            level_m: None,
-            rgb: [40, 110, 170],
-            opacity: 0.55,
-        }
-    }
-}
-
-/// A second surface (an earlier survey, a bedrock grid) drawn as a translucent shell.
-#[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
-#[serde(deny_unknown_fields, default)]
-pub struct ShellOptions {
-    /// Shell colour, sRGB. Default: [235, 235, 240].
-    pub rgb: [u8; 3],
-    /// Opacity of the shell, 0 to 1. Default: 0.35.
-    pub opacity: f64,
-}
-
-impl Default for ShellOptions {
-    fn default() -> Self {
-        ShellOptions {
-            rgb: [235, 235, 240],
-            opacity: 0.35,
-        }
-    }
-}
-
-/// How a surface is coloured.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Colouring<'a> {
-    /// By elevation on the fixed elevation ramp.
-    Elevation,
-    /// By change since a reference surface (same geometry), on a diverging ramp centred on zero,
-    /// symmetric to ±`limit_m`; |change| below `lod_m` is drawn neutral.
-    Change {
-        /// The earlier surface's elevations, row-major, same shape as the rendered surface.
-        reference: &'a ndarray::Array2<f32>,
-        /// Change in metres mapped to the ends of the ramp (> 0).
-        limit_m: f32,
-        /// Level of detection in metres: smaller changes are drawn as no change.
-        lod_m: f32,
-    },
 }
 
 /// What a rendered frame needs to place labels: the camera of that frame.
@@ -317,6 +150,47 @@ fn check(ok: bool, msg: impl FnOnce() -> String) -> Result<(), String> {
     }
 }
 
+/// When `view.eye` is set, the facing, elevation and distance it implies (checked), else the view.
+fn apply_eye(
+    g: &GridGeometry,
+    view: &ViewOptions,
+    range_m: (f32, f32),
+) -> Result<ViewOptions, String> {
+    let Some([ex, ey, ez]) = view.eye else {
+        return Ok(view.clone());
+    };
+    check(ex.is_finite() && ey.is_finite() && ez.is_finite(), || {
+        format!("view.eye: [{ex}, {ey}, {ez}] is not three numbers; give [x, y, elevation_m]")
+    })?;
+    let (west, south, east, north) = g.extent();
+    let [tx, ty] = view
+        .target
+        .unwrap_or([(west + east) / 2.0, (south + north) / 2.0]);
+    let unit = g.horizontal_unit.metres();
+    let k = view.vertical_exaggeration;
+    let tz = f64::from(range_m.0 + range_m.1) / 2.0 * k;
+    let d = [(tx - ex) * unit, (ty - ey) * unit, tz - ez * k];
+    let horiz = (d[0] * d[0] + d[1] * d[1]).sqrt();
+    let dist = (horiz * horiz + d[2] * d[2]).sqrt();
+    let elevation_deg = (-d[2]).atan2(horiz).to_degrees();
+    check((5.0..=90.0).contains(&elevation_deg), || {
+        format!(
+            "view.eye: from [{ex}, {ey}, {ez}] the line of sight to the target is {elevation_deg:.1}° below the horizon; raise the eye so it looks down by 5° to 90°"
+        )
+    })?;
+    let facing_deg = if horiz > 1e-9 {
+        d[0].atan2(d[1]).to_degrees().rem_euclid(360.0)
+    } else {
+        view.facing_deg
+    };
+    Ok(ViewOptions {
+        facing_deg,
+        elevation_deg,
+        distance_m: Some(dist),
+        ..view.clone()
+    })
+}
+
 impl Renderer {
     /// Checks the options against the grid and allocates per-job buffers.
     ///
@@ -324,15 +198,17 @@ impl Renderer {
     /// A message naming the option at fault and the fix.
     ///
     /// # Allocations
-    /// The frame-sized colour and depth buffers (16 bytes a supersample) and the reduced-level
-    /// vertex buffers, once.
+    /// The frame-sized depth buffer (4 bytes a supersample) and the reduced-level vertex buffers
+    /// (at most one vertex per supersample), once; each rayon thread also keeps one band's colour
+    /// scratch (12 bytes a supersample of 16 output rows).
     pub fn new(
         geometry: &GridGeometry,
         view: &ViewOptions,
         light: &LightOptions,
         elevation_range_m: (f32, f32),
     ) -> Result<Renderer, String> {
-        let v = view;
+        let derived = apply_eye(geometry, view, elevation_range_m)?;
+        let v = &derived;
         check((1..=MAX_FRAME_PX).contains(&v.width), || {
             format!("view.width: {} is outside 1..={MAX_FRAME_PX}; give the frame width in pixels, e.g. 960", v.width)
         })?;
@@ -425,6 +301,7 @@ impl Renderer {
             ("specular", l.specular, 0.0, 1.0),
             ("shininess", l.shininess, 1.0, 1000.0),
             ("shadow_softness_cells", l.shadow_softness_cells, 0.0, 10.0),
+            ("hollow_darkening", l.hollow_darkening, 0.0, 1.0),
         ] {
             check(val.is_finite() && (lo..=hi).contains(&val), || {
                 format!("light.{name}: {val} is outside {lo}..={hi}")
@@ -539,12 +416,23 @@ impl Renderer {
                     .fold(0.0, f64::max)
             }
         };
-        // Level of detail from the projected cell size at the target.
-        let focal_int = (f64::from(v.height) / 2.0) / (v.fov_deg.to_radians() / 2.0).tan()
-            * f64::from(v.supersample);
+        // Level of detail from the projected cell size at the target, in output pixels (so the
+        // supersampling factor buys smoother edges, not four times the triangles: at 1280x720 a
+        // 1024² grid costs 56 ms a frame at cells of 1 output pixel against 33 ms at 2, bench
+        // `render`, 1 thread, 2x2 supersampling).
+        let focal_out = (f64::from(v.height) / 2.0) / (v.fov_deg.to_radians() / 2.0).tan();
         let cell_m = geometry.cell_x_m().min(geometry.cell_y_m());
-        let cell_px = cell_m * focal_int / distance_m;
-        let level = lod::choose_level(cell_px, v.lod_min_cell_px, geometry.rows, geometry.cols);
+        let cell_px = cell_m * focal_out / distance_m;
+        let mut level = lod::choose_level(cell_px, v.lod_min_cell_px, geometry.rows, geometry.cols);
+        // Never more vertices than samples on the frame: finer levels cannot show more and would
+        // only cost memory (a 4096² grid at level 0 needs about 0.6 GB of vertex buffers).
+        let samples = (samples as usize).max(1);
+        while level < lod::max_level(geometry.rows, geometry.cols) && {
+            let (lr, lc) = lod::level_shape(geometry.rows, geometry.cols, level);
+            lr * lc > samples
+        } {
+            level += 1;
+        }
         log::debug!("render: level of detail {level} (cell {cell_px:.2} px at the target), distance {distance_m:.1} m");
         let buffers = scene::Buffers::new(geometry, v, level);
         Ok(Renderer {
@@ -666,7 +554,7 @@ impl Renderer {
 #[doc(hidden)]
 /// Internals for benches; not part of the public API.
 pub mod bench_api {
-    pub use super::scene::synthetic_dunes;
+    pub use super::synthetic::synthetic_dunes;
 }
 
 #[cfg(test)]

@@ -1,4 +1,5 @@
-//! One frame: reduced heights -> lit, projected vertices -> binned triangles -> row bands -> sRGB frame.
+//! One frame's preparation: reduced heights -> shadows -> lit, projected vertices -> triangles
+//! binned to row bands and the block's sides; `bands.rs` then draws the bands.
 //!
 //! Buffers are made once per job in [`Buffers::new`] and reused; the translucent shell's buffers are
 //! made on the first frame that draws a shell. Every parallel step writes disjoint outputs, so the
@@ -6,37 +7,39 @@
 
 use rayon::prelude::*;
 
+use super::bands::{self, BandScene, BAND_OUT_ROWS};
 use super::camera::{Camera, NEAR_M};
 use super::lod;
 use super::ramp::{srgb_to_linear, Encoder, Ramp};
-use super::raster::{draw_triangle, draw_triangle_layer, Band, Vert};
+use super::raster::Vert;
 use super::shade::{blinn_phong, dot3, horn_gradient, lambert, normal, sun_vector};
 use super::shadow::cast_shadow_into;
+use super::sides::{self, Side};
 use super::{Colouring, Frame, FrameView, Renderer, ViewOptions};
 use crate::grid::GridGeometry;
 use crate::interp::Surface;
 
-/// Output rows per band: 45 bands on a 720-row frame, a few per thread and cheap to bin into.
-const BAND_OUT_ROWS: usize = 16;
 /// Quad rows per binning chunk.
 const CHUNK_QUAD_ROWS: usize = 8;
 
 /// Per-job buffers of the renderer.
 #[derive(Debug)]
 pub(crate) struct Buffers {
-    lr: usize,
-    lc: usize,
+    pub(super) lr: usize,
+    pub(super) lc: usize,
     /// Local metres (east, north) of each reduced column / row.
-    xs: Vec<f32>,
-    ys: Vec<f32>,
+    pub(super) xs: Vec<f32>,
+    pub(super) ys: Vec<f32>,
     /// Cell size of the reduced level in metres.
     dx: f32,
     dy: f32,
-    zk: Vec<f32>,
+    pub(super) zk: Vec<f32>,
     shadow: Vec<f32>,
+    sky: Vec<f32>,
+    sky_dir: Vec<f32>,
     scratch: Vec<f32>,
     change: Vec<f32>,
-    verts: Vec<Vert>,
+    pub(super) verts: Vec<Vert>,
     bins: Vec<Vec<Vec<u32>>>,
     shell_zk: Vec<f32>,
     shell_verts: Vec<Vert>,
@@ -46,21 +49,10 @@ pub(crate) struct Buffers {
     ss: usize,
     iw: usize,
     ih: usize,
-    rgb: Vec<f32>,
     depth: Vec<f32>,
-    layer_rgb: Vec<f32>,
-    layer_depth: Vec<f32>,
     elevation_ramp: Ramp,
     change_ramp: Ramp,
     encoder: Encoder,
-}
-
-/// One quad of the block's side: top edge (a, b) and base (b, a), front-facing already decided.
-#[derive(Debug, Clone, Copy)]
-struct Side {
-    v: [Vert; 4],
-    ymin: f32,
-    ymax: f32,
 }
 
 fn n_bins(lr: usize, ih: usize, ss: usize) -> (usize, usize) {
@@ -100,6 +92,8 @@ impl Buffers {
             dy: (cym * b as f64) as f32,
             zk: vec![0.0; n],
             shadow: vec![0.0; n],
+            sky: Vec::new(),
+            sky_dir: Vec::new(),
             scratch: Vec::new(),
             change: Vec::new(),
             verts: vec![Vert::default(); n],
@@ -112,10 +106,7 @@ impl Buffers {
             ss,
             iw,
             ih,
-            rgb: vec![0.0; iw * ih * 3],
             depth: vec![0.0; iw * ih],
-            layer_rgb: Vec::new(),
-            layer_depth: Vec::new(),
             elevation_ramp: Ramp::elevation(),
             change_ramp: Ramp::change(),
             encoder: Encoder::default(),
@@ -125,14 +116,14 @@ impl Buffers {
 
 /// Camera in f32 for the per-vertex loop.
 #[derive(Debug, Clone, Copy)]
-struct CamF {
-    eye: [f32; 3],
-    right: [f32; 3],
-    up: [f32; 3],
-    fwd: [f32; 3],
-    focal: f32,
-    half_w: f32,
-    half_h: f32,
+pub(super) struct CamF {
+    pub(super) eye: [f32; 3],
+    pub(super) right: [f32; 3],
+    pub(super) up: [f32; 3],
+    pub(super) fwd: [f32; 3],
+    pub(super) focal: f32,
+    pub(super) half_w: f32,
+    pub(super) half_h: f32,
 }
 
 impl CamF {
@@ -149,7 +140,7 @@ impl CamF {
         }
     }
     #[inline]
-    fn project(&self, p: [f32; 3]) -> (f32, f32, f32) {
+    pub(super) fn project(&self, p: [f32; 3]) -> (f32, f32, f32) {
         let d = [p[0] - self.eye[0], p[1] - self.eye[1], p[2] - self.eye[2]];
         let zc = dot3(d, self.fwd);
         if zc <= NEAR_M as f32 {
@@ -166,13 +157,13 @@ impl CamF {
 
 /// Light parameters in f32.
 #[derive(Debug, Clone, Copy)]
-pub(crate) struct Light {
-    pub(crate) sun: [f32; 3],
-    pub(crate) ambient: f32,
-    pub(crate) diffuse: f32,
-    pub(crate) specular: f32,
-    pub(crate) shininess: f32,
-    pub(crate) intensity: f32,
+pub(super) struct Light {
+    pub(super) sun: [f32; 3],
+    pub(super) ambient: f32,
+    pub(super) diffuse: f32,
+    pub(super) specular: f32,
+    pub(super) shininess: f32,
+    pub(super) intensity: f32,
 }
 
 impl Light {
@@ -189,17 +180,19 @@ impl Light {
 }
 
 /// Linear colour of a surface point: `I·(albedo·(ka + kd·max(0,n·s)·(1−shadow)) + ks·spec·(1−shadow))`
-/// (REFERENCES.md §1, "full pixel"); `v` points from the surface to the eye.
+/// (REFERENCES.md §1, "full pixel"), with the ambient term scaled by the sky visibility `sky`
+/// (1 = open); `v` points from the surface to the eye.
 #[inline]
 pub(crate) fn light_point(
     albedo: [f32; 3],
     n: [f32; 3],
     v: [f32; 3],
     shadow: f32,
+    sky: f32,
     l: &Light,
 ) -> [f32; 3] {
     let lit = 1.0 - shadow;
-    let d = l.ambient + l.diffuse * lambert(n, l.sun) * lit;
+    let d = l.ambient * sky + l.diffuse * lambert(n, l.sun) * lit;
     let s = if l.specular > 0.0 {
         l.specular * blinn_phong(n, l.sun, v, l.shininess) * lit
     } else {
@@ -230,6 +223,7 @@ fn vertex_pass(
     dy: f32,
     cam: &CamF,
     shadow: Option<&[f32]>,
+    sky: Option<&[f32]>,
     light: &Light,
     albedo: &(dyn Fn(usize) -> [f32; 3] + Sync),
     out: &mut [Vert],
@@ -258,11 +252,12 @@ fn vertex_pass(
                 let el = dot3(e, e).sqrt();
                 let v = [e[0] / el, e[1] / el, e[2] / el];
                 let sh = shadow.map_or(0.0, |s| s[i]);
+                let open = sky.map_or(1.0, |s| s[i]);
                 *o = Vert {
                     x,
                     y,
                     iz,
-                    rgb: light_point(albedo(i), n, v, sh, light),
+                    rgb: light_point(albedo(i), n, v, sh, open, light),
                 };
             }
         });
@@ -319,105 +314,7 @@ fn bin_quads(
     });
 }
 
-#[inline]
-fn draw_binned(
-    band: &mut Band,
-    bins: &[Vec<Vec<u32>>],
-    bi: usize,
-    verts: &[Vert],
-    lc: usize,
-    under: Option<&[f32]>,
-) {
-    for chunk in bins {
-        for &q in &chunk[bi] {
-            let i = q as usize;
-            let (a, b, c, d) = (&verts[i], &verts[i + 1], &verts[i + lc], &verts[i + lc + 1]);
-            match under {
-                None => {
-                    draw_triangle(band, a, b, c, false);
-                    draw_triangle(band, b, d, c, false);
-                }
-                Some(u) => {
-                    draw_triangle_layer(band, u, a, b, c);
-                    draw_triangle_layer(band, u, b, d, c);
-                }
-            }
-        }
-    }
-}
-
-/// Front-facing side quads of the block around the reduced grid.
-#[allow(clippy::too_many_arguments)]
-fn build_sides(
-    out: &mut Vec<Side>,
-    b: &Buffers,
-    cam: &CamF,
-    base_k: f32,
-    side_lin: [f32; 3],
-    light: &Light,
-) {
-    out.clear();
-    let (lr, lc) = (b.lr, b.lc);
-    // (vertex index a, vertex index b, outward normal) along each edge; a→b runs so that the quad
-    // (a, b, base b, base a) is front-facing seen from outside.
-    let mut push = |ia: usize, ib: usize, n: [f32; 3], pa: [f32; 2], pb: [f32; 2]| {
-        let (va, vb) = (b.verts[ia], b.verts[ib]);
-        if !va.x.is_finite() || !vb.x.is_finite() {
-            return;
-        }
-        let mid = [
-            (pa[0] + pb[0]) / 2.0,
-            (pa[1] + pb[1]) / 2.0,
-            (b.zk[ia] + b.zk[ib]) / 2.0,
-        ];
-        let to_eye = [
-            cam.eye[0] - mid[0],
-            cam.eye[1] - mid[1],
-            cam.eye[2] - mid[2],
-        ];
-        if dot3(n, to_eye) <= 0.0 {
-            return;
-        }
-        let shade = (light.ambient + light.diffuse * lambert(n, light.sun)) * light.intensity;
-        let top = side_lin.map(|c| c * shade);
-        let bottom = side_lin.map(|c| c * shade * 0.55);
-        let base = |p: [f32; 2], rgb: [f32; 3]| {
-            let (x, y, iz) = cam.project([p[0], p[1], base_k]);
-            Vert { x, y, iz, rgb }
-        };
-        let v = [
-            Vert { rgb: top, ..va },
-            Vert { rgb: top, ..vb },
-            base(pb, bottom),
-            base(pa, bottom),
-        ];
-        if v.iter().any(|v| !v.x.is_finite()) {
-            return;
-        }
-        let ymin = v.iter().map(|v| v.y).fold(f32::MAX, f32::min);
-        let ymax = v.iter().map(|v| v.y).fold(f32::MIN, f32::max);
-        out.push(Side { v, ymin, ymax });
-    };
-    let (x0, x1, y0, y1) = (b.xs[0], b.xs[lc - 1], b.ys[0], b.ys[lr - 1]);
-    for c in 0..lc - 1 {
-        push(c, c + 1, [0.0, 1.0, 0.0], [b.xs[c], y0], [b.xs[c + 1], y0]);
-        let (ia, ib) = ((lr - 1) * lc + c, (lr - 1) * lc + c + 1);
-        push(ia, ib, [0.0, -1.0, 0.0], [b.xs[c], y1], [b.xs[c + 1], y1]);
-    }
-    for r in 0..lr - 1 {
-        push(
-            r * lc,
-            (r + 1) * lc,
-            [-1.0, 0.0, 0.0],
-            [x0, b.ys[r]],
-            [x0, b.ys[r + 1]],
-        );
-        let (ia, ib) = (r * lc + lc - 1, (r + 1) * lc + lc - 1);
-        push(ia, ib, [1.0, 0.0, 0.0], [x1, b.ys[r]], [x1, b.ys[r + 1]]);
-    }
-}
-
-fn lin(rgb: [u8; 3]) -> [f32; 3] {
+pub(super) fn lin(rgb: [u8; 3]) -> [f32; 3] {
     rgb.map(|c| srgb_to_linear(c as f32 / 255.0))
 }
 
@@ -476,26 +373,47 @@ pub(super) fn render(
                 &mut b.scratch,
             );
         }
+        let darkening = r.light.hollow_darkening as f32;
+        if darkening > 0.0 {
+            super::shadow::sky_visibility_into(
+                &b.zk,
+                b.lr,
+                b.lc,
+                b.dx,
+                b.dy,
+                darkening,
+                &mut b.sky,
+                &mut b.sky_dir,
+                &mut b.scratch,
+            );
+        }
         let (lo, hi) = r.range_m;
         let inv_range = 1.0 / (hi - lo);
         let zk = &b.zk;
         let ramp = &b.elevation_ramp;
         let shadow = r.light.shadows.then_some(&b.shadow[..]);
+        let sky = (darkening > 0.0).then_some(&b.sky[..]);
+        let elevation = move |i: usize| ramp.at((zk[i] / k - lo) * inv_range);
+        let (xs, ys) = (&b.xs, &b.ys);
+        let (west, south, east, north) = g.extent();
+        let (cx, cy) = ((west + east) / 2.0, (south + north) / 2.0);
+        let unit = g.horizontal_unit.metres();
         match colouring {
-            Colouring::Elevation => {
-                let albedo = move |i: usize| ramp.at((zk[i] / k - lo) * inv_range);
+            Colouring::Change { reference, .. } if reference.dim() != (g.rows, g.cols) => {
+                log::warn!("render: change reference has the wrong shape; colouring by elevation");
                 vertex_pass(
                     zk,
                     lr,
                     lc,
-                    &b.xs,
-                    &b.ys,
+                    xs,
+                    ys,
                     b.dx,
                     b.dy,
                     &cam,
                     shadow,
+                    sky,
                     &light,
-                    &albedo,
+                    &elevation,
                     &mut b.verts,
                 );
             }
@@ -504,62 +422,83 @@ pub(super) fn render(
                 limit_m,
                 lod_m,
             } => {
-                if reference.dim() != (g.rows, g.cols) {
-                    log::warn!(
-                        "render: change reference has the wrong shape; colouring by elevation"
-                    );
-                    let albedo = move |i: usize| ramp.at((zk[i] / k - lo) * inv_range);
-                    vertex_pass(
-                        zk,
-                        lr,
-                        lc,
-                        &b.xs,
-                        &b.ys,
-                        b.dx,
-                        b.dy,
-                        &cam,
-                        shadow,
-                        &light,
-                        &albedo,
-                        &mut b.verts,
-                    );
-                } else {
-                    b.change.resize(lr * lc, 0.0);
-                    let zr = heights(reference, &mut b.z_copy);
-                    lod::reduce_into(zr, g.rows, g.cols, r.level, 1.0, &mut b.change);
-                    let (chg, cramp) = (&b.change, &b.change_ramp);
-                    let limit = limit_m.max(1e-6);
-                    let albedo = move |i: usize| {
-                        let d = zk[i] / k - chg[i];
-                        let d = if d.is_finite() && d.abs() >= lod_m {
-                            d
-                        } else {
-                            0.0
-                        };
-                        cramp.at(0.5 + 0.5 * (d / limit).clamp(-1.0, 1.0))
+                b.change.resize(lr * lc, 0.0);
+                let zr = heights(reference, &mut b.z_copy);
+                lod::reduce_into(zr, g.rows, g.cols, r.level, 1.0, &mut b.change);
+                let (chg, cramp) = (&b.change, &b.change_ramp);
+                let limit = limit_m.max(1e-6);
+                let albedo = move |i: usize| {
+                    let d = zk[i] / k - chg[i];
+                    let d = if d.is_finite() && d.abs() >= lod_m {
+                        d
+                    } else {
+                        0.0
                     };
-                    vertex_pass(
-                        zk,
-                        lr,
-                        lc,
-                        &b.xs,
-                        &b.ys,
-                        b.dx,
-                        b.dy,
-                        &cam,
-                        shadow,
-                        &light,
-                        &albedo,
-                        &mut b.verts,
+                    cramp.at(0.5 + 0.5 * (d / limit).clamp(-1.0, 1.0))
+                };
+                vertex_pass(
+                    zk,
+                    lr,
+                    lc,
+                    xs,
+                    ys,
+                    b.dx,
+                    b.dy,
+                    &cam,
+                    shadow,
+                    sky,
+                    &light,
+                    &albedo,
+                    &mut b.verts,
+                );
+            }
+            Colouring::Drape(drape) => {
+                let albedo = move |i: usize| {
+                    let (x, y) = (
+                        cx + f64::from(xs[i % lc]) / unit,
+                        cy + f64::from(ys[i / lc]) / unit,
                     );
-                }
+                    drape.linear_at(x, y).unwrap_or_else(|| elevation(i))
+                };
+                vertex_pass(
+                    zk,
+                    lr,
+                    lc,
+                    xs,
+                    ys,
+                    b.dx,
+                    b.dy,
+                    &cam,
+                    shadow,
+                    sky,
+                    &light,
+                    &albedo,
+                    &mut b.verts,
+                );
+            }
+            Colouring::Elevation => {
+                vertex_pass(
+                    zk,
+                    lr,
+                    lc,
+                    xs,
+                    ys,
+                    b.dx,
+                    b.dy,
+                    &cam,
+                    shadow,
+                    sky,
+                    &light,
+                    &elevation,
+                    &mut b.verts,
+                );
             }
         }
         let band_rows = BAND_OUT_ROWS * b.ss;
         bin_quads(&b.verts, lr, lc, band_rows, b.iw, &mut b.bins);
         let mut sides = std::mem::take(&mut b.sides);
         if v.block_sides {
-            build_sides(&mut sides, b, &cam, r.base_m * k, lin(v.side_rgb), &light);
+            sides::build_sides(&mut sides, b, &cam, r.base_m * k, lin(v.side_rgb), &light);
         } else {
             sides.clear();
         }
@@ -583,8 +522,6 @@ pub(super) fn render(
         if b.shell_bins.len() != chunks {
             b.shell_bins = vec![vec![Vec::new(); bands]; chunks];
         }
-        b.layer_rgb.resize(b.iw * b.ih * 3, 0.0);
-        b.layer_depth.resize(b.iw * b.ih, 0.0);
         let z = heights(&s.z, &mut b.z_copy);
         lod::reduce_into(z, g.rows, g.cols, r.level, k, &mut b.shell_zk);
         let col = lin(r.shell.rgb);
@@ -598,6 +535,7 @@ pub(super) fn render(
             b.dx,
             b.dy,
             &cam,
+            None,
             None,
             &light,
             &albedo,
@@ -613,12 +551,6 @@ pub(super) fn render(
         );
     }
     draw_surface &= lr >= 2 && lc >= 2;
-
-    // Bands.
-    let ss = b.ss;
-    let (iw, ih) = (b.iw, b.ih);
-    let band_rows = BAND_OUT_ROWS * ss;
-    let sky = (lin(v.sky_top_rgb), lin(v.sky_bottom_rgb));
     let water = r.water.level_m.map(|level| {
         let (west, south, east, north) = g.extent();
         let unit = g.horizontal_unit.metres();
@@ -632,135 +564,26 @@ pub(super) fn render(
             r.water.opacity as f32,
         )
     });
-    let shell_alpha = r.shell.opacity as f32;
-    let out_w = v.width as usize;
-    let enc = &b.encoder;
-    let (verts, bins, sides) = (&b.verts, &b.bins, &b.sides);
-    let (shell_verts, shell_bins) = (&b.shell_verts, &b.shell_bins);
-    let has_shell = shell.is_some();
-    let mut layers: Vec<(&mut [f32], &mut [f32])> = if has_shell {
-        b.layer_rgb
-            .chunks_mut(band_rows * iw * 3)
-            .zip(b.layer_depth.chunks_mut(band_rows * iw))
-            .collect()
-    } else {
-        Vec::new()
+    let scene = BandScene {
+        ss: b.ss,
+        iw: b.iw,
+        ih: b.ih,
+        out_w: v.width as usize,
+        sky: (lin(v.sky_top_rgb), lin(v.sky_bottom_rgb)),
+        draw_surface,
+        lc,
+        verts: &b.verts,
+        bins: &b.bins,
+        sides: &b.sides,
+        shell_verts: &b.shell_verts,
+        shell_bins: &b.shell_bins,
+        shell_alpha: r.shell.opacity as f32,
+        water,
+        cam,
+        light,
+        enc: &b.encoder,
     };
-    let mut layer_iter = layers
-        .iter_mut()
-        .map(Some)
-        .chain(std::iter::repeat_with(|| None));
-    let jobs: Vec<_> = b
-        .rgb
-        .chunks_mut(band_rows * iw * 3)
-        .zip(b.depth.chunks_mut(band_rows * iw))
-        .zip(frame.rgba.chunks_mut(BAND_OUT_ROWS * out_w * 4))
-        .enumerate()
-        .map(|(bi, ((rgb, depth), out))| (bi, rgb, depth, out, layer_iter.next().flatten()))
-        .collect();
-    jobs.into_par_iter()
-        .for_each(|(bi, rgb, depth, out, layer)| {
-            let y0 = bi * band_rows;
-            let rows = depth.len() / iw;
-            // Sky gradient.
-            for y in 0..rows {
-                let t = ((y0 + y) as f32 + 0.5) / ih as f32;
-                let c = [0, 1, 2].map(|k| sky.0[k] + (sky.1[k] - sky.0[k]) * t);
-                for px in rgb[y * iw * 3..(y + 1) * iw * 3].chunks_exact_mut(3) {
-                    px.copy_from_slice(&c);
-                }
-            }
-            depth.iter_mut().for_each(|d| *d = 0.0);
-            let mut band = Band {
-                y0,
-                rows,
-                width: iw,
-                rgb,
-                depth,
-            };
-            if draw_surface {
-                draw_binned(&mut band, bins, bi, verts, lc, None);
-                let (fy0, fy1) = (y0 as f32, (y0 + rows) as f32);
-                for s in sides.iter().filter(|s| s.ymax >= fy0 && s.ymin <= fy1) {
-                    draw_triangle(&mut band, &s.v[0], &s.v[1], &s.v[2], true);
-                    draw_triangle(&mut band, &s.v[0], &s.v[2], &s.v[3], true);
-                }
-            }
-            if let Some((lrgb, ldepth)) = layer {
-                ldepth.iter_mut().for_each(|d| *d = 0.0);
-                let under: &[f32] = band.depth;
-                let mut lband = Band {
-                    y0,
-                    rows,
-                    width: iw,
-                    rgb: lrgb,
-                    depth: ldepth,
-                };
-                draw_binned(&mut lband, shell_bins, bi, shell_verts, lc, Some(under));
-                for i in 0..rows * iw {
-                    if lband.depth[i] > 0.0 {
-                        for k in 0..3 {
-                            let o = &mut band.rgb[i * 3 + k];
-                            *o += (lband.rgb[i * 3 + k] - *o) * shell_alpha;
-                        }
-                    }
-                }
-            }
-            if let Some((wz, hw, hh, wcol, alpha)) = water {
-                let lit = [0, 1, 2].map(|k| {
-                    wcol[k] * (light.ambient + light.diffuse * light.sun[2]) * light.intensity
-                });
-                for y in 0..rows {
-                    let b_up = -((y0 + y) as f32 + 0.5 - cam.half_h) / cam.focal;
-                    for x in 0..iw {
-                        let a_r = (x as f32 + 0.5 - cam.half_w) / cam.focal;
-                        let d =
-                            [0, 1, 2].map(|k| cam.fwd[k] + a_r * cam.right[k] + b_up * cam.up[k]);
-                        if d[2] == 0.0 {
-                            continue;
-                        }
-                        let t = (wz - cam.eye[2]) / d[2];
-                        if t <= NEAR_M as f32 {
-                            continue;
-                        }
-                        let (hx, hy) = (cam.eye[0] + t * d[0], cam.eye[1] + t * d[1]);
-                        let i = y * iw + x;
-                        if hx.abs() > hw || hy.abs() > hh || 1.0 / t <= band.depth[i] {
-                            continue;
-                        }
-                        let len = dot3(d, d).sqrt();
-                        let vdir = [-d[0] / len, -d[1] / len, -d[2] / len];
-                        let spec = light.specular
-                            * blinn_phong([0.0, 0.0, 1.0], light.sun, vdir, light.shininess * 4.0);
-                        for (o, l) in band.rgb[i * 3..i * 3 + 3].iter_mut().zip(lit) {
-                            *o += (l + spec * light.intensity - *o) * alpha;
-                        }
-                    }
-                }
-            }
-            // Resolve: box filter of ss × ss samples, then sRGB.
-            let out_rows = out.len() / (out_w * 4);
-            let norm = 1.0 / (ss * ss) as f32;
-            for oy in 0..out_rows {
-                for ox in 0..out_w {
-                    let mut acc = [0.0f32; 3];
-                    for sy in 0..ss {
-                        let row = (oy * ss + sy) * iw;
-                        for sx in 0..ss {
-                            let i = (row + ox * ss + sx) * 3;
-                            acc[0] += band.rgb[i];
-                            acc[1] += band.rgb[i + 1];
-                            acc[2] += band.rgb[i + 2];
-                        }
-                    }
-                    let o = &mut out[(oy * out_w + ox) * 4..(oy * out_w + ox) * 4 + 4];
-                    o[0] = enc.byte(acc[0] * norm);
-                    o[1] = enc.byte(acc[1] * norm);
-                    o[2] = enc.byte(acc[2] * norm);
-                    o[3] = 255;
-                }
-            }
-        });
+    bands::draw_all(&scene, &mut b.depth, shell.is_some(), &mut frame.rgba);
     fv
 }
 
@@ -769,40 +592,5 @@ impl Renderer {
     #[cfg(test)]
     pub(crate) fn depth_at(&self, x: usize, y: usize) -> f32 {
         self.buffers.depth[y * self.buffers.iw + x]
-    }
-}
-
-/// A synthetic field of transverse dunes (gentle stoss, steep lee, wandering crests, small ripples),
-/// for tests and benches; deterministic.
-pub fn synthetic_dunes(rows: usize, cols: usize, cell_m: f64) -> Surface {
-    use crate::grid::LinearUnit;
-    let geometry = GridGeometry {
-        cols,
-        rows,
-        origin_x: 250_000.0,
-        origin_y: 1_500_000.0,
-        cell_x: cell_m,
-        cell_y: cell_m,
-        epsg: None,
-        horizontal_unit: LinearUnit::Metre,
-    };
-    let w = cols as f64 * cell_m;
-    let z = ndarray::Array2::from_shape_fn((rows, cols), |(r, c)| {
-        let x = c as f64 * cell_m;
-        let y = r as f64 * cell_m;
-        let wave = w / 5.0;
-        let phase = (x + 0.06 * w * (std::f64::consts::TAU * y / (0.7 * w)).sin()) / wave;
-        let u = phase - phase.floor();
-        // Stoss rises over 75 % of the wavelength, lee falls over 25 %.
-        let prof = if u < 0.75 { u / 0.75 } else { (1.0 - u) / 0.25 };
-        let prof = prof * prof * (3.0 - 2.0 * prof);
-        let amp = 0.55 + 0.45 * (std::f64::consts::TAU * (y / (0.9 * w) + x / (2.3 * w))).sin();
-        let ripple = 0.15 * (x / (3.0 * cell_m.max(0.5)) + 0.5 * (y / 7.0).sin()).sin();
-        (2.0 + 9.0 * prof * amp + ripple + 1.5 * (y / w)) as f32
-    });
-    Surface {
-        geometry,
-        z,
-        kind: crate::timeline::FrameKind::Measured { survey: 0 },
     }
 }

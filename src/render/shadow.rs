@@ -183,6 +183,42 @@ pub fn cast_shadow_into(
         });
 }
 
+/// Sun altitude of the sky-visibility test: a direction counts as hidden when the terrain rises
+/// above this angle in it. A crude openness estimate (eight directions, one angle); common
+/// practice, no source.
+const SKY_TEST_ALT_DEG: f64 = 15.0;
+/// Directions of the sky-visibility test.
+const SKY_DIRECTIONS: usize = 8;
+
+/// Fills `sky` with `1 − darkening × (share of hidden directions)` for every cell of `zk`, using
+/// the cast-shadow sweep toward each of eight compass directions; `dir` and `scratch` are reused.
+#[allow(clippy::too_many_arguments)]
+pub fn sky_visibility_into(
+    zk: &[f32],
+    lr: usize,
+    lc: usize,
+    dx: f32,
+    dy: f32,
+    darkening: f32,
+    sky: &mut Vec<f32>,
+    dir: &mut Vec<f32>,
+    scratch: &mut Vec<f32>,
+) {
+    let n = lr * lc;
+    sky.clear();
+    sky.resize(n, 0.0);
+    dir.resize(n, 0.0);
+    for j in 0..SKY_DIRECTIONS {
+        let az = (j as f64 + 0.5) * 360.0 / SKY_DIRECTIONS as f64;
+        cast_shadow_into(zk, lr, lc, dx, dy, az, SKY_TEST_ALT_DEG, 1.0, dir, scratch);
+        sky.par_iter_mut()
+            .zip(dir.par_iter())
+            .for_each(|(s, d)| *s += d);
+    }
+    let scale = darkening / SKY_DIRECTIONS as f32;
+    sky.par_iter_mut().for_each(|s| *s = 1.0 - scale * *s);
+}
+
 #[cfg(test)]
 #[allow(clippy::excessive_precision)]
 mod tests {

@@ -3,7 +3,7 @@
 
 use ndarray::Array2;
 
-use super::scene::synthetic_dunes;
+use super::synthetic::synthetic_dunes;
 use super::*;
 use crate::grid::LinearUnit;
 use crate::timeline::FrameKind;
@@ -325,6 +325,92 @@ fn bad_options_are_refused_with_the_option_named() {
 }
 
 #[test]
+fn eye_position_sets_the_view() {
+    let s = synthetic_dunes(64, 64, 2.0);
+    let (w, so, e, n) = s.geometry.extent();
+    let (cx, cy) = ((w + e) / 2.0, (so + n) / 2.0);
+    // Eye 300 m south of the centre and 300 m above the target (mid elevation 7.5 m × k 2 = 15 m).
+    let view = ViewOptions {
+        eye: Some([cx, cy - 300.0, (300.0 + 15.0) / 2.0]),
+        ..plain_view()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &LightOptions::default(), (0.0, 15.0)).unwrap();
+    let mut f = Frame::new(96, 64);
+    let fv = r.render_into(&s, 0.0, &mut f);
+    let eye = fv.camera().eye;
+    // Check: analytic — the camera stands where asked (local metres; z exaggerated ×2), looking north
+    // at 45°.
+    assert!(eye[0].abs() < 1e-6 && (eye[1] + 300.0).abs() < 1e-6 && (eye[2] - 315.0).abs() < 1e-6);
+    let (dx, dy) = fv.north_px().unwrap();
+    assert!(dx.abs() < 1e-6 && dy < -0.99);
+    let low = ViewOptions {
+        eye: Some([cx, cy - 300.0, 0.0]),
+        ..plain_view()
+    };
+    let err = Renderer::new(&s.geometry, &low, &LightOptions::default(), (0.0, 15.0)).unwrap_err();
+    assert!(err.contains("view.eye"), "{err}");
+}
+
+#[test]
+fn level_of_detail_never_exceeds_the_samples_on_screen() {
+    let g = geometry(512, 512, 1.0);
+    let view = ViewOptions {
+        width: 64,
+        height: 32,
+        supersample: 1,
+        lod_min_cell_px: 0.5,
+        ..Default::default()
+    };
+    let r = Renderer::new(&g, &view, &LightOptions::default(), (0.0, 10.0)).unwrap();
+    let (lr, lc) = lod::level_shape(512, 512, r.level_of_detail());
+    assert!(lr * lc <= 64 * 32, "level {}", r.level_of_detail());
+}
+
+#[test]
+fn hollows_are_darkened_only_when_asked() {
+    // A plain with a narrow, deep pit in the middle, seen from straight above, lit by ambient only.
+    let mut z = Array2::from_elem((41, 41), 10.0f32);
+    for r in 18..23 {
+        for c in 18..23 {
+            z[[r, c]] = 0.0;
+        }
+    }
+    let s = surface(z, 1.0);
+    let view = ViewOptions {
+        elevation_deg: 90.0,
+        vertical_exaggeration: 1.0,
+        ..plain_view()
+    };
+    let ambient_only = LightOptions {
+        ambient: 1.0,
+        diffuse: 0.0,
+        specular: 0.0,
+        ..Default::default()
+    };
+    let dark = LightOptions {
+        hollow_darkening: 1.0,
+        ..ambient_only.clone()
+    };
+    let mut f0 = Frame::new(96, 64);
+    let mut f1 = Frame::new(96, 64);
+    Renderer::new(&s.geometry, &view, &ambient_only, (0.0, 10.0))
+        .unwrap()
+        .render_into(&s, 0.0, &mut f0);
+    Renderer::new(&s.geometry, &view, &dark, (0.0, 10.0))
+        .unwrap()
+        .render_into(&s, 0.0, &mut f1);
+    let sum = |p: [u8; 3]| p.iter().map(|&v| v as u32).sum::<u32>();
+    // The pit floor loses light; the open plain far from it does not.
+    assert!(
+        sum(px(&f1, 48, 32)) + 20 < sum(px(&f0, 48, 32)),
+        "{:?} {:?}",
+        px(&f1, 48, 32),
+        px(&f0, 48, 32)
+    );
+    assert_eq!(px(&f1, 30, 12), px(&f0, 30, 12));
+}
+
+#[test]
 fn options_read_from_yaml_with_defaults_and_reject_unknown_keys() {
     let v: ViewOptions = serde_yaml::from_str("orbit_deg: 90\nsupersample: 3\n").unwrap();
     assert_eq!((v.orbit_deg, v.supersample, v.width), (90.0, 3, 960));
@@ -345,7 +431,16 @@ fn busy_scene(threads: usize) -> Frame {
         orbit_deg: 200.0,
         ..Default::default()
     };
-    let mut r = Renderer::new(&s.geometry, &view, &LightOptions::default(), (0.0, 15.0)).unwrap();
+    let mut r = Renderer::new(
+        &s.geometry,
+        &view,
+        &LightOptions {
+            hollow_darkening: 0.5,
+            ..Default::default()
+        },
+        (0.0, 15.0),
+    )
+    .unwrap();
     r.set_water(&WaterOptions {
         level_m: Some(4.0),
         ..Default::default()
@@ -442,10 +537,12 @@ impl Renderer {
 fn supersampling_is_the_box_mean_of_a_finer_render() {
     let s = synthetic_dunes(60, 80, 1.0);
     let light = LightOptions::default();
+    // Same level of detail in both: it is chosen from the cell size in output pixels.
     let small = ViewOptions {
         width: 64,
         height: 48,
         supersample: 2,
+        lod_min_cell_px: 1.0,
         ..Default::default()
     };
     let big = ViewOptions {
@@ -555,4 +652,54 @@ fn wrong_sized_frame_and_surface_do_not_panic() {
     let other = synthetic_dunes(20, 30, 1.0);
     r.render_into(&other, 0.0, &mut f);
     assert_eq!(r.depth_at(48, 32), 0.0, "sky only");
+}
+
+#[test]
+fn drape_colours_the_surface_and_must_overlap() {
+    let s = surface(Array2::from_elem((40, 40), 5.0), 1.0);
+    // A drape of the same area: west half red, east half blue, at 4 m pixels.
+    let dg = GridGeometry {
+        rows: 10,
+        cols: 10,
+        cell_x: 4.0,
+        cell_y: 4.0,
+        ..s.geometry.clone()
+    };
+    let rgb = ndarray::Array3::from_shape_fn((10, 10, 3), |(_, c, k)| match (c < 5, k) {
+        (true, 0) | (false, 2) => 230u8,
+        _ => 20,
+    });
+    let drape = Drape::new(&dg, &rgb, &s.geometry).unwrap();
+    let view = ViewOptions {
+        elevation_deg: 90.0,
+        ..plain_view()
+    };
+    let light = LightOptions {
+        ambient: 1.0,
+        diffuse: 0.0,
+        specular: 0.0,
+        ..Default::default()
+    };
+    let mut r = Renderer::new(&s.geometry, &view, &light, (0.0, 10.0)).unwrap();
+    let mut f = Frame::new(96, 64);
+    r.render_scene_into(&s, None, Colouring::Drape(&drape), 0.0, &mut f);
+    let (w, e) = (px(&f, 36, 32), px(&f, 60, 32));
+    // Check: analytic — with ambient light 1 and no diffuse term the drape's own colour shows (±2).
+    assert!(
+        (w[0] as i32 - 230).abs() <= 2 && (w[2] as i32 - 20).abs() <= 2,
+        "{w:?}"
+    );
+    assert!(
+        (e[2] as i32 - 230).abs() <= 2 && (e[0] as i32 - 20).abs() <= 2,
+        "{e:?}"
+    );
+    let far = GridGeometry {
+        origin_x: 90_000.0,
+        ..dg.clone()
+    };
+    assert!(Drape::new(&far, &rgb, &s.geometry)
+        .unwrap_err()
+        .contains("does not overlap"));
+    let wrong = ndarray::Array3::<u8>::zeros((10, 9, 3));
+    assert!(Drape::new(&dg, &wrong, &s.geometry).is_err());
 }

@@ -1,0 +1,241 @@
+//! Binned triangles + sky + translucent layers -> the frame's rows, one row band at a time.
+//!
+//! Each band (16 output rows) fills its sky gradient, rasterises the terrain triangles binned to it
+//! and the block's sides with a depth buffer, draws the shell surface into a layer of its own and
+//! blends it once (so folds of the shell are not blended twice), blends the water plane (intersected
+//! per pixel, analytically) where it is nearer than the terrain, then averages the supersamples in
+//! linear light (box filter) and encodes sRGB into its rows of the frame. Bands share nothing
+//! writable, so they run in parallel with the same result for any thread count.
+
+use std::cell::RefCell;
+
+use rayon::prelude::*;
+
+use super::camera::NEAR_M;
+use super::ramp::Encoder;
+use super::raster::{draw_triangle, draw_triangle_layer, Band, Vert};
+use super::scene::{CamF, Light};
+use super::shade::{blinn_phong, dot3};
+use super::sides::Side;
+
+/// Output rows per band: 45 bands on a 720-row frame, a few per thread and cheap to bin into.
+pub(super) const BAND_OUT_ROWS: usize = 16;
+
+/// A water plane in scene units: height (exaggerated), half extents, linear colour, opacity.
+pub(super) type Water = (f32, f32, f32, [f32; 3], f32);
+
+/// Everything a band reads.
+#[derive(Clone, Copy)]
+pub(super) struct BandScene<'a> {
+    pub(super) ss: usize,
+    pub(super) iw: usize,
+    pub(super) ih: usize,
+    pub(super) out_w: usize,
+    pub(super) sky: ([f32; 3], [f32; 3]),
+    pub(super) draw_surface: bool,
+    pub(super) lc: usize,
+    pub(super) verts: &'a [Vert],
+    pub(super) bins: &'a [Vec<Vec<u32>>],
+    pub(super) sides: &'a [Side],
+    pub(super) shell_verts: &'a [Vert],
+    pub(super) shell_bins: &'a [Vec<Vec<u32>>],
+    pub(super) shell_alpha: f32,
+    pub(super) water: Option<Water>,
+    pub(super) cam: CamF,
+    pub(super) light: Light,
+    pub(super) enc: &'a Encoder,
+}
+
+#[inline]
+fn draw_binned(
+    band: &mut Band,
+    bins: &[Vec<Vec<u32>>],
+    bi: usize,
+    verts: &[Vert],
+    lc: usize,
+    under: Option<&[f32]>,
+) {
+    for chunk in bins {
+        for &q in &chunk[bi] {
+            let i = q as usize;
+            let (a, b, c, d) = (&verts[i], &verts[i + 1], &verts[i + lc], &verts[i + lc + 1]);
+            match under {
+                None => {
+                    draw_triangle(band, a, b, c, false);
+                    draw_triangle(band, b, d, c, false);
+                }
+                Some(u) => {
+                    draw_triangle_layer(band, u, a, b, c);
+                    draw_triangle_layer(band, u, b, d, c);
+                }
+            }
+        }
+    }
+}
+
+thread_local! {
+    /// Per-thread colour scratch of one band (and the shell layer's colour and depth), made on a
+    /// thread's first band and reused: a band's working set then stays in cache between frames
+    /// instead of streaming a frame-sized colour buffer through memory. Every band initialises
+    /// what it reads, so the contents left by earlier bands never reach the output.
+    static SCRATCH: RefCell<[Vec<f32>; 3]> = const { RefCell::new([Vec::new(), Vec::new(), Vec::new()]) };
+}
+
+/// Draws every band of the frame in parallel into `rgba`, keeping the frame's depth in `depth`.
+pub(super) fn draw_all(scene: &BandScene, depth: &mut [f32], has_shell: bool, rgba: &mut [u8]) {
+    let band_rows = BAND_OUT_ROWS * scene.ss;
+    let jobs: Vec<_> = depth
+        .chunks_mut(band_rows * scene.iw)
+        .zip(rgba.chunks_mut(BAND_OUT_ROWS * scene.out_w * 4))
+        .enumerate()
+        .collect();
+    jobs.into_par_iter().for_each(|(bi, (depth, out))| {
+        SCRATCH.with(|cell| {
+            let mut scratch = cell.borrow_mut();
+            let [rgb, lrgb, ldepth] = &mut *scratch;
+            let n = depth.len();
+            if rgb.len() < n * 3 {
+                rgb.resize(n * 3, 0.0);
+            }
+            let layer = if has_shell {
+                if lrgb.len() < n * 3 {
+                    lrgb.resize(n * 3, 0.0);
+                    ldepth.resize(n, 0.0);
+                }
+                Some((&mut lrgb[..n * 3], &mut ldepth[..n]))
+            } else {
+                None
+            };
+            draw_band(scene, bi, &mut rgb[..n * 3], depth, out, layer);
+        });
+    });
+}
+
+/// Draws band `bi` into its rows.
+fn draw_band(
+    scene: &BandScene,
+    bi: usize,
+    rgb: &mut [f32],
+    depth: &mut [f32],
+    out: &mut [u8],
+    layer: Option<(&mut [f32], &mut [f32])>,
+) {
+    let BandScene {
+        ss,
+        iw,
+        ih,
+        out_w,
+        sky,
+        draw_surface,
+        lc,
+        verts,
+        bins,
+        sides,
+        shell_verts,
+        shell_bins,
+        shell_alpha,
+        water,
+        cam,
+        light,
+        enc,
+    } = *scene;
+    let band_rows = BAND_OUT_ROWS * ss;
+    let y0 = bi * band_rows;
+    let rows = depth.len() / iw;
+    // Sky gradient.
+    for y in 0..rows {
+        let t = ((y0 + y) as f32 + 0.5) / ih as f32;
+        let c = [0, 1, 2].map(|k| sky.0[k] + (sky.1[k] - sky.0[k]) * t);
+        for px in rgb[y * iw * 3..(y + 1) * iw * 3].chunks_exact_mut(3) {
+            px.copy_from_slice(&c);
+        }
+    }
+    depth.iter_mut().for_each(|d| *d = 0.0);
+    let mut band = Band {
+        y0,
+        rows,
+        width: iw,
+        rgb,
+        depth,
+    };
+    if draw_surface {
+        draw_binned(&mut band, bins, bi, verts, lc, None);
+        let (fy0, fy1) = (y0 as f32, (y0 + rows) as f32);
+        for s in sides.iter().filter(|s| s.ymax >= fy0 && s.ymin <= fy1) {
+            draw_triangle(&mut band, &s.v[0], &s.v[1], &s.v[2], true);
+            draw_triangle(&mut band, &s.v[0], &s.v[2], &s.v[3], true);
+        }
+    }
+    if let Some((lrgb, ldepth)) = layer {
+        ldepth.iter_mut().for_each(|d| *d = 0.0);
+        let under: &[f32] = band.depth;
+        let mut lband = Band {
+            y0,
+            rows,
+            width: iw,
+            rgb: lrgb,
+            depth: ldepth,
+        };
+        draw_binned(&mut lband, shell_bins, bi, shell_verts, lc, Some(under));
+        for i in 0..rows * iw {
+            if lband.depth[i] > 0.0 {
+                for k in 0..3 {
+                    let o = &mut band.rgb[i * 3 + k];
+                    *o += (lband.rgb[i * 3 + k] - *o) * shell_alpha;
+                }
+            }
+        }
+    }
+    if let Some((wz, hw, hh, wcol, alpha)) = water {
+        let lit = [0, 1, 2]
+            .map(|k| wcol[k] * (light.ambient + light.diffuse * light.sun[2]) * light.intensity);
+        for y in 0..rows {
+            let b_up = -((y0 + y) as f32 + 0.5 - cam.half_h) / cam.focal;
+            for x in 0..iw {
+                let a_r = (x as f32 + 0.5 - cam.half_w) / cam.focal;
+                let d = [0, 1, 2].map(|k| cam.fwd[k] + a_r * cam.right[k] + b_up * cam.up[k]);
+                if d[2] == 0.0 {
+                    continue;
+                }
+                let t = (wz - cam.eye[2]) / d[2];
+                if t <= NEAR_M as f32 {
+                    continue;
+                }
+                let (hx, hy) = (cam.eye[0] + t * d[0], cam.eye[1] + t * d[1]);
+                let i = y * iw + x;
+                if hx.abs() > hw || hy.abs() > hh || 1.0 / t <= band.depth[i] {
+                    continue;
+                }
+                let len = dot3(d, d).sqrt();
+                let vdir = [-d[0] / len, -d[1] / len, -d[2] / len];
+                let spec = light.specular
+                    * blinn_phong([0.0, 0.0, 1.0], light.sun, vdir, light.shininess * 4.0);
+                for (o, l) in band.rgb[i * 3..i * 3 + 3].iter_mut().zip(lit) {
+                    *o += (l + spec * light.intensity - *o) * alpha;
+                }
+            }
+        }
+    }
+    // Resolve: box filter of ss × ss samples, then sRGB.
+    let out_rows = out.len() / (out_w * 4);
+    let norm = 1.0 / (ss * ss) as f32;
+    for oy in 0..out_rows {
+        for ox in 0..out_w {
+            let mut acc = [0.0f32; 3];
+            for sy in 0..ss {
+                let row = (oy * ss + sy) * iw;
+                for sx in 0..ss {
+                    let i = (row + ox * ss + sx) * 3;
+                    acc[0] += band.rgb[i];
+                    acc[1] += band.rgb[i + 1];
+                    acc[2] += band.rgb[i + 2];
+                }
+            }
+            let o = &mut out[(oy * out_w + ox) * 4..(oy * out_w + ox) * 4 + 4];
+            o[0] = enc.byte(acc[0] * norm);
+            o[1] = enc.byte(acc[1] * norm);
+            o[2] = enc.byte(acc[2] * norm);
+            o[3] = 255;
+        }
+    }
+}
