@@ -108,8 +108,10 @@ fn render(
     let report = run_job(&job, &opts);
     bar.finish_and_clear();
     let report = report?;
-    for w in &report.warnings {
-        eprintln!("warning: {w}");
+    if !quiet {
+        for w in &report.warnings {
+            eprintln!("warning: {w}");
+        }
     }
     if !quiet {
         println!(

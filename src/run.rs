@@ -50,6 +50,11 @@ pub struct RunReport {
 /// Most memory the kept animation frames may take, in bytes (frames are kept for the GIF palette).
 pub const FRAME_MEMORY_BUDGET: usize = 6 << 30;
 
+/// Largest grid side, in cells, on which displacement fields are estimated; larger grids are
+/// estimated on block means and the field interpolated back (see `interp::flow::estimate_within`).
+/// 1024 keeps a pair under a second and about 100 MB.
+pub const FLOW_MAX_SIDE: usize = 1024;
+
 /// Runs a job end to end.
 ///
 /// # Errors
@@ -126,7 +131,8 @@ fn prepare(job: &Job) -> Result<Prepared> {
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for i in 0..stack.len() - 1 {
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
-        let result = flow::estimate(stack.z(i), stack.z(i + 1), cell_m, &job.flow);
+        let result =
+            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE);
         let pair = record
             .pairs
             .iter_mut()
@@ -147,7 +153,8 @@ fn prepare(job: &Job) -> Result<Prepared> {
                 "{} -> {}: no reliable displacement ({}); {fallback}no migration is reported for this pair",
                 a.id, b.id, result.verdict
             );
-            log::warn!("{w}");
+            // Logged at info: the CLI prints the report's warnings once, at the end.
+            log::info!("{w}");
             warnings.push(w);
             fields.push(None);
         }

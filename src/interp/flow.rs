@@ -66,6 +66,7 @@
 mod dense;
 mod global;
 mod raster;
+mod reduce;
 mod result;
 
 use ndarray::Array2;
@@ -73,6 +74,7 @@ use ndarray::Array2;
 use dense::{FillRule, QualityRule, Scratch};
 use raster::Dims;
 
+pub use reduce::estimate_within;
 pub use result::{Dominant, FlowField, FlowResult, Verdict};
 
 pub(crate) use raster::{sample_clamped, Dims as RasterDims};
