@@ -16,7 +16,7 @@ use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
 use crate::interp::flow::{self, FlowResult};
 use crate::interp::{self, morph, Surface};
-use crate::job::{Job, Method, ShellSurvey};
+use crate::job::{ColourBy, Job, Method, ShellSurvey};
 use crate::render::{ramp, Colouring, Frame, Renderer};
 use crate::survey;
 use crate::timeline::{self, FrameKind, FrameTime, Timeline};
@@ -285,7 +285,43 @@ fn write_outputs(
     let (z_lo, z_hi) = stack
         .elevation_range()
         .expect("align refuses all-nodata grids");
-    let legend = Legend {
+    // Colouring by change: the ramp's limit (fixed for the whole animation) and t for the LoD.
+    let change_colour = match job.colour {
+        ColourBy::Elevation => None,
+        ColourBy::Change { since, limit_m } => {
+            let limit = limit_m
+                .unwrap_or_else(|| largest_change_m(stack, since))
+                .max(0.01);
+            Some((limit, job.change.lod_t))
+        }
+    };
+    let legend = match (&change_colour, job.colour) {
+        (Some((limit, _)), ColourBy::Change { since, .. }) => Some(Legend {
+            title: format!(
+                "Change since {} survey (pale: within LoD)",
+                if since == ShellSurvey::First {
+                    "first"
+                } else {
+                    "previous"
+                }
+            ),
+            stops: (0..17)
+                .map(|i| {
+                    let c = ramp::diverging_srgb(i as f32 / 8.0 - 1.0);
+                    [
+                        (c[0] * 255.0).round() as u8,
+                        (c[1] * 255.0).round() as u8,
+                        (c[2] * 255.0).round() as u8,
+                    ]
+                })
+                .collect(),
+            min: -to_unit(*limit),
+            max: to_unit(*limit),
+            unit: unit.symbol().into(),
+        }),
+        _ => None,
+    };
+    let legend = legend.unwrap_or(Legend {
         title: "Elevation".into(),
         stops: (0..16)
             .map(|i| {
@@ -300,7 +336,7 @@ fn write_outputs(
         min: to_unit(z_lo as f64),
         max: to_unit(z_hi as f64),
         unit: unit.symbol().into(),
-    };
+    });
 
     // Second pass: render, label, keep for the GIF, write the PNG frames.
     let n = timeline.frames.len();
@@ -318,13 +354,8 @@ fn write_outputs(
     let mut shell = Surface::for_stack(stack);
     for t in &timeline.frames {
         make_surface(&mut surface, stack, &fields, job, t);
-        let shell_index = match (job.shell_survey, t.kind) {
-            (ShellSurvey::None, _) => None,
-            (ShellSurvey::First, FrameKind::Measured { survey: 0 }) => None,
-            (ShellSurvey::First, _) => Some(0),
-            (ShellSurvey::Previous, FrameKind::Interpolated { from, .. }) => Some(from),
-            (ShellSurvey::Previous, FrameKind::Measured { survey }) => survey.checked_sub(1),
-        };
+        let shell_index = earlier_survey(job.shell_survey, t.kind)
+            .filter(|&i| i != t.from || !t.kind.is_measured());
         if let Some(i) = shell_index {
             shell_cells_into(
                 &mut shell.z,
@@ -339,8 +370,20 @@ fn write_outputs(
         } else {
             0.0
         };
-        let view =
-            renderer.render_scene_into(&surface, shell, Colouring::Elevation, orbit, &mut frame);
+        let colouring = match (&change_colour, job.colour) {
+            (Some((limit_m, t_lod)), ColourBy::Change { since, .. }) => {
+                let r = earlier_survey(since, t.kind).unwrap_or(t.from);
+                let sigma = |i: usize| record.surveys[i].sigma_z_m;
+                let lod_m = t_lod * sigma(r).hypot(sigma(t.from).max(sigma(t.to)));
+                Colouring::Change {
+                    reference: stack.z(r),
+                    limit_m: *limit_m as f32,
+                    lod_m: lod_m as f32,
+                }
+            }
+            _ => Colouring::Elevation,
+        };
+        let view = renderer.render_scene_into(&surface, shell, colouring, orbit, &mut frame);
         let peak = peaks[t.index];
         let peak_px = peak.and_then(|(z, r, c)| {
             let (x, y) = stack.geometry().cell_center(r, c);
@@ -506,6 +549,36 @@ fn write_outputs(
     })
 }
 
+/// The survey a frame is compared with: the first, or the earlier end of the frame's interval (for
+/// a survey frame, the survey before it). None when there is none.
+fn earlier_survey(choice: ShellSurvey, kind: FrameKind) -> Option<usize> {
+    match (choice, kind) {
+        (ShellSurvey::None, _) => None,
+        (ShellSurvey::First, _) => Some(0),
+        (ShellSurvey::Previous, FrameKind::Interpolated { from, .. }) => Some(from),
+        (ShellSurvey::Previous, FrameKind::Measured { survey }) => survey.checked_sub(1),
+    }
+}
+
+/// The largest |change| between each survey and the one it is compared with, in metres.
+fn largest_change_m(stack: &AlignedStack, since: ShellSurvey) -> f64 {
+    let mut most = 0.0f32;
+    for i in 1..stack.len() {
+        let r = if since == ShellSurvey::First {
+            0
+        } else {
+            i - 1
+        };
+        for (a, b) in stack.z(i).iter().zip(stack.z(r)) {
+            let d = (a - b).abs();
+            if d.is_finite() {
+                most = most.max(d);
+            }
+        }
+    }
+    most as f64
+}
+
 /// Keeps the shell's cells that stand at least `min_gap_m` above the surface; the rest become
 /// nodata, so the shell shows where sand used to be and never flickers against the surface.
 fn shell_cells_into(
@@ -582,4 +655,49 @@ pub fn check_job(job: &Job) -> Result<String> {
         timeline.frames.len(),
         timeline.duration_s()
     ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use chrono::NaiveDate;
+
+    #[test]
+    fn delays_keep_the_running_total_exact() {
+        let d = |y| NaiveDate::from_ymd_opt(y, 1, 1).unwrap();
+        let t = timeline::plan(
+            &[d(2030), d(2031), d(2033)],
+            timeline::FramePlan::PerYear(6.0),
+            12.0,
+            0.5,
+        );
+        let cs = delays_cs(&t);
+        // Check: GIF89a (CompuServe 1990) — delays are whole hundredths of a second; at 12 fps a
+        // frame is 8.33 cs, so the delays alternate 8/9 while their sum tracks the timeline exactly
+        let total: u32 = cs.iter().map(|&c| c as u32).sum();
+        assert_eq!(total, (t.duration_s() * 100.0).round() as u32);
+        assert!(cs.iter().all(|&c| (8..=59).contains(&c)), "{cs:?}");
+        assert_eq!(cs[0], 58, "a survey frame holds 1/12 s + 0.5 s");
+    }
+
+    #[test]
+    fn comparison_surveys() {
+        let m = |survey| FrameKind::Measured { survey };
+        let between = FrameKind::Interpolated { from: 2, to: 3 };
+        assert_eq!(earlier_survey(ShellSurvey::None, between), None);
+        assert_eq!(earlier_survey(ShellSurvey::First, between), Some(0));
+        assert_eq!(earlier_survey(ShellSurvey::Previous, between), Some(2));
+        assert_eq!(earlier_survey(ShellSurvey::Previous, m(3)), Some(2));
+        assert_eq!(earlier_survey(ShellSurvey::Previous, m(0)), None);
+    }
+
+    #[test]
+    fn shell_keeps_only_cells_clearly_above_the_surface() {
+        let shell = ndarray::arr2(&[[5.0f32, 5.0, f32::NAN]]);
+        let surface = ndarray::arr2(&[[4.0f32, 4.9, 1.0]]);
+        let mut out = ndarray::Array2::zeros((1, 3));
+        shell_cells_into(&mut out, &shell, &surface, 0.3);
+        assert_eq!(out[[0, 0]], 5.0);
+        assert!(out[[0, 1]].is_nan() && out[[0, 2]].is_nan());
+    }
 }

@@ -42,6 +42,21 @@ impl Method {
     }
 }
 
+/// How the terrain is coloured.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum ColourBy {
+    /// By elevation, on one ramp fixed for the whole animation.
+    Elevation,
+    /// By change since a survey, on a diverging ramp centred on zero; changes inside the level of
+    /// detection are drawn neutral.
+    Change {
+        /// Against which survey.
+        since: ShellSurvey,
+        /// Change in metres at the ends of the ramp; None = the largest change in the job.
+        limit_m: Option<f64>,
+    },
+}
+
 /// Which survey is drawn as a translucent shell over each frame.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum ShellSurvey {
@@ -108,6 +123,8 @@ pub struct Job {
     pub view: ViewOptions,
     /// Sun and shading.
     pub sun: LightOptions,
+    /// Terrain colouring.
+    pub colour: ColourBy,
     /// Water plane.
     pub water: WaterOptions,
     /// Which surface to draw as a translucent shell, if any.

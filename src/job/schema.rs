@@ -28,6 +28,8 @@ pub(super) struct JobFile {
     #[serde(default)]
     pub sun: LightOptions,
     #[serde(default)]
+    pub colour: ColourEntry,
+    #[serde(default)]
     pub water: WaterOptions,
     #[serde(default)]
     pub shell: ShellEntry,
@@ -94,6 +96,28 @@ pub(super) struct InBetweenEntry {
     pub method: Option<String>,
     /// Per-interval overrides, one entry per interval: `linear` or `morph`.
     pub per_interval: Option<Vec<String>>,
+}
+
+/// How the terrain is coloured.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub(super) struct ColourEntry {
+    /// `elevation` or `change`.
+    pub by: String,
+    /// For `change`: `first` or `previous` survey.
+    pub since: String,
+    /// For `change`: the change in metres at the ends of the ramp; absent = the largest change.
+    pub limit_m: Option<f64>,
+}
+
+impl Default for ColourEntry {
+    fn default() -> Self {
+        ColourEntry {
+            by: "elevation".into(),
+            since: "first".into(),
+            limit_m: None,
+        }
+    }
 }
 
 /// The translucent shell: which surface, and how it looks.

@@ -5,7 +5,7 @@ use std::path::Path;
 use chrono::{Datelike, NaiveDate};
 
 use super::schema::{JobFile, OutputEntry};
-use super::{Job, Method, OutputSpec, ShellSurvey, SurveySpec, FORMAT_VERSION};
+use super::{ColourBy, Job, Method, OutputSpec, ShellSurvey, SurveySpec, FORMAT_VERSION};
 use crate::align::AreaOfInterest;
 use crate::error::{Error, Result};
 use crate::render::ShellOptions;
@@ -301,6 +301,40 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             ));
         }
     };
+    let colour = match (f.colour.by.as_str(), f.colour.since.as_str()) {
+        ("elevation", _) => ColourBy::Elevation,
+        ("change", since @ ("first" | "previous")) => {
+            if let Some(l) = f.colour.limit_m {
+                if !(l > 0.0 && l < 1000.0) {
+                    return Err(bad(
+                        "colour.limit_m",
+                        format!("{l} m is out of range; give a change in metres above 0, e.g. 2"),
+                    ));
+                }
+            }
+            let since = if since == "first" {
+                ShellSurvey::First
+            } else {
+                ShellSurvey::Previous
+            };
+            ColourBy::Change {
+                since,
+                limit_m: f.colour.limit_m,
+            }
+        }
+        ("change", other) => {
+            return Err(bad(
+                "colour.since",
+                format!("\"{other}\" is not a choice; use `first` or `previous`"),
+            ));
+        }
+        (other, _) => {
+            return Err(bad(
+                "colour.by",
+                format!("\"{other}\" is not a choice; use `elevation` or `change`"),
+            ));
+        }
+    };
     if !(f.shell.min_gap_m >= 0.0 && f.shell.min_gap_m < 100.0) {
         return Err(bad(
             "shell.min_gap_m",
@@ -336,6 +370,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         methods,
         view: f.view,
         sun: f.sun,
+        colour,
         water: f.water,
         shell_survey,
         shell: ShellOptions {
