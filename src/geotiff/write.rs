@@ -206,31 +206,7 @@ fn check(
         Some(metadata_xml(&opts.band_descriptions))
     };
 
-    let parent = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    if !parent.is_dir() {
-        return Err(Error::output(
-            path,
-            format!(
-                "the folder {} does not exist; create it first",
-                parent.display()
-            ),
-        ));
-    }
-    if path.is_dir() {
-        return Err(Error::output(
-            path,
-            "this is a folder; give a file name ending in .tif",
-        ));
-    }
-    if path.exists() && !opts.overwrite {
-        return Err(Error::output(
-            path,
-            "the file already exists; pass the overwrite option to replace it",
-        ));
-    }
+    crate::encode::atomic::check_target(path, opts.overwrite)?;
     Ok(Plan {
         width,
         height,
