@@ -398,9 +398,9 @@ pub(super) fn render(
         let (west, south, east, north) = g.extent();
         let (cx, cy) = ((west + east) / 2.0, (south + north) / 2.0);
         let unit = g.horizontal_unit.metres();
-        match colouring {
-            Colouring::Change { reference, .. } if reference.dim() != (g.rows, g.cols) => {
-                log::warn!("render: change reference has the wrong shape; colouring by elevation");
+        // One vertex pass per colouring; only the albedo closure differs.
+        macro_rules! shade_vertices {
+            ($albedo:expr) => {
                 vertex_pass(
                     zk,
                     lr,
@@ -413,9 +413,15 @@ pub(super) fn render(
                     shadow,
                     sky,
                     &light,
-                    &elevation,
+                    $albedo,
                     &mut b.verts,
-                );
+                )
+            };
+        }
+        match colouring {
+            Colouring::Change { reference, .. } if reference.dim() != (g.rows, g.cols) => {
+                log::warn!("render: change reference has the wrong shape; colouring by elevation");
+                shade_vertices!(&elevation);
             }
             Colouring::Change {
                 reference,
@@ -436,21 +442,7 @@ pub(super) fn render(
                     };
                     cramp.at(0.5 + 0.5 * (d / limit).clamp(-1.0, 1.0))
                 };
-                vertex_pass(
-                    zk,
-                    lr,
-                    lc,
-                    xs,
-                    ys,
-                    b.dx,
-                    b.dy,
-                    &cam,
-                    shadow,
-                    sky,
-                    &light,
-                    &albedo,
-                    &mut b.verts,
-                );
+                shade_vertices!(&albedo);
             }
             Colouring::Drape(drape) => {
                 let albedo = move |i: usize| {
@@ -460,38 +452,10 @@ pub(super) fn render(
                     );
                     drape.linear_at(x, y).unwrap_or_else(|| elevation(i))
                 };
-                vertex_pass(
-                    zk,
-                    lr,
-                    lc,
-                    xs,
-                    ys,
-                    b.dx,
-                    b.dy,
-                    &cam,
-                    shadow,
-                    sky,
-                    &light,
-                    &albedo,
-                    &mut b.verts,
-                );
+                shade_vertices!(&albedo);
             }
             Colouring::Elevation => {
-                vertex_pass(
-                    zk,
-                    lr,
-                    lc,
-                    xs,
-                    ys,
-                    b.dx,
-                    b.dy,
-                    &cam,
-                    shadow,
-                    sky,
-                    &light,
-                    &elevation,
-                    &mut b.verts,
-                );
+                shade_vertices!(&elevation);
             }
         }
         let band_rows = BAND_OUT_ROWS * b.ss;
