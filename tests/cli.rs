@@ -103,3 +103,36 @@ fn verify_reports_an_altered_file_with_exit_2() {
     assert_eq!(code, 1, "{err}");
     assert!(err.contains("--overwrite"), "{err}");
 }
+
+#[test]
+fn check_reads_everything_and_writes_nothing() {
+    let d = tempfile::tempdir().unwrap();
+    let job = common::moving_dune_job(d.path(), "");
+    let before = entries(d.path());
+    let out = Command::new(env!("CARGO_BIN_EXE_dunereel"))
+        .args(["check", job.to_str().unwrap()])
+        .current_dir(d.path())
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("3 surveys on a 64 x 48 grid"), "{text}");
+    assert_eq!(entries(d.path()), before);
+}
+
+#[test]
+fn help_is_there_for_every_subcommand() {
+    for sub in ["render", "check", "verify"] {
+        let out = Command::new(env!("CARGO_BIN_EXE_dunereel"))
+            .args([sub, "--help"])
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0));
+        assert!(String::from_utf8_lossy(&out.stdout).contains("Usage"));
+    }
+}
