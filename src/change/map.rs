@@ -133,8 +133,9 @@ pub fn dod_map(stack: &AlignedStack, pair: &PairRecord, opts: &ChangeOptions) ->
     let per = 1.0 / unit.metres();
     let sym = unit.symbol();
     let title = format!(
-        "Elevation change {} ({}) to {} ({})",
-        pair.from_id, pair.from_date, pair.to_id, pair.to_date
+        "Elevation change {} to {}",
+        id_and_date(&pair.from_id, &pair.from_date.to_string()),
+        id_and_date(&pair.to_id, &pair.to_date.to_string())
     );
     draw::text(
         &mut frame,
@@ -337,5 +338,14 @@ mod tests {
         assert_eq!(cell_colour(0.1, 2.0, 0.2, &lut), Some(WITHIN_LOD));
         assert_eq!(cell_colour(f32::NAN, 2.0, 0.2, &lut), None);
         assert_ne!(cell_colour(0.3, 2.0, 0.2, &lut), Some(WITHIN_LOD));
+    }
+}
+
+/// "id (date)", or just the date when the id is the date.
+fn id_and_date(id: &str, date: &str) -> String {
+    if id == date {
+        date.to_string()
+    } else {
+        format!("{id} ({date})")
     }
 }
