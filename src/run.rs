@@ -17,7 +17,7 @@ use crate::geotiff::{self, WriteOptions};
 use crate::interp::flow::{self, FlowResult};
 use crate::interp::{self, morph, Surface};
 use crate::job::{ColourBy, Job, Method, ShellSurvey};
-use crate::render::{ramp, Colouring, Frame, Renderer};
+use crate::render::{ramp, Colouring, Drape, Frame, Renderer};
 use crate::survey;
 use crate::timeline::{self, FrameKind, FrameTime, Timeline};
 
@@ -83,6 +83,8 @@ struct Prepared {
     record: ChangeRecord,
     /// Per interval: the displacement field when the morph may use it (trusted), else None.
     fields: Vec<Option<FlowResult>>,
+    /// The image draped over the terrain, when the job colours by one.
+    drape: Option<Drape>,
     warnings: Vec<String>,
 }
 
@@ -106,6 +108,15 @@ fn prepare(job: &Job) -> Result<Prepared> {
     renderer
         .set_shell(&job.shell)
         .map_err(|m| Error::job(&job.path, "shell", m))?;
+    let drape = match &job.colour {
+        ColourBy::Drape { path } => {
+            let (geometry, rgb) = geotiff::read_rgb(path)?;
+            let drape = Drape::new(&geometry, &rgb, stack.geometry())
+                .map_err(|m| Error::job(&job.path, "colour.drape", m))?;
+            Some(drape)
+        }
+        _ => None,
+    };
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
     if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
         return Err(Error::job(
@@ -166,6 +177,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         renderer,
         record,
         fields,
+        drape,
         warnings,
     })
 }
@@ -246,6 +258,7 @@ fn write_outputs(
         mut renderer,
         record,
         fields,
+        drape,
         mut warnings,
     } = prepared;
     let (stack, timeline) = (&stack, &timeline);
@@ -286,20 +299,20 @@ fn write_outputs(
         .elevation_range()
         .expect("align refuses all-nodata grids");
     // Colouring by change: the ramp's limit (fixed for the whole animation) and t for the LoD.
-    let change_colour = match job.colour {
-        ColourBy::Elevation => None,
+    let change_colour = match &job.colour {
+        ColourBy::Elevation | ColourBy::Drape { .. } => None,
         ColourBy::Change { since, limit_m } => {
             let limit = limit_m
-                .unwrap_or_else(|| largest_change_m(stack, since))
+                .unwrap_or_else(|| largest_change_m(stack, *since))
                 .max(0.01);
             Some((limit, job.change.lod_t))
         }
     };
-    let legend = match (&change_colour, job.colour) {
+    let legend = match (&change_colour, &job.colour) {
         (Some((limit, _)), ColourBy::Change { since, .. }) => Some(Legend {
             title: format!(
                 "Change since {} survey (pale: within LoD)",
-                if since == ShellSurvey::First {
+                if *since == ShellSurvey::First {
                     "first"
                 } else {
                     "previous"
@@ -370,9 +383,9 @@ fn write_outputs(
         } else {
             0.0
         };
-        let colouring = match (&change_colour, job.colour) {
+        let colouring = match (&change_colour, &job.colour) {
             (Some((limit_m, t_lod)), ColourBy::Change { since, .. }) => {
-                let r = earlier_survey(since, t.kind).unwrap_or(t.from);
+                let r = earlier_survey(*since, t.kind).unwrap_or(t.from);
                 let sigma = |i: usize| record.surveys[i].sigma_z_m;
                 let lod_m = t_lod * sigma(r).hypot(sigma(t.from).max(sigma(t.to)));
                 Colouring::Change {
@@ -381,7 +394,9 @@ fn write_outputs(
                     lod_m: lod_m as f32,
                 }
             }
-            _ => Colouring::Elevation,
+            _ => drape
+                .as_ref()
+                .map_or(Colouring::Elevation, Colouring::Drape),
         };
         let view = renderer.render_scene_into(&surface, shell, colouring, orbit, &mut frame);
         let peak = peaks[t.index];
@@ -407,7 +422,8 @@ fn write_outputs(
             peak_height: peak.map_or(f64::NAN, |(z, _, _)| to_unit(z as f64)),
             peak_unit: unit.symbol().into(),
             peak_px,
-            legend: Some(legend.clone()),
+            // A draped image has no scale to explain.
+            legend: drape.is_none().then(|| legend.clone()),
             north_angle_rad: view.north_px().map(|(dx, dy)| dx.atan2(-dy)),
             metres_per_px: Some(view.metres_per_px()),
             inset: Some(InsetChart {
