@@ -14,6 +14,7 @@ use crate::encode::gif;
 use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
 use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
+use crate::grid::GridGeometry;
 use crate::interp::flow::{self, FlowResult};
 use crate::interp::{self, morph, Surface};
 use crate::job::{ColourBy, Job, Method, ShellSurvey};
@@ -109,12 +110,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         .set_shell(&job.shell)
         .map_err(|m| Error::job(&job.path, "shell", m))?;
     let drape = match &job.colour {
-        ColourBy::Drape { path } => {
-            let (geometry, rgb) = geotiff::read_rgb(path)?;
-            let drape = Drape::new(&geometry, &rgb, stack.geometry())
-                .map_err(|m| Error::job(&job.path, "colour.drape", m))?;
-            Some(drape)
-        }
+        ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
         _ => None,
     };
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
@@ -192,6 +188,23 @@ fn in_job_file(e: Error, path: &Path) -> Error {
         },
         other => other,
     }
+}
+
+/// Reads the image to drape and checks it against the grid: same CRS and unit, overlapping extent.
+fn read_drape(job: &Job, path: &Path, grid: &GridGeometry) -> Result<Drape> {
+    let (geometry, rgb) = geotiff::read_rgb(path)?;
+    let crs = |g: &GridGeometry| {
+        let code = g.epsg.map_or("not stated".into(), |c| format!("EPSG:{c}"));
+        format!("{code}, in {}", g.horizontal_unit.symbol())
+    };
+    if geometry.epsg.zip(grid.epsg).is_some_and(|(a, b)| a != b)
+        || geometry.horizontal_unit != grid.horizontal_unit
+    {
+        let (ours, theirs) = (crs(&geometry), crs(grid));
+        let msg = format!("CRS {ours} differs from the surveys' {theirs}; reproject the image to the surveys' CRS");
+        return Err(Error::input(path, msg));
+    }
+    Drape::new(&geometry, &rgb, grid).map_err(|m| Error::job(&job.path, "colour.drape", m))
 }
 
 /// The method an interval really uses: the morph only where its displacement field is trusted.

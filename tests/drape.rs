@@ -86,3 +86,20 @@ fn drape_that_misses_the_grid_writes_nothing() {
     assert!(err.to_string().contains("does not overlap"), "{err}");
     assert!(!d.path().join("out").exists());
 }
+
+#[test]
+fn drape_in_another_crs_is_refused() {
+    let d = tempfile::tempdir().unwrap();
+    let mut g = common::geometry(64, 48);
+    g.epsg = Some(32632);
+    common::write_rgb(&d.path().join("photo.tif"), &g, |_, _| [9, 9, 9]);
+    let path = common::moving_dune_job(d.path(), "colour: { by: drape, drape: photo.tif }\n");
+    let err = run_job(&job::load(&path).unwrap(), &RunOptions::default()).unwrap_err();
+    assert_eq!(err.exit_code(), 2, "{err}");
+    let msg = err.to_string();
+    assert!(
+        msg.contains("photo.tif") && msg.contains("EPSG:32632") && msg.contains("EPSG:32631"),
+        "{msg}"
+    );
+    assert!(!d.path().join("out").exists());
+}
