@@ -14,10 +14,11 @@ use crate::encode::gif;
 use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
 use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
+use crate::grid::GridGeometry;
 use crate::interp::flow::{self, FlowResult};
 use crate::interp::{self, morph, Surface};
 use crate::job::{ColourBy, Job, Method, ShellSurvey};
-use crate::render::{ramp, Colouring, Frame, Renderer};
+use crate::render::{ramp, Colouring, Drape, Frame, Renderer};
 use crate::survey;
 use crate::timeline::{self, FrameKind, FrameTime, Timeline};
 
@@ -83,6 +84,8 @@ struct Prepared {
     record: ChangeRecord,
     /// Per interval: the displacement field when the morph may use it (trusted), else None.
     fields: Vec<Option<FlowResult>>,
+    /// The image draped over the terrain, when the job colours by one.
+    drape: Option<Drape>,
     warnings: Vec<String>,
 }
 
@@ -106,6 +109,10 @@ fn prepare(job: &Job) -> Result<Prepared> {
     renderer
         .set_shell(&job.shell)
         .map_err(|m| Error::job(&job.path, "shell", m))?;
+    let drape = match &job.colour {
+        ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
+        _ => None,
+    };
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
     if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
         return Err(Error::job(
@@ -166,6 +173,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         renderer,
         record,
         fields,
+        drape,
         warnings,
     })
 }
@@ -180,6 +188,23 @@ fn in_job_file(e: Error, path: &Path) -> Error {
         },
         other => other,
     }
+}
+
+/// Reads the image to drape and checks it against the grid: same CRS and unit, overlapping extent.
+fn read_drape(job: &Job, path: &Path, grid: &GridGeometry) -> Result<Drape> {
+    let (geometry, rgb) = geotiff::read_rgb(path)?;
+    let crs = |g: &GridGeometry| {
+        let code = g.epsg.map_or("not stated".into(), |c| format!("EPSG:{c}"));
+        format!("{code}, in {}", g.horizontal_unit.symbol())
+    };
+    if geometry.epsg.zip(grid.epsg).is_some_and(|(a, b)| a != b)
+        || geometry.horizontal_unit != grid.horizontal_unit
+    {
+        let (ours, theirs) = (crs(&geometry), crs(grid));
+        let msg = format!("CRS {ours} differs from the surveys' {theirs}; reproject the image to the surveys' CRS");
+        return Err(Error::input(path, msg));
+    }
+    Drape::new(&geometry, &rgb, grid).map_err(|m| Error::job(&job.path, "colour.drape", m))
 }
 
 /// The method an interval really uses: the morph only where its displacement field is trusted.
@@ -246,6 +271,7 @@ fn write_outputs(
         mut renderer,
         record,
         fields,
+        drape,
         mut warnings,
     } = prepared;
     let (stack, timeline) = (&stack, &timeline);
@@ -286,20 +312,20 @@ fn write_outputs(
         .elevation_range()
         .expect("align refuses all-nodata grids");
     // Colouring by change: the ramp's limit (fixed for the whole animation) and t for the LoD.
-    let change_colour = match job.colour {
-        ColourBy::Elevation => None,
+    let change_colour = match &job.colour {
+        ColourBy::Elevation | ColourBy::Drape { .. } => None,
         ColourBy::Change { since, limit_m } => {
             let limit = limit_m
-                .unwrap_or_else(|| largest_change_m(stack, since))
+                .unwrap_or_else(|| largest_change_m(stack, *since))
                 .max(0.01);
             Some((limit, job.change.lod_t))
         }
     };
-    let legend = match (&change_colour, job.colour) {
+    let legend = match (&change_colour, &job.colour) {
         (Some((limit, _)), ColourBy::Change { since, .. }) => Some(Legend {
             title: format!(
                 "Change since {} survey (pale: within LoD)",
-                if since == ShellSurvey::First {
+                if *since == ShellSurvey::First {
                     "first"
                 } else {
                     "previous"
@@ -370,9 +396,9 @@ fn write_outputs(
         } else {
             0.0
         };
-        let colouring = match (&change_colour, job.colour) {
+        let colouring = match (&change_colour, &job.colour) {
             (Some((limit_m, t_lod)), ColourBy::Change { since, .. }) => {
-                let r = earlier_survey(since, t.kind).unwrap_or(t.from);
+                let r = earlier_survey(*since, t.kind).unwrap_or(t.from);
                 let sigma = |i: usize| record.surveys[i].sigma_z_m;
                 let lod_m = t_lod * sigma(r).hypot(sigma(t.from).max(sigma(t.to)));
                 Colouring::Change {
@@ -381,7 +407,9 @@ fn write_outputs(
                     lod_m: lod_m as f32,
                 }
             }
-            _ => Colouring::Elevation,
+            _ => drape
+                .as_ref()
+                .map_or(Colouring::Elevation, Colouring::Drape),
         };
         let view = renderer.render_scene_into(&surface, shell, colouring, orbit, &mut frame);
         let peak = peaks[t.index];
@@ -407,7 +435,8 @@ fn write_outputs(
             peak_height: peak.map_or(f64::NAN, |(z, _, _)| to_unit(z as f64)),
             peak_unit: unit.symbol().into(),
             peak_px,
-            legend: Some(legend.clone()),
+            // A draped image has no scale to explain.
+            legend: drape.is_none().then(|| legend.clone()),
             north_angle_rad: view.north_px().map(|(dx, dy)| dx.atan2(-dy)),
             metres_per_px: Some(view.metres_per_px()),
             inset: Some(InsetChart {

@@ -4,13 +4,16 @@
 //! - `read_grid(path) -> Result<(Grid, GridSource)>`: nodata becomes NaN here, elevations become metres.
 //! - `write_bands(path, geometry, bands, &WriteOptions) -> Result<()>`: float32 GeoTIFF with one band per
 //!   array, written to a temporary file in the same folder and renamed when complete.
+//! - `read_rgb(path) -> Result<(GridGeometry, Array3<u8>)>`: an RGB(A) orthophoto as sRGB bytes.
 
 mod georef;
 mod keys;
 mod read;
+mod rgb;
 mod sample;
 mod units;
 mod write;
 
 pub use read::read_grid;
+pub use rgb::read_rgb;
 pub use write::{write_bands, WriteOptions};

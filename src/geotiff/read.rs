@@ -17,7 +17,7 @@ use tiff::{TiffError, TiffFormatError};
 use super::georef::{self, ModelTags};
 use super::keys::GeoKeys;
 use super::sample::to_metres;
-use super::units;
+use super::units::{self, Units};
 use crate::error::{Error, Result};
 use crate::grid::{Grid, GridGeometry};
 use crate::survey::GridSource;
@@ -43,44 +43,15 @@ const MAX_DECODED_BYTES: u64 = 4 << 30;
 /// one f32 array of rows x cols.
 pub fn read_grid(path: &Path) -> Result<(Grid, GridSource)> {
     let bad = |msg: String| Error::input(path, msg);
-    let file = File::open(path).map_err(|e| match e.kind() {
-        ErrorKind::NotFound => {
-            Error::input(path, "file not found; check the grid path in the job file")
-        }
-        _ => Error::io(path, e),
-    })?;
-    let limits = {
-        let mut l = Limits::default();
-        let max = usize::try_from(MAX_DECODED_BYTES).unwrap_or(usize::MAX);
-        l.decoding_buffer_size = max;
-        l.intermediate_buffer_size = max;
-        l.ifd_value_size = 64 << 20;
-        l
-    };
-    let mut dec = Decoder::new(BufReader::with_capacity(1 << 20, file))
-        .map_err(|e| bad(tiff_message(e)))?
-        .with_limits(limits);
-
+    let mut dec = open(path, "check the grid path in the job file")?;
     let layout = Layout::read(&mut dec).map_err(&bad)?;
-    let model = ModelTags {
-        pixel_scale: f64_tag(
-            &mut dec,
-            Tag::ModelPixelScaleTag,
-            "ModelPixelScale (tag 33550)",
-        )
-        .map_err(&bad)?,
-        tiepoints: f64_tag(&mut dec, Tag::ModelTiepointTag, "ModelTiepoint (tag 33922)")
-            .map_err(&bad)?,
-        transformation: f64_tag(
-            &mut dec,
-            Tag::ModelTransformationTag,
-            "ModelTransformation (tag 34264)",
-        )
-        .map_err(&bad)?,
-    };
-    let keys = read_keys(&mut dec).map_err(&bad)?;
-    let units = units::units(&keys).map_err(&bad)?;
-    let placement = georef::place(&model, units.pixel_is_point).map_err(&bad)?;
+    if layout.bands > 1 {
+        log::warn!(
+            "file has {} bands; reading band 1 as elevation",
+            layout.bands
+        );
+    }
+    let (geometry, units) = georeference(&mut dec, &layout).map_err(&bad)?;
     let nodata = read_nodata(&mut dec).map_err(&bad)?;
 
     let cells = layout.rows * layout.cols;
@@ -95,16 +66,6 @@ pub fn read_grid(path: &Path) -> Result<(Grid, GridSource)> {
         ))
     })?;
 
-    let geometry = GridGeometry {
-        cols: layout.cols,
-        rows: layout.rows,
-        origin_x: placement.origin_x,
-        origin_y: placement.origin_y,
-        cell_x: placement.cell_x,
-        cell_y: placement.cell_y,
-        epsg: units.epsg,
-        horizontal_unit: units.horizontal,
-    };
     let source = GridSource {
         path: path.to_path_buf(),
         sample_type: layout.sample_type.to_string(),
@@ -125,17 +86,71 @@ pub fn read_grid(path: &Path) -> Result<(Grid, GridSource)> {
     Ok((Grid { geometry, z }, source))
 }
 
+/// The decoder type shared by the readers.
+pub(super) type Reader = Decoder<BufReader<File>>;
+
+/// Opens a TIFF with this reader's size limits; `fix_missing` ends the message for a missing file.
+pub(super) fn open(path: &Path, fix_missing: &str) -> Result<Reader> {
+    let file = File::open(path).map_err(|e| match e.kind() {
+        ErrorKind::NotFound => Error::input(path, format!("file not found; {fix_missing}")),
+        _ => Error::io(path, e),
+    })?;
+    let limits = {
+        let mut l = Limits::default();
+        let max = usize::try_from(MAX_DECODED_BYTES).unwrap_or(usize::MAX);
+        l.decoding_buffer_size = max;
+        l.intermediate_buffer_size = max;
+        l.ifd_value_size = 64 << 20;
+        l
+    };
+    Ok(Decoder::new(BufReader::with_capacity(1 << 20, file))
+        .map_err(|e| Error::input(path, tiff_message(e)))?
+        .with_limits(limits))
+}
+
+/// Where the first image lies (model tags, GeoKeys, units), as the geometry of its cells.
+pub(super) fn georeference(
+    dec: &mut Reader,
+    layout: &Layout,
+) -> Result<(GridGeometry, Units), String> {
+    let model = ModelTags {
+        pixel_scale: f64_tag(dec, Tag::ModelPixelScaleTag, "ModelPixelScale (tag 33550)")?,
+        tiepoints: f64_tag(dec, Tag::ModelTiepointTag, "ModelTiepoint (tag 33922)")?,
+        transformation: f64_tag(
+            dec,
+            Tag::ModelTransformationTag,
+            "ModelTransformation (tag 34264)",
+        )?,
+    };
+    let keys = read_keys(dec)?;
+    let units = units::units(&keys)?;
+    let placement = georef::place(&model, units.pixel_is_point)?;
+    let geometry = GridGeometry {
+        cols: layout.cols,
+        rows: layout.rows,
+        origin_x: placement.origin_x,
+        origin_y: placement.origin_y,
+        cell_x: placement.cell_x,
+        cell_y: placement.cell_y,
+        epsg: units.epsg,
+        horizontal_unit: units.horizontal,
+    };
+    Ok((geometry, units))
+}
+
 /// Size, sample type and compression of the first image, checked before any pixel is decoded.
-struct Layout {
-    rows: usize,
-    cols: usize,
-    bands: usize,
-    sample_type: &'static str,
-    compression: &'static str,
+pub(super) struct Layout {
+    pub(super) rows: usize,
+    pub(super) cols: usize,
+    pub(super) bands: usize,
+    pub(super) sample_type: &'static str,
+    pub(super) compression: &'static str,
 }
 
 impl Layout {
-    fn read<R: std::io::Read + std::io::Seek>(dec: &mut Decoder<R>) -> Result<Self, String> {
+    pub(super) fn read<R: std::io::Read + std::io::Seek>(
+        dec: &mut Decoder<R>,
+    ) -> Result<Self, String> {
         let (width, height) = dec.dimensions().map_err(tiff_message)?;
         if width == 0 || height == 0 {
             return Err(format!(
@@ -184,9 +199,6 @@ impl Layout {
                         write the grid with BlackIsZero (1), the usual setting for elevation rasters"
                 .into());
         }
-        if bands > 1 {
-            log::warn!("file has {bands} bands; reading band 1 as elevation");
-        }
         let bytes = u64::from(width) * u64::from(height) * u64::from(bands) * u64::from(bits / 8);
         if bytes > MAX_DECODED_BYTES {
             return Err(format!(
@@ -219,7 +231,7 @@ fn compression_name(code: u16) -> &'static str {
 }
 
 /// First value of an integer tag (all values must agree for BitsPerSample and SampleFormat).
-fn short_tag<R: std::io::Read + std::io::Seek>(
+pub(super) fn short_tag<R: std::io::Read + std::io::Seek>(
     dec: &mut Decoder<R>,
     tag: Tag,
 ) -> Result<Option<u16>, String> {
@@ -300,7 +312,7 @@ fn parse_nodata(text: &str) -> Result<f64, String> {
 }
 
 /// Turns a decoder error into a message with a fix.
-fn tiff_message(e: TiffError) -> String {
+pub(super) fn tiff_message(e: TiffError) -> String {
     match e {
         TiffError::FormatError(TiffFormatError::TiffSignatureNotFound | TiffFormatError::TiffSignatureInvalid) => {
             "not a TIFF file (no II*/MM* signature at the start); give a GeoTIFF elevation grid".into()

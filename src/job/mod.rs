@@ -43,7 +43,7 @@ impl Method {
 }
 
 /// How the terrain is coloured.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub enum ColourBy {
     /// By elevation, on one ramp fixed for the whole animation.
     Elevation,
@@ -54,6 +54,11 @@ pub enum ColourBy {
         since: ShellSurvey,
         /// Change in metres at the ends of the ramp; None = the largest change in the job.
         limit_m: Option<f64>,
+    },
+    /// By an RGB image (an orthophoto GeoTIFF) draped over the surface.
+    Drape {
+        /// Absolute path of the image.
+        path: PathBuf,
     },
 }
 

@@ -102,12 +102,14 @@ pub(super) struct InBetweenEntry {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub(super) struct ColourEntry {
-    /// `elevation` or `change`.
+    /// `elevation`, `change` or `drape`.
     pub by: String,
     /// For `change`: `first` or `previous` survey.
     pub since: String,
     /// For `change`: the change in metres at the ends of the ramp; absent = the largest change.
     pub limit_m: Option<f64>,
+    /// For `drape`: an RGB GeoTIFF, relative to the job file.
+    pub drape: Option<String>,
 }
 
 impl Default for ColourEntry {
@@ -116,6 +118,7 @@ impl Default for ColourEntry {
             by: "elevation".into(),
             since: "first".into(),
             limit_m: None,
+            drape: None,
         }
     }
 }

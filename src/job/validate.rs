@@ -301,8 +301,37 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             ));
         }
     };
+    if f.colour.drape.is_some() && f.colour.by != "drape" {
+        return Err(bad(
+            "colour.drape",
+            format!(
+                "is set but colour.by is `{}`; write `by: drape` to drape the image, or remove `drape`",
+                f.colour.by
+            ),
+        ));
+    }
     let colour = match (f.colour.by.as_str(), f.colour.since.as_str()) {
         ("elevation", _) => ColourBy::Elevation,
+        ("drape", _) => {
+            let Some(image) = &f.colour.drape else {
+                return Err(bad(
+                    "colour.drape",
+                    "is missing; `by: drape` needs an RGB GeoTIFF, e.g. `drape: orthophoto.tif`"
+                        .into(),
+                ));
+            };
+            let path = tidy(&here.join(image));
+            if !path.is_file() {
+                return Err(bad(
+                    "colour.drape",
+                    format!(
+                        "no file at {} (paths are relative to the job file's folder); correct the path",
+                        path.display()
+                    ),
+                ));
+            }
+            ColourBy::Drape { path }
+        }
         ("change", since @ ("first" | "previous")) => {
             if let Some(l) = f.colour.limit_m {
                 if !(l > 0.0 && l < 1000.0) {
@@ -331,7 +360,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         (other, _) => {
             return Err(bad(
                 "colour.by",
-                format!("\"{other}\" is not a choice; use `elevation` or `change`"),
+                format!("\"{other}\" is not a choice; use `elevation`, `change` or `drape`"),
             ));
         }
     };
@@ -531,6 +560,19 @@ mod tests {
     }
 
     #[test]
+    fn drape_path_resolves_against_the_job_folder() {
+        let d = job_dir();
+        let text = format!("{MINIMAL}colour: {{ by: drape, drape: ./a.tif }}\n");
+        let job = parse(&d.path().join("job.yaml"), text).unwrap();
+        assert_eq!(
+            job.colour,
+            ColourBy::Drape {
+                path: d.path().join("a.tif")
+            }
+        );
+    }
+
+    #[test]
     fn other_mistakes_name_their_key() {
         let cases = [
             (
@@ -564,6 +606,18 @@ mod tests {
             (
                 MINIMAL.replace("folder: out", "folder: out, gif: x/y.gif"),
                 "output.gif",
+            ),
+            (
+                format!("{MINIMAL}colour: {{ by: drape }}\n"),
+                "colour.drape",
+            ),
+            (
+                format!("{MINIMAL}colour: {{ by: drape, drape: photo.tif }}\n"),
+                "colour.drape",
+            ),
+            (
+                format!("{MINIMAL}colour: {{ drape: a.tif }}\n"),
+                "colour.drape",
             ),
         ];
         for (text, key) in cases {

@@ -62,3 +62,31 @@ pub fn moving_dune_job(dir: &Path, extra_yaml: &str) -> PathBuf {
     std::fs::write(&path, job).unwrap();
     path
 }
+
+/// Writes an 8-bit RGB GeoTIFF on `g` whose cell (row, col) has colour `rgb(row, col)`.
+pub fn write_rgb(path: &Path, g: &GridGeometry, rgb: impl Fn(usize, usize) -> [u8; 3]) {
+    use tiff::encoder::{colortype::RGB8, TiffEncoder};
+    use tiff::tags::Tag;
+    let data: Vec<u8> = (0..g.rows * g.cols)
+        .flat_map(|i| rgb(i / g.cols, i % g.cols))
+        .collect();
+    let mut out = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
+    let mut enc = TiffEncoder::new(&mut out).unwrap();
+    let mut image = enc.new_image::<RGB8>(g.cols as u32, g.rows as u32).unwrap();
+    let dir = image.encoder();
+    dir.write_tag(Tag::ModelPixelScaleTag, &[g.cell_x, g.cell_y, 0.0][..])
+        .unwrap();
+    dir.write_tag(
+        Tag::ModelTiepointTag,
+        &[0.0, 0.0, 0.0, g.origin_x, g.origin_y, 0.0][..],
+    )
+    .unwrap();
+    // GeoKey directory: version 1.1.0, 2 keys; projected model (1024 = 1), EPSG code (3072).
+    let epsg = g.epsg.unwrap_or(32631) as u16;
+    dir.write_tag(
+        Tag::GeoKeyDirectoryTag,
+        &[1u16, 1, 0, 2, 1024, 0, 1, 1, 3072, 0, 1, epsg][..],
+    )
+    .unwrap();
+    image.write_data(&data).unwrap();
+}
