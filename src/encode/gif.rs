@@ -10,14 +10,16 @@
 //! holding every pixel whose palette index changed; inside it, unchanged pixels take a transparent
 //! index (one no changed pixel uses) and every frame says "leave in place" (disposal 1), so a viewer
 //! shows the previous frame through them. If all 256 indices occur among the changed pixels, the
-//! rectangle is written opaque. Byte layout (GIF89a, CompuServe 1990; NETSCAPE2.0 looping block),
-//! LZW and block splitting are done by the `gif` crate.
+//! rectangle is written opaque. LZW coding is ours (`lzw`, same bytes as the `gif` crate's, faster);
+//! byte layout (GIF89a, CompuServe 1990; NETSCAPE2.0 looping block) and block splitting are done by
+//! the `gif` crate.
 
 use std::path::Path;
 
 use gif::{DisposalMethod, Encoder, Repeat};
 
 use super::atomic::AtomicFile;
+use super::lzw::LzwEncoder;
 use super::quantize::{Mapper, Palette, PaletteBuilder};
 use crate::error::{Error, Result};
 use crate::render::Frame;
@@ -111,6 +113,9 @@ pub struct GifWriter {
     current: Vec<u8>,
     previous: Vec<u8>,
     rect_buf: Vec<u8>,
+    lzw: LzwEncoder,
+    /// LZW minimum code size: bits of the (power-of-two) colour table, at least 2.
+    min_code_size: u8,
     frames: usize,
     err_sum: f64,
     changed_px: u64,
@@ -168,6 +173,8 @@ impl GifWriter {
             current: vec![0; n],
             previous: vec![0; n],
             rect_buf: Vec::with_capacity(n),
+            lzw: LzwEncoder::new(),
+            min_code_size: (palette.len().max(2).next_power_of_two().trailing_zeros() as u8).max(2),
             frames: 0,
             err_sum: 0.0,
             changed_px: 0,
@@ -214,14 +221,15 @@ impl GifWriter {
             top: top as u16,
             width: w as u16,
             height: h as u16,
-            buffer: std::borrow::Cow::Borrowed(&self.rect_buf),
+            buffer: std::borrow::Cow::Borrowed(self.lzw.encode(&self.rect_buf, self.min_code_size)),
             ..Default::default()
         };
         let path = &self.path;
         let enc = self.encoder.as_mut().ok_or_else(|| {
             Error::output(path, "written after finish; this is a bug in dunereel")
         })?;
-        enc.write_frame(&gframe).map_err(|e| gif_err(path, e))?;
+        enc.write_lzw_pre_encoded_frame(&gframe)
+            .map_err(|e| gif_err(path, e))?;
         std::mem::swap(&mut self.current, &mut self.previous);
         self.frames += 1;
         Ok(())
