@@ -269,36 +269,44 @@ impl GifWriter {
             return (0, 0, 1, 1, None);
         }
         let (rw, rh) = (x1 - x0 + 1, y1 - y0 + 1);
-        let mut used = [false; 256];
-        for y in y0..=y1 {
-            let row = y * w;
-            for x in x0..=x1 {
-                let c = self.current[row + x];
-                if c != self.previous[row + x] {
-                    used[c as usize] = true;
+        let (cur_px, prev_px) = (&self.current, &self.previous);
+        let rows = (y0..=y1).map(|y| {
+            let r = y * w + x0..=y * w + x1;
+            (&cur_px[r.clone()], &prev_px[r])
+        });
+        // Prefer a padding entry of the table (it is padded to a power of two, and no pixel uses
+        // it), else any palette index no changed pixel uses.
+        let table_len = self.palette_len.max(2).next_power_of_two();
+        let free = if self.palette_len < table_len {
+            Some(self.palette_len as u8)
+        } else {
+            // Four mark tables, one per pixel phase, so consecutive marks do not wait on each
+            // other; branch-free, since in a moving view nearly every pixel changes.
+            let mut marks = [[0u8; 256]; 4];
+            for (cur, prev) in rows.clone() {
+                let (mut c4, mut p4) = (cur.chunks_exact(4), prev.chunks_exact(4));
+                for (c, p) in (&mut c4).zip(&mut p4) {
+                    for k in 0..4 {
+                        marks[k][c[k] as usize] |= (c[k] != p[k]) as u8;
+                    }
+                }
+                for (c, p) in c4.remainder().iter().zip(p4.remainder()) {
+                    marks[0][*c as usize] |= (c != p) as u8;
                 }
             }
-        }
-        // Prefer a padding entry of the table (it is padded to a power of two), else any
-        // palette index no changed pixel uses.
-        let table_len = self.palette_len.max(2).next_power_of_two();
-        let free = (self.palette_len..table_len)
-            .chain(0..self.palette_len)
-            .find(|&i| !used[i])
-            .map(|i| i as u8);
-        for y in y0..=y1 {
-            let row = y * w;
-            let cur = &self.current[row + x0..=row + x1];
+            (0..self.palette_len)
+                .find(|&i| marks.iter().all(|m| m[i] == 0))
+                .map(|i| i as u8)
+        };
+        self.rect_buf.resize(rw * rh, 0);
+        for ((cur, prev), out) in rows.zip(self.rect_buf.chunks_exact_mut(rw)) {
             match free {
                 Some(t) => {
-                    let prev = &self.previous[row + x0..=row + x1];
-                    self.rect_buf.extend(
-                        cur.iter()
-                            .zip(prev)
-                            .map(|(&c, &p)| if c == p { t } else { c }),
-                    );
+                    for ((o, &c), &p) in out.iter_mut().zip(cur).zip(prev) {
+                        *o = if c == p { t } else { c };
+                    }
                 }
-                None => self.rect_buf.extend_from_slice(cur),
+                None => out.copy_from_slice(cur),
             }
         }
         (x0, y0, rw, rh, free)

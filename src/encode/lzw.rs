@@ -60,9 +60,12 @@ impl Bits<'_> {
     }
 }
 
+/// Hash slot of (prefix code, byte): the byte shifted above the low bits of the code, xor the
+/// code. Two one-cycle operations keep the lookup chain from byte to byte short; for one prefix,
+/// every byte lands in a different slot.
 #[inline(always)]
-fn slot_of(key: u32) -> usize {
-    (key.wrapping_mul(0x9E37_79B1) >> (32 - SLOTS_LOG2)) as usize
+fn slot_of(code: u32, byte: u32) -> usize {
+    (((byte << (SLOTS_LOG2 - 8)) ^ code) as usize) & (SLOTS - 1)
 }
 
 impl LzwEncoder {
@@ -116,7 +119,7 @@ impl LzwEncoder {
         let mut cur = head as u32;
         'input: for &byte in rest {
             let key = (cur << 8) | byte as u32;
-            let mut s = slot_of(key);
+            let mut s = slot_of(cur, byte as u32);
             loop {
                 let v = slots[s];
                 if v == 0 {

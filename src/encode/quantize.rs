@@ -36,6 +36,8 @@ const MBITS: u32 = 6;
 const MCELLS: usize = 1 << (3 * MBITS);
 const MSHIFT: u32 = 8 - MBITS;
 const MLOW: usize = (1 << MSHIFT) - 1;
+/// One answer per 24-bit colour.
+const ANSWERS: usize = 1 << 24;
 
 /// Index of the cell of `B` bits per channel holding (r, g, b).
 #[inline]
@@ -289,12 +291,15 @@ fn sqrt_table() -> &'static [u32; 4096] {
 /// A 16 MiB answer table per palette (allocated zeroed, so the OS backs only the pages of the cells
 /// in use) and a 32 kB bitset of filled cells.
 pub struct Mapper {
-    palette: Vec<[i32; 3]>,
+    /// Palette colours, padded to 256 entries (so any `u8` index is in bounds).
+    palette: Box<[[i32; 3]; 256]>,
     /// Exact nearest index for every 24-bit colour, cell-major: `(cell << 6) | sub`, where `cell`
     /// holds the top 6 bits of each channel and `sub` the low 2 bits (one 64-byte line per cell).
-    answers: Vec<u8>,
+    answers: Box<[u8; ANSWERS]>,
     /// One bit per 6-bit cell: its 64 answers are filled in.
-    filled: Vec<u64>,
+    filled: Box<[u64; MCELLS / 64]>,
+    /// Palette length.
+    len: usize,
     /// Scratch: candidate indices of the cell being filled.
     keep: Vec<u8>,
 }
@@ -311,14 +316,20 @@ fn answer_slot(r: u8, g: u8, b: u8) -> usize {
 impl Mapper {
     /// A mapper for `palette`.
     pub fn new(palette: &Palette) -> Self {
+        let mut colours = Box::new([[0i32; 3]; 256]);
+        for (dst, c) in colours.iter_mut().zip(&palette.colours) {
+            *dst = [c[0] as i32, c[1] as i32, c[2] as i32];
+        }
+        // Allocated zeroed: the OS maps pages only when a cell in them is filled.
+        let answers: Box<[u8; ANSWERS]> = vec![0u8; ANSWERS]
+            .into_boxed_slice()
+            .try_into()
+            .expect("answer table size");
         Mapper {
-            palette: palette
-                .colours
-                .iter()
-                .map(|c| [c[0] as i32, c[1] as i32, c[2] as i32])
-                .collect(),
-            answers: vec![0; MCELLS << (3 * MSHIFT)],
-            filled: vec![0; MCELLS.div_ceil(64)],
+            palette: colours,
+            answers,
+            filled: Box::new([0; MCELLS / 64]),
+            len: palette.len(),
             keep: Vec::with_capacity(256),
         }
     }
@@ -335,7 +346,7 @@ impl Mapper {
         let hi = lo.map(|v| v + (1 << MSHIFT) - 1);
         let mut best_far = i32::MAX;
         let mut near = [0i32; 256];
-        for (i, p) in self.palette.iter().enumerate() {
+        for (i, p) in self.palette[..self.len].iter().enumerate() {
             let (mut dn, mut df) = (0, 0);
             for k in 0..3 {
                 let n = if p[k] < lo[k] {
@@ -354,7 +365,7 @@ impl Mapper {
         }
         self.keep.clear();
         self.keep.extend(
-            (0..self.palette.len())
+            (0..self.len)
                 .filter(|&i| near[i] <= best_far)
                 .map(|i| i as u8),
         );
@@ -390,11 +401,11 @@ impl Mapper {
     /// Index of the nearest palette colour to (r, g, b).
     #[inline]
     pub fn nearest(&mut self, r: u8, g: u8, b: u8) -> u8 {
-        let cell = mcell_of(r, g, b);
+        let cell = mcell_of(r, g, b) & (MCELLS - 1);
         if self.filled[cell >> 6] & (1 << (cell & 63)) == 0 {
             self.fill_cell(cell);
         }
-        self.answers[answer_slot(r, g, b)]
+        self.answers[answer_slot(r, g, b) & (ANSWERS - 1)]
     }
 
     /// Maps a whole RGBA frame (`width` pixels a row) into `out` (one index per pixel), with Bayer
