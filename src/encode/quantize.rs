@@ -554,6 +554,32 @@ mod tests {
     }
 
     #[test]
+    fn answer_table_is_exact_on_a_lattice_and_breaks_ties_low() {
+        // Every 5th level per channel (52^3 colours, every cell phase met) against a full search.
+        let mut b = PaletteBuilder::new();
+        b.add_rgba(&gradient(61, 43), 1);
+        let pal = b.build(23);
+        let mut m = Mapper::new(&pal);
+        for r in (0..=255u8).step_by(5) {
+            for g in (0..=255u8).step_by(5) {
+                for bl in (0..=255u8).step_by(5) {
+                    let c = [r, g, bl];
+                    let got = m.nearest(r, g, bl);
+                    let (want, want_d) = brute_nearest(&pal, c);
+                    let p = pal.colours()[got as usize];
+                    let got_d: i32 = (0..3).map(|k| (p[k] as i32 - c[k] as i32).pow(2)).sum();
+                    assert_eq!((got, got_d), (want, want_d), "colour {c:?}");
+                }
+            }
+        }
+        // Equal distances go to the lower index, whichever order the colours come in.
+        let pal = Palette::new(vec![[12, 0, 0], [10, 0, 0], [8, 0, 0]]).unwrap();
+        let mut m = Mapper::new(&pal);
+        assert_eq!(m.nearest(11, 0, 0), 0);
+        assert_eq!(m.nearest(9, 0, 0), 1);
+    }
+
+    #[test]
     fn few_colours_are_kept_exactly() {
         // Check: REFERENCES.md §10 — an image with ≤ 256 distinct colours must round-trip losslessly.
         let mut rgba = Vec::new();
