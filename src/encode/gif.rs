@@ -10,14 +10,16 @@
 //! holding every pixel whose palette index changed; inside it, unchanged pixels take a transparent
 //! index (one no changed pixel uses) and every frame says "leave in place" (disposal 1), so a viewer
 //! shows the previous frame through them. If all 256 indices occur among the changed pixels, the
-//! rectangle is written opaque. Byte layout (GIF89a, CompuServe 1990; NETSCAPE2.0 looping block),
-//! LZW and block splitting are done by the `gif` crate.
+//! rectangle is written opaque. LZW coding is ours (`lzw`, same bytes as the `gif` crate's, faster);
+//! byte layout (GIF89a, CompuServe 1990; NETSCAPE2.0 looping block) and block splitting are done by
+//! the `gif` crate.
 
 use std::path::Path;
 
 use gif::{DisposalMethod, Encoder, Repeat};
 
 use super::atomic::AtomicFile;
+use super::lzw::LzwEncoder;
 use super::quantize::{Mapper, Palette, PaletteBuilder};
 use crate::error::{Error, Result};
 use crate::render::Frame;
@@ -111,6 +113,9 @@ pub struct GifWriter {
     current: Vec<u8>,
     previous: Vec<u8>,
     rect_buf: Vec<u8>,
+    lzw: LzwEncoder,
+    /// LZW minimum code size: bits of the (power-of-two) colour table, at least 2.
+    min_code_size: u8,
     frames: usize,
     err_sum: f64,
     changed_px: u64,
@@ -168,6 +173,8 @@ impl GifWriter {
             current: vec![0; n],
             previous: vec![0; n],
             rect_buf: Vec::with_capacity(n),
+            lzw: LzwEncoder::new(),
+            min_code_size: (palette.len().max(2).next_power_of_two().trailing_zeros() as u8).max(2),
             frames: 0,
             err_sum: 0.0,
             changed_px: 0,
@@ -214,14 +221,15 @@ impl GifWriter {
             top: top as u16,
             width: w as u16,
             height: h as u16,
-            buffer: std::borrow::Cow::Borrowed(&self.rect_buf),
+            buffer: std::borrow::Cow::Borrowed(self.lzw.encode(&self.rect_buf, self.min_code_size)),
             ..Default::default()
         };
         let path = &self.path;
         let enc = self.encoder.as_mut().ok_or_else(|| {
             Error::output(path, "written after finish; this is a bug in dunereel")
         })?;
-        enc.write_frame(&gframe).map_err(|e| gif_err(path, e))?;
+        enc.write_lzw_pre_encoded_frame(&gframe)
+            .map_err(|e| gif_err(path, e))?;
         std::mem::swap(&mut self.current, &mut self.previous);
         self.frames += 1;
         Ok(())
@@ -261,36 +269,44 @@ impl GifWriter {
             return (0, 0, 1, 1, None);
         }
         let (rw, rh) = (x1 - x0 + 1, y1 - y0 + 1);
-        let mut used = [false; 256];
-        for y in y0..=y1 {
-            let row = y * w;
-            for x in x0..=x1 {
-                let c = self.current[row + x];
-                if c != self.previous[row + x] {
-                    used[c as usize] = true;
+        let (cur_px, prev_px) = (&self.current, &self.previous);
+        let rows = (y0..=y1).map(|y| {
+            let r = y * w + x0..=y * w + x1;
+            (&cur_px[r.clone()], &prev_px[r])
+        });
+        // Prefer a padding entry of the table (it is padded to a power of two, and no pixel uses
+        // it), else any palette index no changed pixel uses.
+        let table_len = self.palette_len.max(2).next_power_of_two();
+        let free = if self.palette_len < table_len {
+            Some(self.palette_len as u8)
+        } else {
+            // Four mark tables, one per pixel phase, so consecutive marks do not wait on each
+            // other; branch-free, since in a moving view nearly every pixel changes.
+            let mut marks = [[0u8; 256]; 4];
+            for (cur, prev) in rows.clone() {
+                let (mut c4, mut p4) = (cur.chunks_exact(4), prev.chunks_exact(4));
+                for (c, p) in (&mut c4).zip(&mut p4) {
+                    for k in 0..4 {
+                        marks[k][c[k] as usize] |= (c[k] != p[k]) as u8;
+                    }
+                }
+                for (c, p) in c4.remainder().iter().zip(p4.remainder()) {
+                    marks[0][*c as usize] |= (c != p) as u8;
                 }
             }
-        }
-        // Prefer a padding entry of the table (it is padded to a power of two), else any
-        // palette index no changed pixel uses.
-        let table_len = self.palette_len.max(2).next_power_of_two();
-        let free = (self.palette_len..table_len)
-            .chain(0..self.palette_len)
-            .find(|&i| !used[i])
-            .map(|i| i as u8);
-        for y in y0..=y1 {
-            let row = y * w;
-            let cur = &self.current[row + x0..=row + x1];
+            (0..self.palette_len)
+                .find(|&i| marks.iter().all(|m| m[i] == 0))
+                .map(|i| i as u8)
+        };
+        self.rect_buf.resize(rw * rh, 0);
+        for ((cur, prev), out) in rows.zip(self.rect_buf.chunks_exact_mut(rw)) {
             match free {
                 Some(t) => {
-                    let prev = &self.previous[row + x0..=row + x1];
-                    self.rect_buf.extend(
-                        cur.iter()
-                            .zip(prev)
-                            .map(|(&c, &p)| if c == p { t } else { c }),
-                    );
+                    for ((o, &c), &p) in out.iter_mut().zip(cur).zip(prev) {
+                        *o = if c == p { t } else { c };
+                    }
                 }
-                None => self.rect_buf.extend_from_slice(cur),
+                None => out.copy_from_slice(cur),
             }
         }
         (x0, y0, rw, rh, free)

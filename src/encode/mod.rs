@@ -4,10 +4,12 @@
 //! - `atomic`: write under a temporary name, rename when complete, never replace unless asked.
 //! - `quantize`: one palette for a whole animation (median cut) and nearest-colour mapping with
 //!   optional ordered dithering.
+//! - `lzw`: the GIF LZW code stream of one image.
 //! - `gif`: the animated GIF writer (global palette, difference frames, delays, looping).
 //! - `png_seq`: numbered PNG frames with an index CSV, and a poster of several frames.
 pub mod atomic;
 pub mod gif;
+pub mod lzw;
 pub mod png_seq;
 pub mod quantize;
 

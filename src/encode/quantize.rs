@@ -8,10 +8,11 @@
 //! at the pixel-weighted median. If the samples hold no more distinct colours than the palette may
 //! have, the palette is exactly those colours, so such images round-trip losslessly.
 //!
-//! Mapping: the exact nearest palette colour (squared RGB distance, ties to the lower index). For
-//! speed a lookup table over the 6-bit cells keeps, per cell, only the palette entries that can be
-//! nearest to some colour in the cell (an entry is kept if its nearest possible distance to the cell
-//! is no more than the smallest farthest distance of any entry). Cells are filled on first use.
+//! Mapping: the exact nearest palette colour (squared RGB distance, ties to the lower index),
+//! answered from a table with one byte per 24-bit colour. The table is filled a 6-bit cell (4x4x4
+//! colours, one 64-byte line) at a time on first use: only the palette entries that can be nearest
+//! to some colour in the cell are searched (an entry is kept if its nearest possible distance to the
+//! cell is no more than the smallest farthest distance of any entry), so every answer is exact.
 //!
 //! Dithering: ordered 4x4 Bayer thresholds (Bayer 1973, REFERENCES.md §10) added to each channel
 //! before the lookup. The offset depends only on the pixel position, so a pixel that keeps its
@@ -30,10 +31,13 @@ pub fn bayer_threshold(x: usize, y: usize) -> f32 {
 /// Bits per channel of the palette histogram cells.
 const BITS: u32 = 6;
 const CELLS: usize = 1 << (3 * BITS);
-/// Bits per channel of the mapper's lookup cells (finer cells: shorter candidate lists).
-const MBITS: u32 = 7;
+/// Bits per channel of the mapper's cells; a cell's 4x4x4 exact answers fill one 64-byte line.
+const MBITS: u32 = 6;
 const MCELLS: usize = 1 << (3 * MBITS);
 const MSHIFT: u32 = 8 - MBITS;
+const MLOW: usize = (1 << MSHIFT) - 1;
+/// One answer per 24-bit colour.
+const ANSWERS: usize = 1 << 24;
 
 /// Index of the cell of `B` bits per channel holding (r, g, b).
 #[inline]
@@ -284,35 +288,56 @@ fn sqrt_table() -> &'static [u32; 4096] {
 /// Maps RGB colours to the index of the nearest palette colour; see the module doc.
 ///
 /// # Allocations
-/// 1 MB of lookup table per palette, plus 8 bytes per candidate of the cells in use.
+/// A 16 MiB answer table per palette (allocated zeroed, so the OS backs only the pages of the cells
+/// in use) and a 32 kB bitset of filled cells.
 pub struct Mapper {
-    palette: Vec<[i32; 3]>,
-    /// Per 6-bit cell: 0 = not filled yet; odd = one candidate, index in bits 8..16; even = a list
-    /// in `candidates`, length - 1 in bits 1..9 and start in bits 9..32; `BRUTE` = list too long to
-    /// store, search the whole palette.
-    info: Vec<u32>,
-    /// Candidate colours with their index: (r, g, b, index).
-    candidates: Vec<[i16; 4]>,
+    /// Palette colours, padded to 256 entries (so any `u8` index is in bounds).
+    palette: Box<[[i32; 3]; 256]>,
+    /// Exact nearest index for every 24-bit colour, cell-major: `(cell << 6) | sub`, where `cell`
+    /// holds the top 6 bits of each channel and `sub` the low 2 bits (one 64-byte line per cell).
+    answers: Box<[u8; ANSWERS]>,
+    /// One bit per 6-bit cell: its 64 answers are filled in.
+    filled: Box<[u64; MCELLS / 64]>,
+    /// Palette length.
+    len: usize,
+    /// Scratch: candidate indices of the cell being filled.
+    keep: Vec<u8>,
 }
 
-const BRUTE: u32 = u32::MAX - 1;
-const MAX_START: usize = (1 << 23) - 1;
+/// Position of (r, g, b) in the cell-major answer table.
+#[inline]
+fn answer_slot(r: u8, g: u8, b: u8) -> usize {
+    (mcell_of(r, g, b) << (3 * MSHIFT))
+        | (((r as usize) & MLOW) << (2 * MSHIFT))
+        | (((g as usize) & MLOW) << MSHIFT)
+        | ((b as usize) & MLOW)
+}
 
 impl Mapper {
     /// A mapper for `palette`.
     pub fn new(palette: &Palette) -> Self {
+        let mut colours = Box::new([[0i32; 3]; 256]);
+        for (dst, c) in colours.iter_mut().zip(&palette.colours) {
+            *dst = [c[0] as i32, c[1] as i32, c[2] as i32];
+        }
+        // Allocated zeroed: the OS maps pages only when a cell in them is filled.
+        let answers: Box<[u8; ANSWERS]> = vec![0u8; ANSWERS]
+            .into_boxed_slice()
+            .try_into()
+            .expect("answer table size");
         Mapper {
-            palette: palette
-                .colours
-                .iter()
-                .map(|c| [c[0] as i32, c[1] as i32, c[2] as i32])
-                .collect(),
-            info: vec![0; MCELLS],
-            candidates: Vec::new(),
+            palette: colours,
+            answers,
+            filled: Box::new([0; MCELLS / 64]),
+            len: palette.len(),
+            keep: Vec::with_capacity(256),
         }
     }
 
-    fn fill_cell(&mut self, cell: usize) -> u32 {
+    /// Fills the answers of one cell: prunes the palette to the entries that can be nearest to
+    /// some colour in the cell, then searches them for each of the cell's colours.
+    #[cold]
+    fn fill_cell(&mut self, cell: usize) {
         let lo = [
             ((cell >> (2 * MBITS)) << MSHIFT) as i32,
             (((cell >> MBITS) & ((1 << MBITS) - 1)) << MSHIFT) as i32,
@@ -321,7 +346,7 @@ impl Mapper {
         let hi = lo.map(|v| v + (1 << MSHIFT) - 1);
         let mut best_far = i32::MAX;
         let mut near = [0i32; 256];
-        for (i, p) in self.palette.iter().enumerate() {
+        for (i, p) in self.palette[..self.len].iter().enumerate() {
             let (mut dn, mut df) = (0, 0);
             for k in 0..3 {
                 let n = if p[k] < lo[k] {
@@ -338,79 +363,49 @@ impl Mapper {
             best_far = best_far.min(df);
             near[i] = dn;
         }
-        let keep: Vec<usize> = (0..self.palette.len())
-            .filter(|&i| near[i] <= best_far)
-            .collect();
-        let info = if keep.len() == 1 {
-            ((keep[0] as u32) << 8) | 1
-        } else if self.candidates.len() + keep.len() > MAX_START {
-            BRUTE
-        } else {
-            let start = self.candidates.len() as u32;
-            for &i in &keep {
-                let p = self.palette[i];
-                self.candidates
-                    .push([p[0] as i16, p[1] as i16, p[2] as i16, i as i16]);
+        self.keep.clear();
+        self.keep.extend(
+            (0..self.len)
+                .filter(|&i| near[i] <= best_far)
+                .map(|i| i as u8),
+        );
+        let base = cell << (3 * MSHIFT);
+        for sub in 0..(1usize << (3 * MSHIFT)) {
+            let c = [
+                lo[0] + (sub >> (2 * MSHIFT)) as i32,
+                lo[1] + ((sub >> MSHIFT) & MLOW) as i32,
+                lo[2] + (sub & MLOW) as i32,
+            ];
+            // Candidates are in index order and only a strictly smaller distance wins: ties go to
+            // the lower index, as in a plain search of the whole palette.
+            let mut best = (0u8, i32::MAX);
+            for &i in &self.keep {
+                let p = self.palette[i as usize];
+                let (dr, dg, db) = (p[0] - c[0], p[1] - c[1], p[2] - c[2]);
+                let d = dr * dr + dg * dg + db * db;
+                if d < best.1 {
+                    best = (i, d);
+                }
             }
-            (start << 9) | (((keep.len() - 1) as u32) << 1)
-        };
-        self.info[cell] = info;
-        info
+            self.answers[base + sub] = best.0;
+        }
+        self.filled[cell >> 6] |= 1 << (cell & 63);
     }
 
-    /// Mean length of the candidate lists met by the pixels of `rgba` (bench diagnostics).
+    /// Number of 6-bit cells (of 262144) filled so far (bench diagnostics).
     #[doc(hidden)]
-    pub fn mean_candidates(&mut self, rgba: &[u8]) -> f64 {
-        let mut n = 0u64;
-        for p in rgba.chunks_exact(4) {
-            self.nearest(p[0], p[1], p[2]);
-            let info = self.info[mcell_of(p[0], p[1], p[2])];
-            n += if info & 1 == 1 {
-                1
-            } else if info == BRUTE {
-                self.palette.len() as u64
-            } else {
-                ((info >> 1) & 0xFF) as u64 + 1
-            };
-        }
-        n as f64 / (rgba.len() / 4).max(1) as f64
+    pub fn filled_cells(&self) -> usize {
+        self.filled.iter().map(|w| w.count_ones() as usize).sum()
     }
 
     /// Index of the nearest palette colour to (r, g, b).
     #[inline]
     pub fn nearest(&mut self, r: u8, g: u8, b: u8) -> u8 {
-        let cell = mcell_of(r, g, b);
-        let mut info = self.info[cell];
-        if info == 0 {
-            info = self.fill_cell(cell);
+        let cell = mcell_of(r, g, b) & (MCELLS - 1);
+        if self.filled[cell >> 6] & (1 << (cell & 63)) == 0 {
+            self.fill_cell(cell);
         }
-        if info & 1 == 1 {
-            return (info >> 8) as u8;
-        }
-        let (r, g, b) = (r as i32, g as i32, b as i32);
-        if info == BRUTE {
-            let mut best = (0u8, i32::MAX);
-            for (i, p) in self.palette.iter().enumerate() {
-                let d = (p[0] - r) * (p[0] - r) + (p[1] - g) * (p[1] - g) + (p[2] - b) * (p[2] - b);
-                if d < best.1 {
-                    best = (i as u8, d);
-                }
-            }
-            return best.0;
-        }
-        let s = (info >> 9) as usize;
-        let n = ((info >> 1) & 0xFF) as usize + 1;
-        let mut best = 0i16;
-        let mut best_d = i32::MAX;
-        for c in &self.candidates[s..s + n] {
-            let (dr, dg, db) = (c[0] as i32 - r, c[1] as i32 - g, c[2] as i32 - b);
-            let d = dr * dr + dg * dg + db * db;
-            if d < best_d {
-                best_d = d;
-                best = c[3];
-            }
-        }
-        best as u8
+        self.answers[answer_slot(r, g, b) & (ANSWERS - 1)]
     }
 
     /// Maps a whole RGBA frame (`width` pixels a row) into `out` (one index per pixel), with Bayer
@@ -442,33 +437,52 @@ impl Mapper {
             .zip(out.chunks_exact_mut(width))
             .enumerate()
         {
-            let tables = &dith[(y & 3) * 4..(y & 3) * 4 + 4];
+            let tables: &[[u8; 256]; 4] = dith[(y & 3) * 4..(y & 3) * 4 + 4]
+                .try_into()
+                .expect("four Bayer columns");
             let mut row_err = 0u64;
-            // One remembered colour per Bayer column: flat areas (background, sky) repeat it, and
-            // then index and error are known without a lookup.
-            let mut memo = [(u32::MAX, 0u8, 0u32); 4];
-            for (x, (p, o)) in src_row.chunks_exact(4).zip(dst_row.iter_mut()).enumerate() {
-                let key = u32::from_le_bytes([p[0], p[1], p[2], 0]);
-                let m = &mut memo[x & 3];
-                if m.0 != key {
-                    let t = &tables[x & 3];
-                    let idx = self.nearest(t[p[0] as usize], t[p[1] as usize], t[p[2] as usize]);
-                    let q = self.palette[idx as usize];
-                    let (dr, dg, db) = (q[0] - p[0] as i32, q[1] - p[1] as i32, q[2] - p[2] as i32);
-                    let d2 = (dr * dr + dg * dg + db * db) as usize;
-                    // Integer sums from a table keep float adds (and their latency) out of the loop.
-                    let e = match sqrt_table.get(d2) {
-                        Some(&v) => v,
-                        None => ((d2 as f64).sqrt() * SQRT_SCALE) as u32,
-                    };
-                    *m = (key, idx, e);
+            // Four pixels at a time, one per Bayer column, so each uses a fixed table.
+            let mut src4 = src_row.chunks_exact(16);
+            let mut dst4 = dst_row.chunks_exact_mut(4);
+            for (p4, o4) in (&mut src4).zip(&mut dst4) {
+                for k in 0..4 {
+                    let (idx, e) = self.map_pixel(&tables[k], &p4[4 * k..4 * k + 4], sqrt_table);
+                    o4[k] = idx;
+                    row_err += e as u64;
                 }
-                row_err += m.2 as u64;
-                *o = m.1;
+            }
+            for (k, (p, o)) in src4
+                .remainder()
+                .chunks_exact(4)
+                .zip(dst4.into_remainder())
+                .enumerate()
+            {
+                let (idx, e) = self.map_pixel(&tables[k], p, sqrt_table);
+                *o = idx;
+                row_err += e as u64;
             }
             err_sum += row_err as f64 / SQRT_SCALE;
         }
         err_sum
+    }
+
+    /// Index of one RGBA pixel `p` dithered through `table`, and its scaled colour error.
+    #[inline(always)]
+    fn map_pixel(&mut self, table: &[u8; 256], p: &[u8], sqrt_table: &[u32; 4096]) -> (u8, u32) {
+        let idx = self.nearest(
+            table[p[0] as usize],
+            table[p[1] as usize],
+            table[p[2] as usize],
+        );
+        let q = self.palette[idx as usize];
+        let (dr, dg, db) = (q[0] - p[0] as i32, q[1] - p[1] as i32, q[2] - p[2] as i32);
+        let d2 = (dr * dr + dg * dg + db * db) as usize;
+        // Integer sums from a table keep float adds (and their latency) out of the loop.
+        let e = match sqrt_table.get(d2) {
+            Some(&v) => v,
+            None => ((d2 as f64).sqrt() * SQRT_SCALE) as u32,
+        };
+        (idx, e)
     }
 }
 
@@ -537,6 +551,32 @@ mod tests {
             let got_d: i32 = (0..3).map(|k| (p[k] as i32 - c[k] as i32).pow(2)).sum();
             assert_eq!(got_d, want_d, "colour {c:?}");
         }
+    }
+
+    #[test]
+    fn answer_table_is_exact_on_a_lattice_and_breaks_ties_low() {
+        // Every 5th level per channel (52^3 colours, every cell phase met) against a full search.
+        let mut b = PaletteBuilder::new();
+        b.add_rgba(&gradient(61, 43), 1);
+        let pal = b.build(23);
+        let mut m = Mapper::new(&pal);
+        for r in (0..=255u8).step_by(5) {
+            for g in (0..=255u8).step_by(5) {
+                for bl in (0..=255u8).step_by(5) {
+                    let c = [r, g, bl];
+                    let got = m.nearest(r, g, bl);
+                    let (want, want_d) = brute_nearest(&pal, c);
+                    let p = pal.colours()[got as usize];
+                    let got_d: i32 = (0..3).map(|k| (p[k] as i32 - c[k] as i32).pow(2)).sum();
+                    assert_eq!((got, got_d), (want, want_d), "colour {c:?}");
+                }
+            }
+        }
+        // Equal distances go to the lower index, whichever order the colours come in.
+        let pal = Palette::new(vec![[12, 0, 0], [10, 0, 0], [8, 0, 0]]).unwrap();
+        let mut m = Mapper::new(&pal);
+        assert_eq!(m.nearest(11, 0, 0), 0);
+        assert_eq!(m.nearest(9, 0, 0), 1);
     }
 
     #[test]
