@@ -1,0 +1,269 @@
+//! `run_job`: the whole pipeline, from a resolved `Job` to the files of one run.
+//!
+//! Order matters for the promise "bad input leaves no output": every check (job, grids, alignment,
+//! view, drape, change options, output folder) happens in `prepare`, before the first byte is
+//! written. `outputs` then makes the frames in a hidden scratch folder beside the target, and the
+//! archive is built in a hidden sibling folder and renamed into place at the very end.
+//!
+//! - `mod.rs`: options, report, checks and everything computed before writing (`prepare`).
+//! - `frames.rs`: one frame — its surface, shell, colouring, render and labels.
+//! - `outputs.rs`: the loop over frames and every file of the run.
+
+mod frames;
+mod outputs;
+
+use std::path::{Path, PathBuf};
+
+use crate::align::{self, AlignedStack};
+use crate::change::{self, ChangeRecord};
+use crate::error::{Error, Result};
+use crate::geotiff;
+use crate::grid::GridGeometry;
+use crate::interp::flow::{self, FlowResult};
+use crate::job::{ColourBy, Job, Method};
+use crate::render::{Drape, Renderer};
+use crate::survey;
+use crate::timeline::{self, Timeline};
+
+/// Settings the command line may override; everything else comes from the job.
+#[derive(Default)]
+pub struct RunOptions {
+    /// Replace an existing output folder. Default: false (the job's `output.overwrite` also allows it).
+    pub overwrite: bool,
+    /// Write into this folder instead of the job's `output.folder`. Default: the job's.
+    pub output_folder: Option<PathBuf>,
+    /// Called after each frame with (frames done, frames in all). Default: none.
+    pub progress: Option<Box<dyn Fn(usize, usize) + Sync>>,
+}
+
+/// What a run produced.
+#[derive(Debug, Clone)]
+pub struct RunReport {
+    /// The output folder.
+    pub folder: PathBuf,
+    /// Number of frames rendered.
+    pub frames: usize,
+    /// Of which survey frames.
+    pub survey_frames: usize,
+    /// Number of payload files in the archive folder.
+    pub files: usize,
+    /// Warnings worth showing the user (also logged).
+    pub warnings: Vec<String>,
+}
+
+/// Most memory the kept animation frames may take, in bytes (frames are kept for the GIF palette).
+pub const FRAME_MEMORY_BUDGET: usize = 6 << 30;
+
+/// Largest grid side, in cells, on which displacement fields are estimated; larger grids are
+/// estimated on block means and the field interpolated back (see `interp::flow::estimate_within`).
+/// 1024 keeps a pair under a second and about 100 MB.
+pub const FLOW_MAX_SIDE: usize = 1024;
+
+/// Runs a job end to end.
+///
+/// # Errors
+/// `Error::Job`/`Error::Input` for bad input (nothing is written), `Error::Output`/`Error::Io` when
+/// writing fails (temporary files are removed and an existing output folder is left as it was).
+pub fn run_job(job: &Job, opts: &RunOptions) -> Result<RunReport> {
+    let folder = opts
+        .output_folder
+        .clone()
+        .unwrap_or_else(|| job.output.folder.clone());
+    let overwrite = opts.overwrite || job.output.overwrite;
+    check_output_folder(&folder, overwrite)?;
+
+    let prepared = prepare(job)?;
+    let scratch = scratch_path(&folder);
+    let result = outputs::write_outputs(job, prepared, &scratch, &folder, overwrite, opts);
+    let _ = std::fs::remove_dir_all(&scratch);
+    result
+}
+
+/// Everything computed and checked before the first write.
+pub(super) struct Prepared {
+    pub(super) stack: AlignedStack,
+    pub(super) timeline: Timeline,
+    pub(super) renderer: Renderer,
+    pub(super) record: ChangeRecord,
+    /// Per interval: the displacement field when the morph may use it (trusted), else None.
+    pub(super) fields: Vec<Option<FlowResult>>,
+    /// The image draped over the terrain, when the job colours by one.
+    pub(super) drape: Option<Drape>,
+    pub(super) warnings: Vec<String>,
+}
+
+fn prepare(job: &Job) -> Result<Prepared> {
+    let surveys = job
+        .surveys
+        .iter()
+        .map(survey::read_survey)
+        .collect::<Result<Vec<_>>>()?;
+    let stack = align::align(surveys, job.area_of_interest)?;
+    let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
+    let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
+    let range = stack
+        .elevation_range()
+        .expect("align refuses all-nodata grids");
+    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
+        .map_err(|m| Error::job(&job.path, "view", m))?;
+    renderer
+        .set_water(&job.water)
+        .map_err(|m| Error::job(&job.path, "water", m))?;
+    renderer
+        .set_shell(&job.shell)
+        .map_err(|m| Error::job(&job.path, "shell", m))?;
+    let drape = match &job.colour {
+        ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
+        _ => None,
+    };
+    let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
+    if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
+        return Err(Error::job(
+            &job.path,
+            "timeline",
+            format!(
+                "{} frames of {} x {} would need {} MiB to build the GIF (limit {} MiB); lower frames_per_year or the frame size",
+                timeline.frames.len(),
+                job.view.width,
+                job.view.height,
+                frame_bytes * timeline.frames.len() >> 20,
+                FRAME_MEMORY_BUDGET >> 20
+            ),
+        ));
+    }
+    let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    let mut warnings = record.warnings.clone();
+    record.warnings.clear();
+
+    // The displacement field of every consecutive pair: the morph needs it, and the record reports
+    // the dominant displacement as the migration of the landform.
+    let cell_m = stack.geometry().cell_x_m();
+    let mut fields = Vec::with_capacity(stack.len() - 1);
+    for i in 0..stack.len() - 1 {
+        let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
+        let result =
+            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE);
+        let pair = record
+            .pairs
+            .iter_mut()
+            .find(|p| p.from_index == i && p.to_index == i + 1);
+        match (&result.verdict, result.dominant, pair) {
+            (v, Some(d), Some(pair)) if v.is_trusted() => pair.set_migration(d.east_m, d.north_m),
+            _ => {}
+        }
+        if result.verdict.is_trusted() {
+            fields.push(Some(result));
+        } else {
+            let fallback = if job.methods[i] == Method::Morph {
+                "frames in this interval use the linear blend instead of the morph, and "
+            } else {
+                ""
+            };
+            let w = format!(
+                "{} -> {}: no reliable displacement ({}); {fallback}no migration is reported for this pair",
+                a.id, b.id, result.verdict
+            );
+            // Logged at info: the CLI prints the report's warnings once, at the end.
+            log::info!("{w}");
+            warnings.push(w);
+            fields.push(None);
+        }
+    }
+    record.warnings.extend(warnings.iter().cloned());
+    Ok(Prepared {
+        stack,
+        timeline,
+        renderer,
+        record,
+        fields,
+        drape,
+        warnings,
+    })
+}
+
+/// The change stage reports job mistakes without knowing the job file's path; put it in.
+fn in_job_file(e: Error, path: &Path) -> Error {
+    match e {
+        Error::Job { place, message, .. } => Error::Job {
+            path: path.to_path_buf(),
+            place,
+            message,
+        },
+        other => other,
+    }
+}
+
+/// Reads the image to drape and checks it against the grid: same CRS and unit, overlapping extent.
+fn read_drape(job: &Job, path: &Path, grid: &GridGeometry) -> Result<Drape> {
+    let (geometry, rgb) = geotiff::read_rgb(path)?;
+    let crs = |g: &GridGeometry| {
+        let code = g.epsg.map_or("not stated".into(), |c| format!("EPSG:{c}"));
+        format!("{code}, in {}", g.horizontal_unit.symbol())
+    };
+    if geometry.epsg.zip(grid.epsg).is_some_and(|(a, b)| a != b)
+        || geometry.horizontal_unit != grid.horizontal_unit
+    {
+        let (ours, theirs) = (crs(&geometry), crs(grid));
+        let msg = format!("CRS {ours} differs from the surveys' {theirs}; reproject the image to the surveys' CRS");
+        return Err(Error::input(path, msg));
+    }
+    Drape::new(&geometry, &rgb, grid).map_err(|m| Error::job(&job.path, "colour.drape", m))
+}
+
+/// The method an interval really uses: the morph only where its displacement field is trusted.
+pub(super) fn effective_method(
+    job: &Job,
+    fields: &[Option<FlowResult>],
+    interval: usize,
+) -> Method {
+    match (job.methods.get(interval), fields.get(interval)) {
+        (Some(Method::Morph), Some(Some(_))) => Method::Morph,
+        _ => Method::Linear,
+    }
+}
+
+/// Refuses to touch an existing folder unless overwriting was asked for.
+fn check_output_folder(folder: &Path, overwrite: bool) -> Result<()> {
+    if folder.exists() && !overwrite {
+        return Err(Error::output(
+            folder,
+            "the output folder already exists; choose another output.folder, or pass --overwrite (or set output.overwrite: true) to replace it",
+        ));
+    }
+    if folder.exists() && !folder.is_dir() {
+        return Err(Error::output(
+            folder,
+            "exists and is not a folder; choose another output.folder",
+        ));
+    }
+    Ok(())
+}
+
+/// A hidden sibling of the output folder for frames on their way into the archive.
+pub(super) fn scratch_path(folder: &Path) -> PathBuf {
+    let name = folder
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "out".into());
+    folder.with_file_name(format!(".{name}.frames-{}", std::process::id()))
+}
+
+/// Checks a job and its grids as `run_job` would, writing nothing. Returns a one-line summary.
+///
+/// # Errors
+/// As `run_job` before its first write.
+pub fn check_job(job: &Job) -> Result<String> {
+    let Prepared {
+        stack, timeline, ..
+    } = prepare(job)?;
+    let g = stack.geometry();
+    Ok(format!(
+        "{} surveys on a {} x {} grid of {} m cells, {} frames, {:.1} s",
+        stack.len(),
+        g.cols,
+        g.rows,
+        g.cell_x_m(),
+        timeline.frames.len(),
+        timeline.duration_s()
+    ))
+}

@@ -1,0 +1,205 @@
+//! Every file of one run: the PNG frames and their index, the GIF, the poster, the displacement
+//! rasters, then the archive that seals them with the change record.
+
+use std::path::Path;
+
+use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
+use crate::change;
+use crate::encode::gif;
+use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
+use crate::error::{Error, Result};
+use crate::geotiff::{self, WriteOptions};
+use crate::render::Frame;
+
+use super::frames::{delays_cs, Painter};
+use super::{Prepared, RunOptions, RunReport};
+use crate::job::Job;
+
+pub(super) fn write_outputs(
+    job: &Job,
+    prepared: Prepared,
+    scratch: &Path,
+    folder: &Path,
+    overwrite: bool,
+    opts: &RunOptions,
+) -> Result<RunReport> {
+    let Prepared {
+        stack,
+        timeline,
+        mut renderer,
+        record,
+        fields,
+        drape,
+        mut warnings,
+    } = prepared;
+    std::fs::create_dir_all(scratch).map_err(|e| Error::io(scratch, e))?;
+    let unit = job.change.display_unit;
+    let mut extra = vec![ExtraFile {
+        name: "job/job.yaml".into(),
+        content: ExtraContent::Bytes(job.text.clone().into_bytes()),
+    }];
+    let mut painter = Painter::new(job, &stack, &timeline, &record, &fields, drape.as_ref());
+
+    // Render and label every frame; write the PNGs as they come and keep the frames for the GIF.
+    let n = timeline.frames.len();
+    let mut frame = Frame::new(job.view.width, job.view.height);
+    let mut kept: Vec<Frame> = Vec::with_capacity(if job.output.gif.is_some() { n } else { 0 });
+    let mut png = if job.output.png_frames {
+        let dir = scratch.join("frames");
+        std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
+        Some((png_seq::PngSequence::create(&dir, "frame-", n, false)?, dir))
+    } else {
+        None
+    };
+    for t in &timeline.frames {
+        let orbit = if n > 1 {
+            t.index as f64 / (n - 1) as f64
+        } else {
+            0.0
+        };
+        let peak_height = painter.paint(&mut renderer, t, orbit, &mut frame);
+        if let Some((seq, _)) = png.as_mut() {
+            let row = png_seq::IndexRow {
+                time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
+                status: if t.kind.is_measured() {
+                    RowStatus::Surveyed
+                } else {
+                    RowStatus::Interpolated
+                },
+                from_survey: stack.surveys()[t.from].id.clone(),
+                to_survey: stack.surveys()[t.to].id.clone(),
+                peak_height,
+                peak_unit: unit.symbol().into(),
+            };
+            seq.write_frame(&frame, row)?;
+        }
+        if job.output.gif.is_some() {
+            kept.push(frame.clone());
+        }
+        if let Some(cb) = &opts.progress {
+            cb(t.index + 1, n);
+        }
+    }
+    if let Some((seq, dir)) = png {
+        seq.finish()?;
+        extra.extend(files_under(&dir, "frames")?);
+    }
+    if let Some(name) = &job.output.gif {
+        let path = scratch.join(name);
+        let stats = gif::write_gif(&path, &kept, &delays_cs(&timeline), &job.animation, false)?;
+        log::info!(
+            "{name}: {} frames, {} bytes, mean colour error {:.2}",
+            stats.frames,
+            stats.bytes,
+            stats.mean_colour_error
+        );
+        drop(kept);
+        extra.push(ExtraFile {
+            name: format!("animation/{name}"),
+            content: ExtraContent::File(path),
+        });
+    }
+    if job.output.poster {
+        // Small multiples compare best from one viewpoint: every survey seen from the orbit's start.
+        let mut tiles_frames = Vec::new();
+        for t in timeline.frames.iter().filter(|t| t.kind.is_measured()) {
+            let mut f = Frame::new(job.view.width, job.view.height);
+            let peak = painter.paint(&mut renderer, t, 0.0, &mut f);
+            let caption = format!(
+                "{} — peak {:.2} {}",
+                stack.surveys()[t.from].date,
+                peak,
+                unit.symbol()
+            );
+            tiles_frames.push((f, caption));
+        }
+        let tiles: Vec<PosterTile> = tiles_frames
+            .iter()
+            .map(|(frame, caption)| PosterTile { frame, caption })
+            .collect();
+        let path = scratch.join("poster.png");
+        let title = if job.poster.title.is_empty() {
+            job.title.clone()
+        } else {
+            job.poster.title.clone()
+        };
+        png_seq::write_poster(
+            &path,
+            &tiles,
+            &PosterOptions {
+                title,
+                ..job.poster.clone()
+            },
+            false,
+        )?;
+        extra.push(ExtraFile {
+            name: "poster.png".into(),
+            content: ExtraContent::File(path),
+        });
+    }
+    // The displacement fields as two-band rasters (east, north in metres), for the record.
+    for (i, f) in fields.iter().enumerate() {
+        let Some(f) = f else { continue };
+        let (a, b) = (&stack.surveys()[i].id, &stack.surveys()[i + 1].id);
+        let name = format!("displacement-{a}-{b}.tif");
+        let path = scratch.join(&name);
+        let wopts = WriteOptions {
+            nodata: None,
+            overwrite: false,
+            band_descriptions: vec![
+                "east displacement (m)".into(),
+                "north displacement (m)".into(),
+            ],
+        };
+        geotiff::write_bands(
+            &path,
+            stack.geometry(),
+            &[&f.field.east_m, &f.field.north_m],
+            &wopts,
+        )?;
+        extra.push(ExtraFile {
+            name: format!("fields/{name}"),
+            content: ExtraContent::File(path),
+        });
+    }
+
+    let figures = change::figures(&stack, &record, &job.change);
+    let archive = archive::write_archive(
+        folder,
+        &record,
+        &figures,
+        &extra,
+        &ArchiveOptions {
+            overwrite,
+            bagging_date: None,
+        },
+    )?;
+    warnings.dedup();
+    Ok(RunReport {
+        folder: archive.dir,
+        frames: n,
+        survey_frames: timeline
+            .frames
+            .iter()
+            .filter(|f| f.kind.is_measured())
+            .count(),
+        files: archive.payload_files,
+        warnings,
+    })
+}
+
+/// Every file under `dir`, named `prefix/<file>` for the archive, sorted by name.
+fn files_under(dir: &Path, prefix: &str) -> Result<Vec<ExtraFile>> {
+    let mut names: Vec<String> = std::fs::read_dir(dir)
+        .map_err(|e| Error::io(dir, e))?
+        .filter_map(|e| e.ok().map(|e| e.file_name().to_string_lossy().into_owned()))
+        .collect();
+    names.sort();
+    Ok(names
+        .into_iter()
+        .map(|n| ExtraFile {
+            name: format!("{prefix}/{n}"),
+            content: ExtraContent::File(dir.join(n)),
+        })
+        .collect())
+}
