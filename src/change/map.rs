@@ -342,7 +342,7 @@ mod tests {
 }
 
 /// "id (date)", or just the date when the id is the date.
-fn id_and_date(id: &str, date: &str) -> String {
+pub(super) fn id_and_date(id: &str, date: &str) -> String {
     if id == date {
         date.to_string()
     } else {

@@ -197,7 +197,7 @@ pub fn transect_chart(record: &ChangeRecord, opts: &ChangeOptions) -> Frame {
             12.0,
             Anchor::Left,
             BLACK,
-            &format!("{} {}", s.date, s.survey_id),
+            &super::map::id_and_date(&s.survey_id, &s.date.to_string()),
         );
         legend_y += 20.0;
     }
