@@ -315,6 +315,15 @@ fn north_arrow(frame: &mut Frame, x: f32, y: f32) {
     draw::text(frame, x, y - 4.0, 14.0, Anchor::Centre, BLACK, "N");
 }
 
+/// "id (date)", or just the date when the id is the date.
+pub(super) fn id_and_date(id: &str, date: &str) -> String {
+    if id == date {
+        date.to_string()
+    } else {
+        format!("{id} ({date})")
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -338,14 +347,5 @@ mod tests {
         assert_eq!(cell_colour(0.1, 2.0, 0.2, &lut), Some(WITHIN_LOD));
         assert_eq!(cell_colour(f32::NAN, 2.0, 0.2, &lut), None);
         assert_ne!(cell_colour(0.3, 2.0, 0.2, &lut), Some(WITHIN_LOD));
-    }
-}
-
-/// "id (date)", or just the date when the id is the date.
-pub(super) fn id_and_date(id: &str, date: &str) -> String {
-    if id == date {
-        date.to_string()
-    } else {
-        format!("{id} ({date})")
     }
 }

@@ -416,7 +416,7 @@ impl Mapper {
     /// If `out.len() * 4 != rgba.len()` or `width` does not divide the pixel count (a bug in the caller).
     pub fn map_frame(&mut self, rgba: &[u8], width: usize, spread: f32, out: &mut [u8]) -> f64 {
         assert_eq!(rgba.len(), out.len() * 4, "one index per RGBA pixel");
-        assert!(width > 0 && out.len() % width == 0, "whole rows");
+        assert!(width > 0 && out.len().is_multiple_of(width), "whole rows");
         let mut err_sum = 0.0f64;
         let spread = if spread.is_finite() {
             spread.clamp(0.0, 254.0)

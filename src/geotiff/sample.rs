@@ -100,7 +100,7 @@ fn convert<T: Sample>(
     factor: f64,
     nodata: f64,
 ) -> Result<Vec<f32>, String> {
-    if cells == 0 || src.len() % cells != 0 {
+    if cells == 0 || !src.len().is_multiple_of(cells) {
         return Err(format!(
             "decoded {} samples, which is not a whole number of bands of {cells} cells; the file is damaged",
             src.len()

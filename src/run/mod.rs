@@ -126,7 +126,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
                 timeline.frames.len(),
                 job.view.width,
                 job.view.height,
-                frame_bytes * timeline.frames.len() >> 20,
+                (frame_bytes * timeline.frames.len()) >> 20,
                 FRAME_MEMORY_BUDGET >> 20
             ),
         ));

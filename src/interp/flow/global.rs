@@ -96,7 +96,7 @@ pub(crate) fn search_disc(
             }
             if let Some(ncc) = ncc_shift(a, b, d, tr, tc, min_pairs) {
                 // Ties keep the first (row-major) shift, so the result is deterministic.
-                if best.map_or(true, |p| ncc > p.ncc) {
+                if best.is_none_or(|p| ncc > p.ncc) {
                     best = Some(Peak {
                         row: tr,
                         col: tc,
