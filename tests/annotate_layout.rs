@@ -70,6 +70,7 @@ fn full_overlay(interpolated: bool, peak_px: (f32, f32)) -> Overlay {
         }),
         north_angle_rad: Some(0.6),
         metres_per_px: Some(0.8),
+        scale_unit: (1.0, "m".into()),
         inset: Some(InsetChart {
             title: "Peak height".into(),
             unit: "m".into(),

@@ -469,9 +469,19 @@ fn plan_with(
     };
     let mut scale_bar = None;
     let scale = match (ov.metres_per_px, opts.scale_bar && on(Optional::ScaleBar)) {
-        (Some(mpp), true) if mpp.is_finite() && mpp > 0.0 => {
-            nice_length_m(mpp * (120.0 * gu) as f64).map(|len_m| {
-                let bar_px = (len_m / mpp) as f32;
+        (Some(mpp), true) if mpp.is_finite() && mpp > 0.0 && ov.scale_unit.0 > 0.0 => {
+            // Lengths below are in the scale's unit (metres unless the job asks for feet).
+            let (unit_m, symbol) = (ov.scale_unit.0, ov.scale_unit.1.as_str());
+            let upp = mpp / unit_m;
+            let scale_label = |len: f64| {
+                if symbol == "m" {
+                    scale_label(len)
+                } else {
+                    format!("{len} {symbol}")
+                }
+            };
+            nice_length_m(upp * (120.0 * gu) as f64).map(|len_m| {
+                let bar_px = (len_m / upp) as f32;
                 let size = (10.0 * gu).max(MIN_OPTIONAL_TEXT_PX);
                 let long = format!("{} (approx., foreground)", scale_label(len_m));
                 let text = if super::text::measure_text(size, &long).0 <= 170.0 * gu {
@@ -607,5 +617,37 @@ fn plan_with(
         scale_bar,
         credit_text,
         tag_text,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scale_bar_follows_the_display_unit() {
+        let mut ov = Overlay {
+            metres_per_px: Some(0.5),
+            ..Overlay::default()
+        };
+        let metres = plan(1280, 720, &ov, &LabelOptions::default());
+        let (len_m, px_m, label_m) = metres.scale_bar.expect("room for a scale bar");
+        assert!(
+            label_m.lines.join(" ").contains(" m"),
+            "{:?}",
+            label_m.lines
+        );
+        assert!(((px_m as f64) * 0.5 - len_m).abs() < 1e-3);
+        // Check: international foot = 0.3048 m exactly (from memory, 1959 agreement); the bar's
+        // length in pixels times metres per pixel equals the labelled feet times 0.3048
+        ov.scale_unit = (0.3048, "ft".into());
+        let feet = plan(1280, 720, &ov, &LabelOptions::default());
+        let (len_ft, px_ft, label_ft) = feet.scale_bar.expect("room for a scale bar");
+        assert!(
+            label_ft.lines.join(" ").contains(" ft"),
+            "{:?}",
+            label_ft.lines
+        );
+        assert!(((px_ft as f64) * 0.5 - len_ft * 0.3048).abs() < 1e-3);
     }
 }

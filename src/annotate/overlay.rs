@@ -71,6 +71,8 @@ pub struct Overlay {
     pub north_angle_rad: Option<f32>,
     /// Approximate ground metres per pixel in the foreground, for a scale bar.
     pub metres_per_px: Option<f64>,
+    /// Unit of the scale bar: (metres in one unit, symbol), e.g. (0.3048, "ft"). Default: (1, "m").
+    pub scale_unit: (f64, String),
     /// Inset chart.
     pub inset: Option<InsetChart>,
     /// Credit line (agency, survey source).
@@ -89,6 +91,7 @@ impl Default for Overlay {
             legend: None,
             north_angle_rad: None,
             metres_per_px: None,
+            scale_unit: (1.0, "m".into()),
             inset: None,
             credit: None,
         }

@@ -158,6 +158,7 @@ impl<'a> Painter<'a> {
             legend: self.drape.is_none().then(|| self.legend.clone()),
             north_angle_rad: view.north_px().map(|(dx, dy)| dx.atan2(-dy)),
             metres_per_px: Some(view.metres_per_px()),
+            scale_unit: (unit.metres(), unit.symbol().into()),
             inset: Some(InsetChart {
                 title: "Peak elevation".into(),
                 unit: unit.symbol().into(),
