@@ -105,13 +105,13 @@ fn prepare(job: &Job) -> Result<Prepared> {
         .elevation_range()
         .expect("align refuses all-nodata grids");
     let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
-        .map_err(|m| Error::job(&job.path, "view", m))?;
+        .map_err(|m| keyed_job_error(&job.path, "view", m))?;
     renderer
         .set_water(&job.water)
-        .map_err(|m| Error::job(&job.path, "water", m))?;
+        .map_err(|m| keyed_job_error(&job.path, "water", m))?;
     renderer
         .set_shell(&job.shell)
-        .map_err(|m| Error::job(&job.path, "shell", m))?;
+        .map_err(|m| keyed_job_error(&job.path, "shell", m))?;
     let drape = match &job.colour {
         ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
         _ => None,
@@ -179,6 +179,17 @@ fn prepare(job: &Job) -> Result<Prepared> {
         drape,
         warnings,
     })
+}
+
+/// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that
+/// key; other messages are placed at `section`.
+fn keyed_job_error(path: &Path, section: &str, message: String) -> Error {
+    match message.split_once(": ") {
+        Some((key, rest)) if key.starts_with(section) && !key.contains(' ') => {
+            Error::job(path, key, rest)
+        }
+        _ => Error::job(path, section, message),
+    }
 }
 
 /// The change stage reports job mistakes without knowing the job file's path; put it in.
