@@ -348,10 +348,44 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
         line("tables/transect.*  elevation profiles of every survey along the transect (bilinear samples).");
     }
     for f in figures {
-        line(&format!("{:<18} figure", f.file_name));
+        let what = if f.file_name.starts_with("maps/") {
+            "DEM of difference map (grey: within the LoD)"
+        } else {
+            "figure"
+        };
+        line(&format!("{:<18} {what}", f.file_name));
     }
+    // Extra files are described by their folder; a folder of many files gets one line.
+    let mut groups: Vec<(&str, &str, usize)> = Vec::new();
     for x in extra {
-        line(&format!("{:<18} added by the run", x.name));
+        let key = x
+            .name
+            .split_once('/')
+            .map_or(x.name.as_str(), |(dir, _)| dir);
+        match groups.last_mut() {
+            Some((k, _, n)) if *k == key => *n += 1,
+            _ => groups.push((key, x.name.as_str(), 1)),
+        }
+    }
+    for (key, first, n) in groups {
+        let what = match key {
+            "animation" => {
+                "the animation; frames between surveys are interpolations, not measurements"
+            }
+            "frames" => {
+                "the animation's frames as numbered PNGs, and index.csv saying which are surveyed"
+            }
+            "fields" => "displacement field of each pair: band 1 east, band 2 north, metres",
+            "job" => "the job file as run",
+            "poster.png" => "the surveys side by side, seen from one viewpoint",
+            _ => "added by the run",
+        };
+        let name = if n > 1 {
+            format!("{key}/ ({n} files)")
+        } else {
+            first.to_string()
+        };
+        line(&format!("{name:<18} {what}"));
     }
     line("run.json           options as run and all warnings.");
     line("");
