@@ -173,3 +173,54 @@ fn morph_job_is_trusted_and_indexes_every_frame() {
     let surveyed = index.lines().filter(|l| l.contains(",surveyed,")).count();
     assert_eq!((surveyed, interpolated), (3, 7), "{index}");
 }
+
+#[test]
+fn a_separate_grid_can_be_the_shell() {
+    let d = tempfile::tempdir().unwrap();
+    let sub = |name: &str| {
+        let p = d.path().join(name);
+        std::fs::create_dir(&p).unwrap();
+        p
+    };
+    let (with_dir, plain_dir, bad_dir) = (sub("with"), sub("plain"), sub("bad"));
+    // A flat design surface at 5 m: above the 2 m beach, below the dune's top.
+    let g = common::geometry(64, 48);
+    let flat = ndarray::Array2::from_elem((48, 64), 5.0f32);
+    common::write_grid(&with_dir.join("design.tif"), &g, &flat);
+    let with = common::moving_dune_job(
+        &with_dir,
+        "shell: { survey: grid, grid: design.tif, opacity: 0.6 }\n",
+    );
+    let plain = common::moving_dune_job(&plain_dir, "");
+    let first_frame = |path: &std::path::Path| {
+        let job = job::load(path).unwrap();
+        run_job(&job, &RunOptions::default()).unwrap();
+        let frames = path.parent().unwrap().join("out/data/frames");
+        let mut names: Vec<_> = std::fs::read_dir(&frames)
+            .unwrap()
+            .map(|e| e.unwrap().path())
+            .collect();
+        names.sort();
+        image::open(&names[0]).unwrap().to_rgba8()
+    };
+    let (a, b) = (first_frame(&with), first_frame(&plain));
+    let changed = a.pixels().zip(b.pixels()).filter(|(p, q)| p != q).count();
+    // The shell covers the beach around the dune: a large share of the terrain changes colour.
+    assert!(
+        changed > (a.width() * a.height()) as usize / 10,
+        "{changed} pixels differ"
+    );
+
+    // A shell grid in another CRS is refused before anything is written.
+    let mut other = g.clone();
+    other.epsg = Some(26918);
+    common::write_grid(&bad_dir.join("elsewhere.tif"), &other, &flat);
+    let bad = common::moving_dune_job(&bad_dir, "shell: { survey: grid, grid: elsewhere.tif }\n");
+    let err = run_job(&job::load(&bad).unwrap(), &RunOptions::default()).unwrap_err();
+    assert_eq!(err.exit_code(), 2);
+    assert!(
+        err.to_string().contains("elsewhere.tif") && err.to_string().contains("reproject"),
+        "{err}"
+    );
+    assert!(!bad_dir.join("out").exists());
+}

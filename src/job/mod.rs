@@ -71,6 +71,8 @@ pub enum ShellSurvey {
     First,
     /// The survey before the frame (the earlier end of its interval).
     Previous,
+    /// Another elevation grid named in the job (`shell.grid`), the same on every frame.
+    Grid,
 }
 
 /// One survey as the job lists it (the grid is not read yet).
@@ -134,6 +136,8 @@ pub struct Job {
     pub water: WaterOptions,
     /// Which surface to draw as a translucent shell, if any.
     pub shell_survey: ShellSurvey,
+    /// With `ShellSurvey::Grid`: the grid file drawn as the shell (absolute path).
+    pub shell_grid: Option<PathBuf>,
     /// How the shell looks.
     pub shell: ShellOptions,
     /// The shell is drawn only where it stands at least this far above the frame's surface, in

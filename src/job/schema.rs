@@ -127,8 +127,11 @@ impl Default for ColourEntry {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub(super) struct ShellEntry {
-    /// `none`, `first` (the first survey) or `previous` (the survey before the frame).
+    /// `none`, `first` (the first survey), `previous` (the survey before the frame) or `grid`.
     pub survey: String,
+    /// With `survey: grid`: another elevation grid (a design profile, a bedrock surface), relative
+    /// to the job file.
+    pub grid: Option<String>,
     pub rgb: [u8; 3],
     pub opacity: f64,
     pub min_gap_m: f64,
@@ -139,6 +142,7 @@ impl Default for ShellEntry {
         let d = ShellOptions::default();
         ShellEntry {
             survey: "none".into(),
+            grid: None,
             rgb: d.rgb,
             opacity: d.opacity,
             min_gap_m: 0.3,

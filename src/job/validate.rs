@@ -294,12 +294,38 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         "none" => ShellSurvey::None,
         "first" => ShellSurvey::First,
         "previous" => ShellSurvey::Previous,
+        "grid" => ShellSurvey::Grid,
         other => {
             return Err(bad(
                 "shell.survey",
-                format!("\"{other}\" is not a choice; use `none`, `first` or `previous`"),
+                format!("\"{other}\" is not a choice; use `none`, `first`, `previous` or `grid`"),
             ));
         }
+    };
+    let shell_grid = match (&f.shell.grid, shell_survey) {
+        (Some(g), ShellSurvey::Grid) => {
+            let p = tidy(&here.join(g));
+            if !p.is_file() {
+                return Err(bad(
+                    "shell.grid",
+                    format!("no file at {} (paths are relative to the job file's folder); correct the path", p.display()),
+                ));
+            }
+            Some(p)
+        }
+        (None, ShellSurvey::Grid) => {
+            return Err(bad(
+                "shell.grid",
+                "`survey: grid` needs `grid:`, the path of the grid to draw as the shell".into(),
+            ));
+        }
+        (Some(_), _) => {
+            return Err(bad(
+                "shell.grid",
+                "is only used with `survey: grid`; add that or remove `grid`".into(),
+            ));
+        }
+        (None, _) => None,
     };
     if f.colour.drape.is_some() && f.colour.by != "drape" {
         return Err(bad(
@@ -402,6 +428,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         colour,
         water: f.water,
         shell_survey,
+        shell_grid,
         shell: ShellOptions {
             rgb: f.shell.rgb,
             opacity: f.shell.opacity,

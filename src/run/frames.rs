@@ -20,6 +20,8 @@ pub(super) struct Painter<'a> {
     record: &'a ChangeRecord,
     fields: &'a [Option<FlowResult>],
     drape: Option<&'a Drape>,
+    /// The `shell.grid` surface, when the job draws one instead of an earlier survey.
+    shell_grid: Option<&'a ndarray::Array2<f32>>,
     surface: Surface,
     shell: Surface,
     /// Highest cell of every frame's surface: (elevation m, row, col).
@@ -41,6 +43,7 @@ impl<'a> Painter<'a> {
         record: &'a ChangeRecord,
         fields: &'a [Option<FlowResult>],
         drape: Option<&'a Drape>,
+        shell_grid: Option<&'a ndarray::Array2<f32>>,
     ) -> Self {
         let unit = job.change.display_unit;
         let to_unit = |m: f64| m / unit.metres();
@@ -82,6 +85,7 @@ impl<'a> Painter<'a> {
             record,
             fields,
             drape,
+            shell_grid,
             shell: Surface::for_stack(stack),
             surface,
             peaks,
@@ -105,17 +109,22 @@ impl<'a> Painter<'a> {
         let (job, stack) = (self.job, self.stack);
         let unit = job.change.display_unit;
         make_surface(&mut self.surface, stack, self.fields, job, t);
-        let shell_index = earlier_survey(job.shell_survey, t.kind)
-            .filter(|&i| i != t.from || !t.kind.is_measured());
-        if let Some(i) = shell_index {
+        // The shell: a grid from the job, or an earlier survey (none on the survey itself).
+        let shell_z = match self.shell_grid {
+            Some(z) => Some(z),
+            None => earlier_survey(job.shell_survey, t.kind)
+                .filter(|&i| i != t.from || !t.kind.is_measured())
+                .map(|i| stack.z(i)),
+        };
+        if let Some(z) = shell_z {
             shell_cells_into(
                 &mut self.shell.z,
-                stack.z(i),
+                z,
                 &self.surface.z,
                 job.shell_min_gap_m as f32,
             );
         }
-        let shell = shell_index.map(|_| &self.shell);
+        let shell = shell_z.map(|_| &self.shell);
         let colouring = match (self.change_colour, &job.colour) {
             (Some((limit_m, t_lod)), ColourBy::Change { since, .. }) => {
                 let r = earlier_survey(*since, t.kind).unwrap_or(t.from);
@@ -244,7 +253,7 @@ pub(super) fn make_surface(
 /// a survey frame, the survey before it). None when there is none.
 fn earlier_survey(choice: ShellSurvey, kind: FrameKind) -> Option<usize> {
     match (choice, kind) {
-        (ShellSurvey::None, _) => None,
+        (ShellSurvey::None | ShellSurvey::Grid, _) => None,
         (ShellSurvey::First, _) => Some(0),
         (ShellSurvey::Previous, FrameKind::Interpolated { from, .. }) => Some(from),
         (ShellSurvey::Previous, FrameKind::Measured { survey }) => survey.checked_sub(1),

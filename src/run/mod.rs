@@ -87,6 +87,8 @@ pub(super) struct Prepared {
     pub(super) record: ChangeRecord,
     /// Per interval: the displacement field when the morph may use it (trusted), else None.
     pub(super) fields: Vec<Option<FlowResult>>,
+    /// The `shell.grid` surface on the analysis grid, when the job draws one.
+    pub(super) shell_grid: Option<ndarray::Array2<f32>>,
     /// The image draped over the terrain, when the job colours by one.
     pub(super) drape: Option<Drape>,
     pub(super) warnings: Vec<String>,
@@ -112,6 +114,10 @@ fn prepare(job: &Job) -> Result<Prepared> {
     renderer
         .set_shell(&job.shell)
         .map_err(|m| keyed_job_error(&job.path, "shell", m))?;
+    let shell_grid = match &job.shell_grid {
+        Some(path) => Some(read_shell_grid(path, stack.geometry())?),
+        None => None,
+    };
     let drape = match &job.colour {
         ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
         _ => None,
@@ -176,6 +182,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         renderer,
         record,
         fields,
+        shell_grid,
         drape,
         warnings,
     })
@@ -202,6 +209,32 @@ fn in_job_file(e: Error, path: &Path) -> Error {
         },
         other => other,
     }
+}
+
+/// Reads the `shell.grid` surface and brings it onto the analysis grid (same CRS required).
+fn read_shell_grid(path: &Path, target: &GridGeometry) -> Result<ndarray::Array2<f32>> {
+    let (grid, _) = geotiff::read_grid(path)?;
+    let g = &grid.geometry;
+    if g.epsg != target.epsg || g.horizontal_unit != target.horizontal_unit {
+        return Err(Error::input(
+            path,
+            format!(
+                "CRS {:?} in {} differs from the surveys' {:?} in {}; reproject the shell grid to the surveys' CRS",
+                g.epsg,
+                g.horizontal_unit.symbol(),
+                target.epsg,
+                target.horizontal_unit.symbol()
+            ),
+        ));
+    }
+    let z = align::resample(&grid, target);
+    if z.iter().all(|v| v.is_nan()) {
+        return Err(Error::input(
+            path,
+            "this grid does not overlap the analysis grid anywhere; check its extent and CRS",
+        ));
+    }
+    Ok(z)
 }
 
 /// Reads the image to drape and checks it against the grid: same CRS and unit, overlapping extent.

@@ -29,6 +29,7 @@ pub(super) fn write_outputs(
         mut renderer,
         record,
         fields,
+        shell_grid,
         drape,
         mut warnings,
     } = prepared;
@@ -38,7 +39,15 @@ pub(super) fn write_outputs(
         name: "job/job.yaml".into(),
         content: ExtraContent::Bytes(job.text.clone().into_bytes()),
     }];
-    let mut painter = Painter::new(job, &stack, &timeline, &record, &fields, drape.as_ref());
+    let mut painter = Painter::new(
+        job,
+        &stack,
+        &timeline,
+        &record,
+        &fields,
+        drape.as_ref(),
+        shell_grid.as_ref(),
+    );
 
     // Render and label every frame; write the PNGs as they come and keep the frames for the GIF.
     let n = timeline.frames.len();
