@@ -627,6 +627,14 @@ mod tests {
                 "in_between.method",
             ),
             (
+                format!("{MINIMAL}shell: {{ survey: grid }}\n"),
+                "shell.grid",
+            ),
+            (
+                format!("{MINIMAL}shell: {{ survey: first, grid: a.tif }}\n"),
+                "shell.grid",
+            ),
+            (
                 format!("{MINIMAL}area_of_interest: {{ west: 5, south: 0, east: 1, north: 9 }}\n"),
                 "area_of_interest",
             ),
