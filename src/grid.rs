@@ -147,6 +147,19 @@ impl Grid {
     }
 }
 
+/// Compass azimuth in degrees, clockwise from north, in [0, 360), of the vector (east, north).
+pub fn azimuth_deg(east: f64, north: f64) -> f64 {
+    if east == 0.0 && north == 0.0 {
+        return 0.0;
+    }
+    let a = east.atan2(north).to_degrees().rem_euclid(360.0);
+    if a >= 360.0 {
+        0.0
+    } else {
+        a
+    }
+}
+
 /// Smallest and largest finite value of a sequence.
 pub fn finite_range(values: impl Iterator<Item = f32>) -> Option<(f32, f32)> {
     let mut lo = f32::INFINITY;

@@ -23,7 +23,7 @@ use std::fs;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-use chrono::{Datelike, NaiveDate};
+use chrono::NaiveDate;
 use clap::Parser;
 use ndarray::Array2;
 use serde::Serialize;
@@ -236,10 +236,9 @@ impl Moment {
     }
 }
 
-/// Decimal year, actual-length-year convention: `y + (days since 1 Jan) / (days in y)`.
+/// Decimal year of a date at 00:00, the actual-length-year convention shared with the tool.
 fn decimal_year(date: NaiveDate) -> f64 {
-    let days_in_year = if date.leap_year() { 366.0 } else { 365.0 };
-    date.year() as f64 + date.ordinal0() as f64 / days_in_year
+    dunereel::timeline::decimal_year(date.and_time(chrono::NaiveTime::MIN))
 }
 
 fn parse_date(text: &str) -> NaiveDate {

@@ -4,7 +4,7 @@
 //! Sums run over fixed chunks of [`CHUNK_CELLS`] cells in parallel, each chunk giving f64 partials,
 //! and the partials are combined in chunk order: the result does not depend on the thread count.
 
-use chrono::{Datelike, NaiveDate, NaiveDateTime};
+use chrono::NaiveDate;
 use ndarray::Array2;
 use rayon::prelude::*;
 
@@ -224,64 +224,18 @@ pub fn peak_subcell(z: &Array2<f32>, row: usize, col: usize) -> (f64, f64) {
     (row as f64 + dr, col as f64 + dc)
 }
 
-/// Decimal year of an instant: `y + (t - Jan 1 of y) / (Jan 1 of y+1 - Jan 1 of y)`, the
-/// actual-length-year convention of REFERENCES.md §8 (a leap year has 366 days).
-pub fn decimal_year(t: NaiveDateTime) -> f64 {
-    let y = t.year();
-    let start = year_start(y);
-    let next = year_start(y + 1);
-    let into = (t - start).num_milliseconds() as f64;
-    let len = (next - start).num_milliseconds() as f64;
-    y as f64 + into / len
-}
+pub use crate::timeline::decimal_year;
 
 /// Decimal year of a calendar date, taken at 00:00 of that day.
 pub fn decimal_year_of_date(d: NaiveDate) -> f64 {
     decimal_year(d.and_time(chrono::NaiveTime::MIN))
 }
 
-fn year_start(y: i32) -> NaiveDateTime {
-    // January 1 exists in every year chrono can represent.
-    NaiveDate::from_ymd_opt(y, 1, 1)
-        .unwrap_or(NaiveDate::MIN)
-        .and_time(chrono::NaiveTime::MIN)
-}
-
-/// Compass azimuth in degrees, clockwise from north, in [0, 360), of the vector (east, north).
-pub fn azimuth_deg(east: f64, north: f64) -> f64 {
-    if east == 0.0 && north == 0.0 {
-        return 0.0;
-    }
-    let a = east.atan2(north).to_degrees().rem_euclid(360.0);
-    if a >= 360.0 {
-        0.0
-    } else {
-        a
-    }
-}
+pub use crate::grid::azimuth_deg;
 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use chrono::NaiveTime;
-
-    fn dt(y: i32, m: u32, d: u32, h: u32) -> NaiveDateTime {
-        NaiveDate::from_ymd_opt(y, m, d)
-            .unwrap()
-            .and_time(NaiveTime::from_hms_opt(h, 0, 0).unwrap())
-    }
-
-    #[test]
-    fn decimal_years() {
-        // Check: actual-length-year decimal year — 2020-07-02T00:00 → 2020.5 (183/366); REFERENCES.md §8, abs diff < 1e-12
-        assert!((decimal_year(dt(2020, 7, 2, 0)) - 2020.5).abs() < 1e-12);
-        // Check: 2019-03-15 → 2019.2 (73/365); REFERENCES.md §8, abs diff < 1e-12
-        assert!((decimal_year(dt(2019, 3, 15, 0)) - 2019.2).abs() < 1e-12);
-        // Check: 2021-07-02T12:00 → 2021.5; REFERENCES.md §8, abs diff < 1e-12
-        assert!((decimal_year(dt(2021, 7, 2, 12)) - 2021.5).abs() < 1e-12);
-        // Check: 2024-12-31T12:00 → 2024.998634; REFERENCES.md §8, abs diff < 1e-6
-        assert!((decimal_year(dt(2024, 12, 31, 12)) - 2024.998634).abs() < 1e-6);
-    }
 
     #[test]
     fn azimuths() {

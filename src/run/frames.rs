@@ -295,43 +295,10 @@ fn shell_cells_into(
         });
 }
 
-/// Frame durations in hundredths of a second, rounded so the running total stays exact.
-pub(super) fn delays_cs(timeline: &Timeline) -> Vec<u16> {
-    let mut out = Vec::with_capacity(timeline.frames.len());
-    let mut elapsed = 0.0;
-    let mut written: i64 = 0;
-    for f in &timeline.frames {
-        elapsed += f.duration_s * 100.0;
-        let cs = (elapsed.round() as i64 - written).clamp(1, u16::MAX as i64);
-        written += cs;
-        out.push(cs as u16);
-    }
-    out
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::timeline::FramePlan;
     use chrono::NaiveDate;
-
-    #[test]
-    fn delays_keep_the_running_total_exact() {
-        let d = |y| NaiveDate::from_ymd_opt(y, 1, 1).unwrap();
-        let t = timeline::plan(
-            &[d(2030), d(2031), d(2033)],
-            FramePlan::PerYear(6.0),
-            12.0,
-            0.5,
-        );
-        let cs = delays_cs(&t);
-        // Check: GIF89a (CompuServe 1990) — delays are whole hundredths of a second; at 12 fps a
-        // frame is 8.33 cs, so the delays alternate 8/9 while their sum tracks the timeline exactly
-        let total: u32 = cs.iter().map(|&c| c as u32).sum();
-        assert_eq!(total, (t.duration_s() * 100.0).round() as u32);
-        assert!(cs.iter().all(|&c| (8..=59).contains(&c)), "{cs:?}");
-        assert_eq!(cs[0], 58, "a survey frame holds 1/12 s + 0.5 s");
-    }
 
     #[test]
     fn comparison_surveys() {

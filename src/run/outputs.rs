@@ -11,7 +11,7 @@ use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
 
-use super::frames::{delays_cs, Painter};
+use super::frames::Painter;
 use super::{Prepared, RunOptions, RunReport};
 use crate::job::Job;
 
@@ -95,7 +95,12 @@ pub(super) fn write_outputs(
     }
     if let Some(name) = &job.output.gif {
         let path = scratch.join(name);
-        let stats = gif::write_gif(&path, &kept, &delays_cs(&timeline), &job.animation, false)?;
+        // Survey frames are held longer; delays carry their fractions forward (30 fps → 3, 3, 4 cs).
+        let hold_cs = (job.hold_s * 100.0).round() as u16;
+        let delays = gif::delays_cs(n, job.fps, hold_cs, |i| {
+            timeline.frames[i].kind.is_measured()
+        });
+        let stats = gif::write_gif(&path, &kept, &delays, &job.animation, false)?;
         log::info!(
             "{name}: {} frames, {} bytes, mean colour error {:.2}",
             stats.frames,

@@ -50,17 +50,7 @@ impl Dominant {
     /// A dominant displacement from east and north components in metres.
     pub fn from_components(east_m: f64, north_m: f64, ncc: f64, support: f64) -> Self {
         let distance_m = east_m.hypot(north_m);
-        let azimuth_deg = if distance_m > 0.0 {
-            east_m.atan2(north_m).to_degrees().rem_euclid(360.0)
-        } else {
-            0.0
-        };
-        // rem_euclid can round -0.0000001 up to 360.0 exactly; keep the documented range.
-        let azimuth_deg = if azimuth_deg >= 360.0 {
-            0.0
-        } else {
-            azimuth_deg
-        };
+        let azimuth_deg = crate::grid::azimuth_deg(east_m, north_m);
         Dominant {
             east_m,
             north_m,
