@@ -298,7 +298,6 @@ fn shell_cells_into(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use chrono::NaiveDate;
 
     #[test]
     fn comparison_surveys() {
