@@ -23,6 +23,11 @@ fn row(i: usize) -> IndexRow {
         } else {
             RowStatus::Interpolated
         },
+        method: if i == 0 {
+            "survey".into()
+        } else {
+            "linear blend".into()
+        },
         from_survey: "2027-01-01".into(),
         to_survey: if i == 0 {
             "2027-01-01".into()
@@ -58,9 +63,9 @@ fn sequence_round_trips_and_index_lists_every_frame() {
     assert_eq!(lines.len(), 4);
     assert_eq!(
         lines[1],
-        "0,frame_0000.png,2027-01-01T00:00:00,surveyed,2027-01-01,2027-01-01,12.500,m"
+        "0,frame_0000.png,2027-01-01T00:00:00,surveyed,survey,2027-01-01,2027-01-01,12.500,m"
     );
-    assert_eq!(lines[2], "1,frame_0001.png,2027-02-01T00:00:00,interpolated,2027-01-01,\"2028-01-01, spring\",13.500,m");
+    assert_eq!(lines[2], "1,frame_0001.png,2027-02-01T00:00:00,interpolated,linear blend,2027-01-01,\"2028-01-01, spring\",13.500,m");
     // Only the frames and the index, no temporary files.
     assert_eq!(std::fs::read_dir(&out).unwrap().count(), 4);
 }

@@ -172,6 +172,15 @@ fn morph_job_is_trusted_and_indexes_every_frame() {
         .count();
     let surveyed = index.lines().filter(|l| l.contains(",surveyed,")).count();
     assert_eq!((surveyed, interpolated), (3, 7), "{index}");
+    // Every interpolated frame names the method that made it.
+    assert_eq!(
+        index
+            .lines()
+            .filter(|l| l.contains(",interpolated,morph,"))
+            .count(),
+        7,
+        "{index}"
+    );
 }
 
 #[test]

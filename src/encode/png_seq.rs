@@ -41,6 +41,8 @@ pub struct IndexRow {
     pub time: String,
     /// Surveyed or interpolated.
     pub status: RowStatus,
+    /// How the surface was made: `survey`, or the interpolation method (e.g. `morph`).
+    pub method: String,
     /// The earlier bracketing survey (its date or label).
     pub from_survey: String,
     /// The later bracketing survey (equal to `from_survey` on a survey frame).
@@ -55,7 +57,8 @@ pub struct IndexRow {
 pub const INDEX_FILE: &str = "index.csv";
 
 /// Header line of the index CSV.
-pub const INDEX_HEADER: &str = "frame,file,time,status,from_survey,to_survey,peak_height,peak_unit";
+pub const INDEX_HEADER: &str =
+    "frame,file,time,status,method,from_survey,to_survey,peak_height,peak_unit";
 
 /// Writes the frames of one animation as numbered PNGs; see the module doc.
 #[derive(Debug)]
@@ -223,6 +226,7 @@ impl PngSequence {
                 csv_field(file),
                 csv_field(&r.time),
                 r.status.as_str().to_string(),
+                csv_field(&r.method),
                 csv_field(&r.from_survey),
                 csv_field(&r.to_survey),
                 peak,

@@ -12,7 +12,7 @@ use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
 
 use super::frames::Painter;
-use super::{Prepared, RunOptions, RunReport};
+use super::{effective_method, Prepared, RunOptions, RunReport};
 use crate::job::Job;
 
 pub(super) fn write_outputs(
@@ -74,6 +74,11 @@ pub(super) fn write_outputs(
                     RowStatus::Surveyed
                 } else {
                     RowStatus::Interpolated
+                },
+                method: if t.kind.is_measured() {
+                    "survey".into()
+                } else {
+                    effective_method(job, &fields, t.from).name().into()
                 },
                 from_survey: stack.surveys()[t.from].id.clone(),
                 to_survey: stack.surveys()[t.to].id.clone(),
