@@ -54,6 +54,19 @@ impl AlignedStack {
     pub fn z(&self, i: usize) -> &Array2<f32> {
         &self.surveys[i].grid.z
     }
+    /// Replaces the elevations of survey `i` with a corrected surface on the same grid (used by
+    /// `coregister`); the geometry and the date order stay as they were.
+    ///
+    /// # Panics
+    /// When `z` has another shape than the analysis grid (a bug in the caller).
+    pub(crate) fn replace_z(&mut self, i: usize, z: Array2<f32>) {
+        assert_eq!(
+            z.dim(),
+            (self.geometry.rows, self.geometry.cols),
+            "a corrected surface keeps the analysis grid"
+        );
+        self.surveys[i].grid.z = z;
+    }
     /// Smallest and largest finite elevation over all surveys (for a colour scale fixed across frames).
     pub fn elevation_range(&self) -> Option<(f32, f32)> {
         crate::grid::finite_range(self.surveys.iter().flat_map(|s| s.grid.z.iter().copied()))

@@ -3,7 +3,8 @@
 //! The pipeline, one module per stage:
 //! 1. `job` — YAML job file -> resolved, checked `Job`.
 //! 2. `survey` + `geotiff` — GeoTIFF -> `Survey` (elevations in metres, nodata as NaN).
-//! 3. `align` — surveys -> `AlignedStack` on one analysis grid.
+//! 3. `align` — surveys -> `AlignedStack` on one analysis grid; `coregister` then corrects
+//!    each later survey's horizontal and vertical offset against the first on stable ground.
 //! 4. `timeline` — survey dates -> `FrameTime`s (measured or interpolated).
 //! 5. `interp` — stack + frame time -> `Surface` (linear blend or morph).
 //! 6. `render` — surface -> shaded perspective `Frame`.
@@ -18,6 +19,7 @@ pub mod align;
 pub mod annotate;
 pub mod archive;
 pub mod change;
+pub mod coregister;
 pub mod encode;
 pub mod error;
 pub mod geotiff;

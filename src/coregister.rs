@@ -1,0 +1,667 @@
+//! AlignedStack -> the same stack with every later survey co-registered to the first on stable
+//! ground, and one [`Registration`] per survey saying what was estimated and what was applied.
+//!
+//! Place in the pipeline: after `align`, before the change record, the displacement fields and the
+//! frames, so that every figure and picture uses the corrected surfaces.
+//!
+//! # Method (Nuth & Kääb 2011; REFERENCES.md §14)
+//! A survey shifted horizontally by `d` (magnitude `a`, compass direction `b`) against the first one
+//! differs from it, on ground that did not change, by `dh ≈ tan α · a · cos(b − ψ)` plus any vertical
+//! bias, with α the slope and ψ the aspect (downslope compass direction) of the first survey. So
+//! `dh / tan α = a·cos(b − ψ) + c` is fitted by least squares over stable cells whose slope lies in
+//! a useful range (`stable_ground.min_slope_deg` to `max_slope_deg`: flat cells say nothing about a
+//! shift and divide by almost zero, cliffs are where the surfaces disagree most for other reasons).
+//! The survey is then resampled at the shifted position (bilinear), and the fit repeated on what is
+//! left, until the shift step is below a hundredth of a cell or the spread of `dh` stops improving by
+//! 2 % (their stopping rule). The vertical offset is the median of `dh` on stable ground after the
+//! last shift; the spread is the NMAD, `1.4826 · median |dh − median|` (Höhle & Höhle 2009).
+//!
+//! # Stable ground
+//! Given by the job (polygons in CRS units, or a mask GeoTIFF, non-zero = stable), or found: in a
+//! first pass, for each survey, cells whose `dh` against the first survey stays within
+//! `max(LoD, 3·NMAD)` of its median, re-chosen at every iteration as the shift improves; in a second
+//! pass, every survey is estimated again on the cells found stable in all of them (change within the
+//! level of detection across the whole series), when enough such cells remain. Given ground is also
+//! cleaned of outliers beyond 3·NMAD (a parked car, a new fence).
+//!
+//! # Uncertainty and when a correction is applied
+//! Standard errors treat cells as independent (NMAD/√n for the vertical offset, the least-squares
+//! standard error of the fitted shift for the horizontal one); real survey errors are spatially
+//! correlated, so these are lower bounds, as the record says. A component (horizontal or vertical)
+//! is applied only when it exceeds 1.96 standard errors; with fewer than
+//! `stable_ground.min_cells` stable cells nothing is applied and a warning says so.
+//!
+//! Conventions: offsets are those of the later survey relative to the first (`b(x) = a(x − d) + dz`),
+//! east and north in metres; the correction resamples it at `x + d` and subtracts `dz`.
+
+use ndarray::Array2;
+use rayon::prelude::*;
+
+use crate::align::AlignedStack;
+use crate::grid::GridGeometry;
+
+/// Normal-distribution factor turning a median absolute deviation into a standard deviation
+/// (Höhle & Höhle 2009, REFERENCES.md §14).
+pub const NMAD_FACTOR: f64 = 1.4826;
+/// Multiplier of the standard error an offset must exceed to be applied (95 % two-sided).
+pub const APPLY_T: f64 = 1.96;
+/// Most shift-and-fit iterations per survey and pass.
+const MAX_ITERATIONS: usize = 12;
+
+/// Settings of the co-registration, resolved from the job's `coregister` and `stable_ground` keys.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CoregOptions {
+    /// Whether to estimate and apply offsets at all. Default: true.
+    pub enabled: bool,
+    /// Smallest slope, degrees, of a cell used for the horizontal fit. Default: 3.
+    pub min_slope_deg: f64,
+    /// Largest slope, degrees, of a cell used for the horizontal fit. Default: 60.
+    pub max_slope_deg: f64,
+    /// Fewest stable cells for an estimate (and fewest sloping stable cells for a horizontal one).
+    /// Default: 1000.
+    pub min_cells: usize,
+}
+
+impl Default for CoregOptions {
+    fn default() -> Self {
+        CoregOptions {
+            enabled: true,
+            min_slope_deg: 3.0,
+            max_slope_deg: 60.0,
+            min_cells: 1000,
+        }
+    }
+}
+
+/// Where the stable ground came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum StableSource {
+    /// Polygons listed in the job.
+    JobPolygons,
+    /// A mask GeoTIFF named in the job.
+    JobMask,
+    /// Found by the tool: change within the level of detection.
+    Found,
+}
+
+impl StableSource {
+    /// Words for the record.
+    pub fn describe(self) -> &'static str {
+        match self {
+            StableSource::JobPolygons => "job polygons",
+            StableSource::JobMask => "job mask",
+            StableSource::Found => "found: change within the LoD",
+        }
+    }
+}
+
+/// What co-registration found and did for one survey.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Registration {
+    /// Index of the survey in the stack.
+    pub survey_index: usize,
+    /// Estimated eastward offset of this survey relative to the first, metres (NaN: not estimated).
+    pub east_m: f64,
+    /// Estimated northward offset, metres (NaN: not estimated).
+    pub north_m: f64,
+    /// Estimated vertical offset (this survey minus the first on stable ground), metres.
+    pub vertical_m: f64,
+    /// Standard error of the horizontal offset (length of the vector of the two errors), metres.
+    pub horizontal_sigma_m: f64,
+    /// Standard error of the vertical offset, metres.
+    pub vertical_sigma_m: f64,
+    /// NMAD of the elevation differences on stable ground after the correction, metres.
+    pub stable_nmad_m: f64,
+    /// Stable cells used.
+    pub stable_cells: u64,
+    /// Their area, square metres.
+    pub stable_area_m2: f64,
+    /// Where the stable ground came from.
+    pub source: StableSource,
+    /// Whether the horizontal offset was applied.
+    pub applied_horizontal: bool,
+    /// Whether the vertical offset was applied.
+    pub applied_vertical: bool,
+    /// In words: what was applied, or why not.
+    pub status: String,
+}
+
+impl Registration {
+    fn not_estimated(i: usize, source: StableSource, status: String) -> Self {
+        Registration {
+            survey_index: i,
+            east_m: f64::NAN,
+            north_m: f64::NAN,
+            vertical_m: f64::NAN,
+            horizontal_sigma_m: f64::NAN,
+            vertical_sigma_m: f64::NAN,
+            stable_nmad_m: f64::NAN,
+            stable_cells: 0,
+            stable_area_m2: 0.0,
+            source,
+            applied_horizontal: false,
+            applied_vertical: false,
+            status,
+        }
+    }
+}
+
+/// Per-cell terrain of the reference survey: slope tangent and aspect sine/cosine.
+struct Terrain {
+    tan_slope: Vec<f32>,
+    sin_aspect: Vec<f32>,
+    cos_aspect: Vec<f32>,
+}
+
+fn terrain(z: &[f32], g: &GridGeometry) -> Terrain {
+    let (rows, cols) = (g.rows, g.cols);
+    let (dx, dy) = (g.cell_x_m() as f32, g.cell_y_m() as f32);
+    let mut tan_slope = vec![f32::NAN; z.len()];
+    let mut sin_aspect = vec![0f32; z.len()];
+    let mut cos_aspect = vec![0f32; z.len()];
+    tan_slope
+        .par_chunks_mut(cols)
+        .zip(sin_aspect.par_chunks_mut(cols))
+        .zip(cos_aspect.par_chunks_mut(cols))
+        .enumerate()
+        .for_each(|(r, ((t, s), c))| {
+            for k in 0..cols {
+                if !z[r * cols + k].is_finite() {
+                    continue;
+                }
+                // Check: Horn (1981) 3x3 gradient; aspect = atan2(-p, -q) is the downslope
+                // compass direction, REFERENCES.md §1
+                let (p, q) = crate::render::shade::horn_gradient(z, rows, cols, r, k, dx, dy);
+                let m = p.hypot(q);
+                t[k] = m;
+                if m > 0.0 {
+                    s[k] = -p / m;
+                    c[k] = -q / m;
+                }
+            }
+        });
+    Terrain {
+        tan_slope,
+        sin_aspect,
+        cos_aspect,
+    }
+}
+
+/// `z` resampled at `x + (east, north)` (map units), bilinear; NaN beyond the data.
+pub fn shifted(z: &Array2<f32>, g: &GridGeometry, east: f64, north: f64) -> Array2<f32> {
+    let (rows, cols) = z.dim();
+    let dc = east / g.cell_x;
+    let dr = -north / g.cell_y;
+    let mut out = Array2::from_elem((rows, cols), f32::NAN);
+    if let Some(slice) = out.as_slice_mut() {
+        slice.par_chunks_mut(cols).enumerate().for_each(|(r, row)| {
+            for (c, v) in row.iter_mut().enumerate() {
+                *v = crate::grid::sample_bilinear(z, r as f64 + dr, c as f64 + dc);
+            }
+        });
+    }
+    out
+}
+
+/// Median of a slice (reorders it); NaN when empty.
+fn median(v: &mut [f32]) -> f64 {
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    let mid = v.len() / 2;
+    let (_, m, _) = v.select_nth_unstable_by(mid, f32::total_cmp);
+    let hi = *m as f64;
+    if v.len() % 2 == 1 {
+        return hi;
+    }
+    let lo = v[..mid].iter().copied().fold(f32::NEG_INFINITY, f32::max) as f64;
+    0.5 * (lo + hi)
+}
+
+/// Median and NMAD of `dh` over the cells where `keep` holds.
+fn median_nmad(dh: &[f32], keep: impl Fn(usize) -> bool) -> (f64, f64, usize) {
+    let mut v: Vec<f32> = (0..dh.len())
+        .filter(|&k| keep(k) && dh[k].is_finite())
+        .map(|k| dh[k])
+        .collect();
+    let n = v.len();
+    let med = median(&mut v);
+    for x in v.iter_mut() {
+        *x = (*x as f64 - med).abs() as f32;
+    }
+    // Check: Höhle & Höhle (2009) — NMAD = 1.4826 · median |x − median|; REFERENCES.md §14
+    (med, NMAD_FACTOR * median(&mut v), n)
+}
+
+/// One survey's estimate against the reference: the fitted offsets and the stable cells used.
+struct Estimate {
+    east_m: f64,
+    north_m: f64,
+    horizontal_sigma_m: f64,
+    horizontal_ok: bool,
+    vertical_m: f64,
+    vertical_sigma_m: f64,
+    nmad_m: f64,
+    stable: Vec<bool>,
+}
+
+/// Least squares of `y = A·sinψ + B·cosψ + C` over the cells in `fit`; returns (A, B, σ_A, σ_B),
+/// or None when the aspects do not span both directions well enough.
+fn fit_cosine(y: &[f32], t: &Terrain, fit: &[usize]) -> Option<(f64, f64, f64, f64)> {
+    let mut m = [[0f64; 3]; 3];
+    let mut rhs = [0f64; 3];
+    for &k in fit {
+        let x = [t.sin_aspect[k] as f64, t.cos_aspect[k] as f64, 1.0];
+        for i in 0..3 {
+            for j in 0..3 {
+                m[i][j] += x[i] * x[j];
+            }
+            rhs[i] += x[i] * y[k] as f64;
+        }
+    }
+    let n = fit.len() as f64;
+    // The aspects must cover more than one direction: the smaller eigenvalue of the 2x2 block of
+    // (sin, cos) second moments, per cell, at least 0.05 (0.5 when aspects are spread evenly).
+    // Common practice, no source: a guard against ridges that all face one way.
+    let (a, b, d) = (m[0][0] / n, m[0][1] / n, m[1][1] / n);
+    let tr = a + d;
+    let det = a * d - b * b;
+    let small = 0.5 * (tr - (tr * tr - 4.0 * det).max(0.0).sqrt());
+    if small < 0.05 {
+        return None;
+    }
+    let inv = invert3(m)?;
+    let sol: Vec<f64> = (0..3)
+        .map(|i| (0..3).map(|j| inv[i][j] * rhs[j]).sum())
+        .collect();
+    // Residual spread, robust: NMAD of the residuals.
+    let mut res: Vec<f32> = fit
+        .iter()
+        .map(|&k| {
+            let x = [t.sin_aspect[k] as f64, t.cos_aspect[k] as f64];
+            (y[k] as f64 - sol[0] * x[0] - sol[1] * x[1] - sol[2]) as f32
+        })
+        .collect();
+    let med = median(&mut res.clone());
+    for r in res.iter_mut() {
+        *r = (*r as f64 - med).abs() as f32;
+    }
+    let s = NMAD_FACTOR * median(&mut res);
+    Some((
+        sol[0],
+        sol[1],
+        s * inv[0][0].max(0.0).sqrt(),
+        s * inv[1][1].max(0.0).sqrt(),
+    ))
+}
+
+fn invert3(m: [[f64; 3]; 3]) -> Option<[[f64; 3]; 3]> {
+    let det = m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+        - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+        + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0]);
+    if !(det.abs() > 1e-12) {
+        return None;
+    }
+    let mut inv = [[0f64; 3]; 3];
+    for (i, row) in inv.iter_mut().enumerate() {
+        for (j, v) in row.iter_mut().enumerate() {
+            let (r0, r1) = ((j + 1) % 3, (j + 2) % 3);
+            let (c0, c1) = ((i + 1) % 3, (i + 2) % 3);
+            *v = (m[r0][c0] * m[r1][c1] - m[r0][c1] * m[r1][c0]) / det;
+        }
+    }
+    Some(inv)
+}
+
+/// Estimates the offset of `z` against the reference on the candidate cells (all when None).
+#[allow(clippy::too_many_arguments)]
+fn estimate(
+    reference: &[f32],
+    z: &Array2<f32>,
+    g: &GridGeometry,
+    t: &Terrain,
+    candidates: Option<&[bool]>,
+    lod_m: f64,
+    found: bool,
+    opts: &CoregOptions,
+) -> Estimate {
+    let unit = g.horizontal_unit.metres();
+    let (lo, hi) = (
+        opts.min_slope_deg.to_radians().tan() as f32,
+        opts.max_slope_deg.to_radians().tan() as f32,
+    );
+    let cand = |k: usize| candidates.is_none_or(|c| c[k]);
+    let (mut east, mut north) = (0.0f64, 0.0f64);
+    let (mut sig_e, mut sig_n) = (f64::NAN, f64::NAN);
+    let mut horizontal_ok = false;
+    let mut last_nmad = f64::INFINITY;
+    let mut dh = vec![0f32; reference.len()];
+    let mut stable = vec![false; reference.len()];
+    for iteration in 0..MAX_ITERATIONS {
+        let moved = if east == 0.0 && north == 0.0 {
+            z.clone()
+        } else {
+            shifted(z, g, east / unit, north / unit)
+        };
+        let zs = moved.as_slice().expect("standard layout");
+        dh.par_iter_mut()
+            .zip(zs.par_iter().zip(reference.par_iter()))
+            .for_each(|(d, (&b, &a))| *d = b - a);
+        let (med, nmad, _) = median_nmad(&dh, cand);
+        // Found ground must also stay within the level of detection; given ground only loses
+        // outliers.
+        let band = if found {
+            lod_m.max(3.0 * nmad)
+        } else {
+            3.0 * nmad
+        } as f32;
+        let med32 = med as f32;
+        stable
+            .par_iter_mut()
+            .enumerate()
+            .for_each(|(k, s)| *s = cand(k) && (dh[k] - med32).abs() <= band);
+        let fit: Vec<usize> = (0..dh.len())
+            .filter(|&k| stable[k] && t.tan_slope[k] >= lo && t.tan_slope[k] <= hi)
+            .collect();
+        let (_, nmad_now, _) = median_nmad(&dh, |k| stable[k]);
+        if fit.len() < opts.min_cells {
+            break;
+        }
+        let y: Vec<f32> = (0..dh.len())
+            .map(|k| {
+                if stable[k] && t.tan_slope[k] >= lo && t.tan_slope[k] <= hi {
+                    dh[k] / t.tan_slope[k]
+                } else {
+                    0.0
+                }
+            })
+            .collect();
+        let Some((a, b, sa, sb)) = fit_cosine(&y, t, &fit) else {
+            break;
+        };
+        // The fit says how far the shifted survey still lies from the reference.
+        horizontal_ok = true;
+        sig_e = sa;
+        sig_n = sb;
+        let step = a.hypot(b);
+        let improvement = (last_nmad - nmad_now) / last_nmad;
+        east += a;
+        north += b;
+        last_nmad = nmad_now;
+        // Stop on a step below a hundredth of a cell, or when the spread improves by less than
+        // 2 % (Nuth & Kääb 2011), after at least two rounds.
+        if step < 0.01 * g.cell_x_m() || (iteration >= 2 && improvement < 0.02) {
+            break;
+        }
+        if east.hypot(north) > 20.0 * g.cell_x_m() {
+            // Running away: the ground is not stable, or not enough of it. Give up the horizontal.
+            horizontal_ok = false;
+            break;
+        }
+    }
+    if !horizontal_ok {
+        east = 0.0;
+        north = 0.0;
+    }
+    // Final differences at the final shift, the stable set, and the vertical offset.
+    let moved = if horizontal_ok {
+        shifted(z, g, east / unit, north / unit)
+    } else {
+        z.clone()
+    };
+    let zs = moved.as_slice().expect("standard layout");
+    for (k, d) in dh.iter_mut().enumerate() {
+        *d = zs[k] - reference[k];
+    }
+    let (med, nmad, _) = median_nmad(&dh, cand);
+    let band = if found {
+        lod_m.max(3.0 * nmad)
+    } else {
+        3.0 * nmad
+    } as f32;
+    for (k, s) in stable.iter_mut().enumerate() {
+        *s = cand(k) && (dh[k] - med as f32).abs() <= band;
+    }
+    let (vertical, nmad, n) = median_nmad(&dh, |k| stable[k]);
+    Estimate {
+        east_m: if horizontal_ok { east } else { f64::NAN },
+        north_m: if horizontal_ok { north } else { f64::NAN },
+        horizontal_sigma_m: if horizontal_ok {
+            sig_e.hypot(sig_n)
+        } else {
+            f64::NAN
+        },
+        horizontal_ok,
+        vertical_m: vertical,
+        // Check: standard error of a median ≈ 1.2533·σ/√n for normal errors (from memory); the
+        // NMAD/√n form of REFERENCES.md §14 is used as stated there
+        vertical_sigma_m: nmad / (n.max(1) as f64).sqrt(),
+        nmad_m: nmad,
+        stable,
+    }
+}
+
+/// Co-registers every survey after the first to the first, in place, and reports per survey
+/// (the first survey's row says it is the reference).
+///
+/// `given` is the stable ground from the job (true = stable) with its source, or None to find it.
+/// `lod_m[i]` is the level of detection between survey `i` and the first.
+///
+/// # Panics
+/// When `lod_m` has fewer entries than the stack or `given` has another shape (a bug in the caller).
+pub fn coregister(
+    stack: &mut AlignedStack,
+    given: Option<(&Array2<bool>, StableSource)>,
+    lod_m: &[f64],
+    opts: &CoregOptions,
+) -> Vec<Registration> {
+    assert!(lod_m.len() >= stack.len(), "one LoD per survey");
+    let g = stack.geometry().clone();
+    let source = given.map_or(StableSource::Found, |(_, s)| s);
+    let mut out = vec![Registration {
+        status: "reference: the other surveys are co-registered to this one".into(),
+        east_m: 0.0,
+        north_m: 0.0,
+        vertical_m: 0.0,
+        ..Registration::not_estimated(0, source, String::new())
+    }];
+    if !opts.enabled {
+        for i in 1..stack.len() {
+            out.push(Registration::not_estimated(
+                i,
+                source,
+                "not applied: co-registration turned off (coregister: false)".into(),
+            ));
+        }
+        out[0].status = "reference (co-registration turned off)".into();
+        return out;
+    }
+    if let Some((m, _)) = given {
+        assert_eq!(m.dim(), stack.z(0).dim(), "stable mask shape");
+    }
+    let reference: Vec<f32> = stack.z(0).iter().copied().collect();
+    let t = terrain(&reference, &g);
+    let given_slice: Option<Vec<bool>> = given.map(|(m, _)| m.iter().copied().collect());
+    let found = given.is_none();
+    let mut estimates: Vec<Estimate> = (1..stack.len())
+        .map(|i| {
+            estimate(
+                &reference,
+                stack.z(i),
+                &g,
+                &t,
+                given_slice.as_deref(),
+                lod_m[i],
+                found,
+                opts,
+            )
+        })
+        .collect();
+    if found && stack.len() > 2 {
+        // Second pass: the cells stable against the first survey in every survey.
+        let common: Vec<bool> = (0..reference.len())
+            .map(|k| estimates.iter().all(|e| e.stable[k]))
+            .collect();
+        if common.iter().filter(|&&s| s).count() >= opts.min_cells {
+            estimates = (1..stack.len())
+                .map(|i| {
+                    estimate(
+                        &reference,
+                        stack.z(i),
+                        &g,
+                        &t,
+                        Some(&common),
+                        lod_m[i],
+                        true,
+                        opts,
+                    )
+                })
+                .collect();
+        }
+    }
+    let cell_area = g.cell_area_m2();
+    for (k, e) in estimates.into_iter().enumerate() {
+        let i = k + 1;
+        let n = e.stable.iter().filter(|&&s| s).count();
+        let mut r = Registration {
+            survey_index: i,
+            east_m: e.east_m,
+            north_m: e.north_m,
+            vertical_m: e.vertical_m,
+            horizontal_sigma_m: e.horizontal_sigma_m,
+            vertical_sigma_m: e.vertical_sigma_m,
+            stable_nmad_m: e.nmad_m,
+            stable_cells: n as u64,
+            stable_area_m2: n as f64 * cell_area,
+            source,
+            applied_horizontal: false,
+            applied_vertical: false,
+            status: String::new(),
+        };
+        if n < opts.min_cells {
+            r.status = format!(
+                "not applied: only {n} stable cells ({:.0} m2), fewer than stable_ground.min_cells = {}; \
+                 the survey is used uncorrected",
+                r.stable_area_m2, opts.min_cells
+            );
+            out.push(r);
+            continue;
+        }
+        r.applied_horizontal =
+            e.horizontal_ok && e.east_m.hypot(e.north_m) > APPLY_T * e.horizontal_sigma_m;
+        r.applied_vertical = e.vertical_m.abs() > APPLY_T * e.vertical_sigma_m;
+        let mut parts = Vec::new();
+        if r.applied_horizontal {
+            parts.push(format!(
+                "horizontal {:.3} m east, {:.3} m north",
+                -e.east_m, -e.north_m
+            ));
+        }
+        if r.applied_vertical {
+            parts.push(format!("vertical {:.3} m", -e.vertical_m));
+        }
+        let horizontal_note = if e.horizontal_ok {
+            ""
+        } else {
+            "; the horizontal offset could not be estimated (too few sloping stable cells, or slopes \
+             facing one way)"
+        };
+        r.status = if parts.is_empty() {
+            format!("not applied: the offsets are within 1.96 standard errors{horizontal_note}")
+        } else {
+            format!("applied: correction {}{horizontal_note}", parts.join(", "))
+        };
+        let (de, dn) = if r.applied_horizontal {
+            (e.east_m, e.north_m)
+        } else {
+            (0.0, 0.0)
+        };
+        let dz = if r.applied_vertical { e.vertical_m } else { 0.0 };
+        if de != 0.0 || dn != 0.0 || dz != 0.0 {
+            let unit = g.horizontal_unit.metres();
+            let mut z = if de != 0.0 || dn != 0.0 {
+                shifted(stack.z(i), &g, de / unit, dn / unit)
+            } else {
+                stack.z(i).clone()
+            };
+            let dz32 = dz as f32;
+            z.par_mapv_inplace(|v| v - dz32);
+            stack.replace_z(i, z);
+        }
+        out.push(r);
+    }
+    out
+}
+
+/// Stable ground from polygons in map coordinates (CRS units): cells whose centre lies inside any
+/// polygon (even–odd rule; rings need not be closed).
+pub fn mask_from_polygons(polygons: &[Vec<[f64; 2]>], g: &GridGeometry) -> Array2<bool> {
+    Array2::from_shape_fn((g.rows, g.cols), |(r, c)| {
+        let (x, y) = g.cell_center(r, c);
+        polygons.iter().any(|p| inside(p, x, y))
+    })
+}
+
+fn inside(ring: &[[f64; 2]], x: f64, y: f64) -> bool {
+    let mut odd = false;
+    let n = ring.len();
+    for i in 0..n {
+        let [xi, yi] = ring[i];
+        let [xj, yj] = ring[(i + n - 1) % n];
+        if (yi > y) != (yj > y) && x < (xj - xi) * (y - yi) / (yj - yi) + xi {
+            odd = !odd;
+        }
+    }
+    odd
+}
+
+/// Stable ground from a mask grid (non-zero, finite = stable) brought onto `g` by the nearest cell.
+pub fn mask_from_grid(mask: &crate::grid::Grid, g: &GridGeometry) -> Array2<bool> {
+    let (rows, cols) = mask.z.dim();
+    Array2::from_shape_fn((g.rows, g.cols), |(r, c)| {
+        let (x, y) = g.cell_center(r, c);
+        let (mr, mc) = mask.geometry.to_cell(x, y);
+        let (mr, mc) = (mr.round(), mc.round());
+        if mr < 0.0 || mc < 0.0 || mr >= rows as f64 || mc >= cols as f64 {
+            return false;
+        }
+        let v = mask.z[[mr as usize, mc as usize]];
+        v.is_finite() && v != 0.0
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn polygon_even_odd() {
+        let square = vec![[0.0, 0.0], [10.0, 0.0], [10.0, 10.0], [0.0, 10.0]];
+        assert!(inside(&square, 5.0, 5.0));
+        assert!(!inside(&square, 15.0, 5.0));
+        assert!(!inside(&square, -0.1, 5.0));
+    }
+
+    #[test]
+    fn median_and_nmad() {
+        // Check: analytic — median of 1..=5 is 3; |x − 3| = 2,1,0,1,2 has median 1 → NMAD 1.4826
+        let v = [1.0f32, 2.0, 3.0, 4.0, 5.0];
+        let (m, s, n) = median_nmad(&v, |_| true);
+        assert_eq!((m, n), (3.0, 5));
+        assert!((s - 1.4826).abs() < 1e-12);
+        let mut even = [4.0f32, 1.0, 3.0, 2.0];
+        assert_eq!(median(&mut even), 2.5);
+    }
+
+    #[test]
+    fn inverse_of_a_3x3() {
+        let m = [[4.0, 1.0, 0.0], [1.0, 3.0, 1.0], [0.0, 1.0, 2.0]];
+        let inv = invert3(m).unwrap();
+        for i in 0..3 {
+            for j in 0..3 {
+                let v: f64 = (0..3).map(|k| m[i][k] * inv[k][j]).sum();
+                assert!((v - if i == j { 1.0 } else { 0.0 }).abs() < 1e-12);
+            }
+        }
+    }
+}
