@@ -43,12 +43,17 @@ pub struct Survey {
     pub source: GridSource,
 }
 
-/// Reads the grid of one job survey.
+/// Reads the grid of one job survey, adding its `vertical_offset_m` to every elevation.
 ///
 /// # Errors
 /// `Error::Input` when the grid is missing, corrupt or unsupported (see `geotiff::read_grid`).
 pub fn read_survey(spec: &crate::job::SurveySpec) -> crate::error::Result<Survey> {
-    let (grid, source) = crate::geotiff::read_grid(&spec.grid)?;
+    let (mut grid, source) = crate::geotiff::read_grid(&spec.grid)?;
+    if spec.vertical_offset_m != 0.0 {
+        // A known datum difference, applied once here so every later stage sees one datum.
+        let dz = spec.vertical_offset_m as f32;
+        grid.z.mapv_inplace(|v| v + dz);
+    }
     Ok(Survey {
         id: spec.id.clone(),
         date: spec.date,

@@ -9,6 +9,7 @@
 //!   data/run.json                    display unit, options as run, warnings
 //!   data/tables/surveys.csv|json     one row per survey
 //!   data/tables/pairs.csv|json       one row per pair (consecutive, then last against first)
+//!   data/tables/landforms.csv|json   one row per moving landform of each pair, then `all`
 //!   data/tables/transect.csv|json    profiles (only with a transect)
 //!   data/maps/*.png  data/charts/*.png
 //!   data/<extra files>               e.g. the animation and the job file as run
@@ -160,6 +161,12 @@ fn plan_payload<'a>(
     };
     let surveys = table::table(&record.surveys, unit, &[]).map_err(bug)?;
     let pairs = table::table(&record.pairs, unit, &[]).map_err(bug)?;
+    let landforms = table::table(
+        &record.landforms,
+        unit,
+        crate::change::landform::COLUMNS,
+    )
+    .map_err(bug)?;
     let mut out: Vec<(String, Source<'a>)> = vec![
         (
             "README.txt".into(),
@@ -173,6 +180,11 @@ fn plan_payload<'a>(
         ),
         ("tables/pairs.csv".into(), Source::Text(pairs.to_csv())),
         ("tables/pairs.json".into(), Source::Text(pairs.to_json())),
+        ("tables/landforms.csv".into(), Source::Text(landforms.to_csv())),
+        (
+            "tables/landforms.json".into(),
+            Source::Text(landforms.to_json()),
+        ),
     ];
     if !record.transect.is_empty() {
         let t = table::table(&record.transect, unit, &[]).map_err(bug)?;
@@ -344,6 +356,9 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
     line("                   et al. 2003). *_raw columns count every cell; the others count only cells whose");
     line("                   change reaches the LoD (Wheaton et al. 2010). volume_sigma_independent: A*s*sqrt(n),");
     line("                   independent cell errors; volume_bound_lod: A*LoD*n, all errors alike (upper bound).");
+    line("tables/landforms.* one row per moving landform of each pair (regions of change beyond the LoD),");
+    line("                   then the site-wide row `all`: centroid, detected change, and the migration");
+    line("                   measured from the relief inside the region only.");
     if !record.transect.is_empty() {
         line("tables/transect.*  elevation profiles of every survey along the transect (bilinear samples).");
     }

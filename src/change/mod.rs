@@ -20,6 +20,7 @@
 //!   record says so.
 
 mod draw;
+pub mod landform;
 mod map;
 pub mod metrics;
 pub mod record;
@@ -32,6 +33,7 @@ use crate::error::Result;
 use crate::grid::LinearUnit;
 use crate::render::Frame;
 
+pub use landform::{landforms, LandformRecord};
 pub use map::dod_map;
 pub use metrics::decimal_year;
 pub use record::{record, ChangeRecord, PairKind, PairRecord, SurveyRecord, TransectPoint};
@@ -57,6 +59,13 @@ pub struct ChangeOptions {
     /// Optional transect `[[x0, y0], [x1, y1]]` in map coordinates (CRS units); both ends must lie
     /// on the analysis grid. Default: none.
     pub transect: Option<[[f64; 2]; 2]>,
+    /// Gaps narrower than this, in metres, between patches of detected change are closed, so the
+    /// eroded and the raised flank of one dune make one landform; landforms closer than this
+    /// merge. Default: 10.
+    pub landform_join_m: f64,
+    /// Smallest area of detected change, in square metres, that counts as a moving landform.
+    /// Default: 100.
+    pub landform_min_area_m2: f64,
 }
 
 impl Default for ChangeOptions {
@@ -67,6 +76,8 @@ impl Default for ChangeOptions {
             default_sigma_z_m: 0.15,
             display_unit: LinearUnit::Metre,
             transect: None,
+            landform_join_m: 10.0,
+            landform_min_area_m2: 100.0,
         }
     }
 }

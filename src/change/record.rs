@@ -95,6 +95,28 @@ pub struct SurveyRecord {
     pub sigma_z_m: f64,
     /// `stated` when the job gave the uncertainty, `default` when the program assumed it.
     pub sigma_z_source: &'static str,
+    /// Metres added to every elevation on reading for a known datum difference
+    /// (`surveys[].vertical_offset_m`).
+    pub vertical_offset_m: f64,
+    /// Eastward offset of this survey relative to the first, estimated on stable ground; empty when
+    /// not estimated.
+    pub coreg_east_m: Option<f64>,
+    /// Northward offset relative to the first survey.
+    pub coreg_north_m: Option<f64>,
+    /// Vertical offset relative to the first survey (median on stable ground).
+    pub coreg_vertical_m: Option<f64>,
+    /// Standard error of the horizontal offset (independent cell errors: a lower bound).
+    pub coreg_horizontal_sigma_m: Option<f64>,
+    /// Standard error of the vertical offset (NMAD/√n: a lower bound).
+    pub coreg_vertical_sigma_m: Option<f64>,
+    /// NMAD of the elevation differences on stable ground after correction.
+    pub coreg_stable_nmad_m: Option<f64>,
+    /// Area of stable ground used.
+    pub coreg_stable_area_m2: f64,
+    /// Where the stable ground came from: job polygons, job mask, or found.
+    pub coreg_stable_ground: &'static str,
+    /// What was applied (`applied: …`), or why not (`not applied: …`).
+    pub coreg_status: String,
     /// Warnings about this survey, separated by `; `.
     pub warnings: String,
     /// What this row is and is not.
@@ -204,6 +226,22 @@ pub struct PairRecord {
     pub note: &'static str,
 }
 
+impl SurveyRecord {
+    /// Fills the co-registration columns from what `coregister` reported for this survey.
+    pub fn set_registration(&mut self, r: &crate::coregister::Registration) {
+        let some = |v: f64| v.is_finite().then_some(v);
+        self.coreg_east_m = some(r.east_m);
+        self.coreg_north_m = some(r.north_m);
+        self.coreg_vertical_m = some(r.vertical_m);
+        self.coreg_horizontal_sigma_m = some(r.horizontal_sigma_m);
+        self.coreg_vertical_sigma_m = some(r.vertical_sigma_m);
+        self.coreg_stable_nmad_m = some(r.stable_nmad_m);
+        self.coreg_stable_area_m2 = r.stable_area_m2;
+        self.coreg_stable_ground = r.source.describe();
+        self.coreg_status = r.status.clone();
+    }
+}
+
 impl PairRecord {
     /// Fills the migration fields from a displacement (metres east and north) measured elsewhere,
     /// e.g. the morph's displacement field. Distance, azimuth and the rate per decimal year follow.
@@ -244,6 +282,9 @@ pub struct ChangeRecord {
     pub pairs: Vec<PairRecord>,
     /// Profiles along the transect, survey by survey; empty without a transect.
     pub transect: Vec<TransectPoint>,
+    /// Moving landforms of every pair, each pair's site-wide row last; filled by
+    /// [`super::landforms`] (empty until then).
+    pub landforms: Vec<super::LandformRecord>,
     /// The options the record was made with.
     pub options: ChangeOptions,
     /// Every warning of the run, one per entry.
@@ -267,6 +308,24 @@ fn check_options(opts: &ChangeOptions) -> Result<()> {
             format!(
                 "{} is not a positive number; use 1.96 for 95 % or 1.0 for 68 %",
                 opts.lod_t
+            ),
+        ));
+    }
+    if !(opts.landform_join_m.is_finite() && (0.0..=1000.0).contains(&opts.landform_join_m)) {
+        return Err(bad_option(
+            "landform_join_m",
+            format!(
+                "{} m is out of range; give 0 to 1000 m, e.g. 10",
+                opts.landform_join_m
+            ),
+        ));
+    }
+    if !(opts.landform_min_area_m2.is_finite() && opts.landform_min_area_m2 >= 0.0) {
+        return Err(bad_option(
+            "landform_min_area_m2",
+            format!(
+                "{} is not a non-negative area; give square metres, e.g. 100",
+                opts.landform_min_area_m2
             ),
         ));
     }
@@ -422,6 +481,16 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             area_above_reference_m2: st.cells_above as f64 * cell_area,
             sigma_z_m: sigma,
             sigma_z_source: sigma_source,
+            vertical_offset_m: 0.0,
+            coreg_east_m: None,
+            coreg_north_m: None,
+            coreg_vertical_m: None,
+            coreg_horizontal_sigma_m: None,
+            coreg_vertical_sigma_m: None,
+            coreg_stable_nmad_m: None,
+            coreg_stable_area_m2: 0.0,
+            coreg_stable_ground: "",
+            coreg_status: "not run".into(),
             warnings: notes.join("; "),
             note: SURVEY_NOTE,
         });
@@ -441,6 +510,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
         surveys,
         pairs,
         transect,
+        landforms: Vec::new(),
         options: opts.clone(),
         warnings,
     })

@@ -88,6 +88,17 @@ pub struct SurveySpec {
     pub label: Option<String>,
     /// Vertical uncertainty (1 σ) in metres, if stated.
     pub sigma_z_m: Option<f64>,
+    /// Metres added to every elevation on reading, for a known datum difference. Default: 0.
+    pub vertical_offset_m: f64,
+}
+
+/// Stable ground named by the job for co-registration.
+#[derive(Debug, Clone, PartialEq)]
+pub enum StableGround {
+    /// Polygons in map coordinates (CRS units).
+    Polygons(Vec<Vec<[f64; 2]>>),
+    /// A mask GeoTIFF (absolute path), non-zero = stable.
+    Mask(PathBuf),
 }
 
 /// Where results go.
@@ -155,6 +166,10 @@ pub struct Job {
     pub poster: PosterOptions,
     /// Change record settings.
     pub change: ChangeOptions,
+    /// Co-registration settings (`coregister`, `stable_ground`).
+    pub coregister: crate::coregister::CoregOptions,
+    /// Stable ground from the job; None = found by the tool.
+    pub stable_ground: Option<StableGround>,
     /// Outputs.
     pub output: OutputSpec,
 }

@@ -45,7 +45,40 @@ pub(super) struct JobFile {
     pub poster: PosterOptions,
     #[serde(default)]
     pub change: ChangeOptions,
+    /// Co-register later surveys to the first on stable ground.
+    #[serde(default = "default_true")]
+    pub coregister: bool,
+    #[serde(default)]
+    pub stable_ground: StableGroundEntry,
     pub output: OutputEntry,
+}
+
+/// Where the ground that did not change lies, and the limits of the co-registration fit.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub(super) struct StableGroundEntry {
+    /// Polygons in map coordinates (CRS units), each a list of `[x, y]` vertices.
+    pub polygons: Option<Vec<Vec<[f64; 2]>>>,
+    /// A mask GeoTIFF (non-zero = stable), relative to the job file.
+    pub mask: Option<String>,
+    pub min_slope_deg: f64,
+    pub max_slope_deg: f64,
+    pub min_cells: usize,
+    pub buffer_m: f64,
+}
+
+impl Default for StableGroundEntry {
+    fn default() -> Self {
+        let d = crate::coregister::CoregOptions::default();
+        StableGroundEntry {
+            polygons: None,
+            mask: None,
+            min_slope_deg: d.min_slope_deg,
+            max_slope_deg: d.max_slope_deg,
+            min_cells: d.min_cells,
+            buffer_m: d.buffer_m,
+        }
+    }
 }
 
 #[derive(Debug, Deserialize)]
@@ -59,6 +92,8 @@ pub(super) struct SurveyEntry {
     pub label: Option<String>,
     #[serde(default)]
     pub sigma_z_m: Option<f64>,
+    #[serde(default)]
+    pub vertical_offset_m: f64,
 }
 
 #[derive(Debug, Deserialize)]

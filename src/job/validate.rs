@@ -5,7 +5,9 @@ use std::path::Path;
 use chrono::{Datelike, NaiveDate};
 
 use super::schema::{JobFile, OutputEntry};
-use super::{ColourBy, Job, Method, OutputSpec, ShellSurvey, SurveySpec, FORMAT_VERSION};
+use super::{
+    ColourBy, Job, Method, OutputSpec, ShellSurvey, StableGround, SurveySpec, FORMAT_VERSION,
+};
 use crate::align::AreaOfInterest;
 use crate::error::{Error, Result};
 use crate::render::ShellOptions;
@@ -137,6 +139,12 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
                 ));
             }
         }
+        if !(s.vertical_offset_m.is_finite() && s.vertical_offset_m.abs() <= 100.0) {
+            return Err(bad(
+                &key("vertical_offset_m"),
+                format!("{} m is not a plausible datum difference; give the metres to add to this survey's elevations, between -100 and 100", s.vertical_offset_m),
+            ));
+        }
         let id = s.id.clone().unwrap_or_else(|| date.to_string());
         if id.is_empty() || id.contains(['/', '\\']) {
             return Err(bad(
@@ -156,6 +164,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             grid,
             label: s.label.clone(),
             sigma_z_m: s.sigma_z_m,
+            vertical_offset_m: s.vertical_offset_m,
         });
     }
 
@@ -412,6 +421,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             format!("{} is out of range; use 2 to 256", f.animation.colours),
         ));
     }
+    let (coregister, stable_ground) = resolve_stable_ground(path, here, &f)?;
     let output = resolve_output(path, here, &f.output)?;
     Ok(Job {
         path: path.to_path_buf(),
@@ -440,8 +450,91 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         animation: f.animation,
         poster: f.poster,
         change: f.change,
+        coregister,
+        stable_ground,
         output,
     })
+}
+
+fn resolve_stable_ground(
+    path: &Path,
+    here: &Path,
+    f: &JobFile,
+) -> Result<(crate::coregister::CoregOptions, Option<StableGround>)> {
+    let bad = |place: &str, msg: String| Error::job(path, place, msg);
+    let s = &f.stable_ground;
+    if !(s.min_slope_deg.is_finite()
+        && s.max_slope_deg.is_finite()
+        && 0.0 <= s.min_slope_deg
+        && s.min_slope_deg < s.max_slope_deg
+        && s.max_slope_deg <= 85.0)
+    {
+        return Err(bad(
+            "stable_ground.min_slope_deg",
+            format!(
+                "slopes {} to {} degrees are not a range; give 0 <= min_slope_deg < max_slope_deg <= 85, e.g. 3 and 60",
+                s.min_slope_deg, s.max_slope_deg
+            ),
+        ));
+    }
+    if !(s.buffer_m.is_finite() && (0.0..=1000.0).contains(&s.buffer_m)) {
+        return Err(bad(
+            "stable_ground.buffer_m",
+            format!("{} m is out of range; give 0 to 1000 m, e.g. 10", s.buffer_m),
+        ));
+    }
+    if !(10..=100_000_000).contains(&s.min_cells) {
+        return Err(bad(
+            "stable_ground.min_cells",
+            format!("{} is out of range; give 10 or more cells, e.g. 1000", s.min_cells),
+        ));
+    }
+    let given = match (&s.polygons, &s.mask) {
+        (Some(_), Some(_)) => {
+            return Err(bad(
+                "stable_ground",
+                "give `polygons` or `mask`, not both".into(),
+            ))
+        }
+        (Some(polys), None) => {
+            if polys.is_empty() {
+                return Err(bad(
+                    "stable_ground.polygons",
+                    "is empty; list at least one polygon of [x, y] vertices, or remove the key to let the tool find stable ground".into(),
+                ));
+            }
+            for (i, p) in polys.iter().enumerate() {
+                if p.len() < 3 || p.iter().flatten().any(|v| !v.is_finite()) {
+                    return Err(bad(
+                        &format!("stable_ground.polygons[{i}]"),
+                        "needs at least three [x, y] vertices with finite map coordinates (CRS units)".into(),
+                    ));
+                }
+            }
+            Some(StableGround::Polygons(polys.clone()))
+        }
+        (None, Some(m)) => {
+            let p = tidy(&here.join(m));
+            if !p.is_file() {
+                return Err(bad(
+                    "stable_ground.mask",
+                    format!("no file at {} (paths are relative to the job file's folder); correct the path", p.display()),
+                ));
+            }
+            Some(StableGround::Mask(p))
+        }
+        (None, None) => None,
+    };
+    Ok((
+        crate::coregister::CoregOptions {
+            enabled: f.coregister,
+            min_slope_deg: s.min_slope_deg,
+            max_slope_deg: s.max_slope_deg,
+            min_cells: s.min_cells,
+            buffer_m: s.buffer_m,
+        },
+        given,
+    ))
 }
 
 /// Removes `.` and `name/..` pairs without touching the file system, so records show

@@ -11,6 +11,7 @@
 
 mod frames;
 mod outputs;
+mod series;
 
 use std::path::{Path, PathBuf};
 
@@ -100,7 +101,9 @@ fn prepare(job: &Job) -> Result<Prepared> {
         .iter()
         .map(survey::read_survey)
         .collect::<Result<Vec<_>>>()?;
-    let stack = align::align(surveys, job.area_of_interest)?;
+    let mut stack = align::align(surveys, job.area_of_interest)?;
+    let stable = series::stable_ground(job, &stack)?;
+    let (registrations, coreg_warnings) = series::coregister_stack(job, &mut stack, stable);
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
     let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
     let range = stack
@@ -138,40 +141,36 @@ fn prepare(job: &Job) -> Result<Prepared> {
         ));
     }
     let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
-    let mut warnings = record.warnings.clone();
-    record.warnings.clear();
+    let mut warnings = coreg_warnings;
+    warnings.append(&mut record.warnings);
+    series::annotate_surveys(job, &mut record, &registrations);
 
-    // The displacement field of every consecutive pair: the morph needs it, and the record reports
-    // the dominant displacement as the migration of the landform.
+    // Migration comes from the landforms that changed beyond the LoD, not the whole relief.
+    warnings.extend(series::measure_landforms(
+        job,
+        &stack,
+        &mut record,
+        FLOW_MAX_SIDE,
+    ));
+    // The displacement field of every consecutive pair, for the morph.
     let cell_m = stack.geometry().cell_x_m();
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for i in 0..stack.len() - 1 {
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
         let result =
             flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE);
-        let pair = record
-            .pairs
-            .iter_mut()
-            .find(|p| p.from_index == i && p.to_index == i + 1);
-        match (&result.verdict, result.dominant, pair) {
-            (v, Some(d), Some(pair)) if v.is_trusted() => pair.set_migration(d.east_m, d.north_m),
-            _ => {}
-        }
         if result.verdict.is_trusted() {
             fields.push(Some(result));
         } else {
-            let fallback = if job.methods[i] == Method::Morph {
-                "frames in this interval use the linear blend instead of the morph, and "
-            } else {
-                ""
-            };
-            let w = format!(
-                "{} -> {}: no reliable displacement ({}); {fallback}no migration is reported for this pair",
-                a.id, b.id, result.verdict
-            );
-            // Logged at info: the CLI prints the report's warnings once, at the end.
-            log::info!("{w}");
-            warnings.push(w);
+            if job.methods[i] == Method::Morph {
+                let w = format!(
+                    "{} -> {}: no reliable displacement field ({}); frames in this interval use the linear blend instead of the morph",
+                    a.id, b.id, result.verdict
+                );
+                // Logged at info: the CLI prints the report's warnings once, at the end.
+                log::info!("{w}");
+                warnings.push(w);
+            }
             fields.push(None);
         }
     }

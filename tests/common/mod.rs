@@ -90,3 +90,109 @@ pub fn write_rgb(path: &Path, g: &GridGeometry, rgb: impl Fn(usize, usize) -> [u
     .unwrap();
     image.write_data(&data).unwrap();
 }
+
+/// A seeded stream of numbers (SplitMix64), so generated noise is the same on every machine.
+pub struct Seeded(u64);
+
+impl Seeded {
+    /// A stream from `seed`.
+    pub fn new(seed: u64) -> Self {
+        Seeded(seed)
+    }
+    /// The next 64 random bits.
+    pub fn next_u64(&mut self) -> u64 {
+        // Check: Steele, Lea & Flood (2014) SplitMix64 constants; from memory
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+    /// Uniform in [0, 1).
+    pub fn uniform(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
+    }
+    /// Roughly normal with standard deviation `sigma`: the sum of 12 uniforms minus 6 has mean 0
+    /// and variance 1 (common practice, no source).
+    pub fn normal(&mut self, sigma: f64) -> f64 {
+        sigma * ((0..12).map(|_| self.uniform()).sum::<f64>() - 6.0)
+    }
+}
+
+/// A moving dune of the series site: where it starts, how it moves, how it changes height.
+#[derive(Debug, Clone, Copy)]
+pub struct MovingDune {
+    /// Start centre, (col, row) in cells from the grid's north-west corner.
+    pub start: (f64, f64),
+    /// Height above the ground at the first survey, metres.
+    pub height_m: f64,
+    /// Height at the second survey.
+    pub height_after_m: f64,
+    /// Spread (Gaussian sigma), metres.
+    pub sigma_m: f64,
+    /// Distance moved between the surveys, metres.
+    pub move_m: f64,
+    /// Direction of the move, compass degrees.
+    pub azimuth_deg: f64,
+}
+
+impl MovingDune {
+    /// The true (east, north) move in metres.
+    pub fn shift(&self) -> (f64, f64) {
+        let a = self.azimuth_deg.to_radians();
+        (self.move_m * a.sin(), self.move_m * a.cos())
+    }
+}
+
+/// The invented series site: 256 x 256 cells of 1 m with a fixed north–south ridge and a fixed
+/// knoll (stable relief, every aspect) beside a large dune that moves 16 m toward 67.5° (east-north-
+/// east) while losing a quarter of its height, and a small dune that moves 10 m toward 100°.
+pub const SERIES_DUNES: [MovingDune; 2] = [
+    MovingDune {
+        start: (112.0, 150.0),
+        height_m: 10.0,
+        height_after_m: 7.5,
+        sigma_m: 16.0,
+        move_m: 16.0,
+        azimuth_deg: 67.5,
+    },
+    MovingDune {
+        start: (200.0, 60.0),
+        height_m: 3.0,
+        height_after_m: 3.0,
+        sigma_m: 6.0,
+        move_m: 10.0,
+        azimuth_deg: 100.0,
+    },
+];
+
+/// Elevation of the series site at local map point (east, north) metres from the grid's north-west
+/// corner (north negative downwards), at survey `after` (false = first survey), without noise.
+pub fn series_surface(east: f64, north: f64, after: bool) -> f64 {
+    let (col, row) = (east, -north);
+    let mut z = 2.0 + 0.01 * col + 0.004 * (256.0 - row);
+    // Fixed ridge along col 40, tapering towards its ends.
+    let along = (row - 128.0) / 95.0;
+    z += 7.0 * (-(col - 40.0).powi(2) / (2.0 * 81.0)).exp() * (-along.powi(4)).exp();
+    // Fixed knoll.
+    z += 5.0 * (-((col - 205.0).powi(2) + (row - 205.0).powi(2)) / (2.0 * 144.0)).exp();
+    for d in SERIES_DUNES {
+        let (de, dn) = if after { d.shift() } else { (0.0, 0.0) };
+        let h = if after { d.height_after_m } else { d.height_m };
+        let (cx, cy) = (d.start.0 + de, d.start.1 - dn);
+        let r2 = (col - cx).powi(2) + (row - cy).powi(2);
+        z += h * (-r2 / (2.0 * d.sigma_m * d.sigma_m)).exp();
+    }
+    z
+}
+
+/// One survey of the series site on `geometry(256, 256)`, sampled at cell centres shifted by
+/// (`east_m`, `north_m`) (the survey's mis-registration: it shows the ground at x − d at x),
+/// raised by `dz_m`, with normal noise of `sigma_m` from `seed`.
+pub fn series_survey(after: bool, east_m: f64, north_m: f64, dz_m: f64, sigma_m: f64, seed: u64) -> Array2<f32> {
+    let mut rng = Seeded::new(seed);
+    Array2::from_shape_fn((256, 256), |(r, c)| {
+        let (e, n) = (c as f64 + 0.5 - east_m, -(r as f64 + 0.5) - north_m);
+        (series_surface(e, n, after) + dz_m + rng.normal(sigma_m)) as f32
+    })
+}
