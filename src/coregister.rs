@@ -26,9 +26,12 @@
 //! cleaned of outliers beyond `max(LoD, 3·NMAD)` (a parked car, a new fence).
 //!
 //! # Uncertainty and when a correction is applied
-//! Standard errors treat cells as independent (NMAD/√n for the vertical offset, the least-squares
-//! standard error of the fitted shift for the horizontal one); real survey errors are spatially
-//! correlated, so these are lower bounds, as the record says. A component (horizontal or vertical)
+//! Standard errors are NMAD/√n_eff for the vertical offset and the least-squares standard error of
+//! the fitted shift for the horizontal one, both with one independent value per area of
+//! correlation of `dh` on stable ground (`n_eff = n / (π·L²)`, L the distance at which the
+//! correlation falls to 1/e). Cells steeper than the noise alone could make (three times the Horn
+//! slope noise) are the only ones used for the horizontal fit: on flat stable ground the horizontal
+//! offset is not estimated, and the record says so. A component (horizontal or vertical)
 //! is applied only when it exceeds 1.96 standard errors; with fewer than
 //! `stable_ground.min_cells` stable cells nothing is applied and a warning says so.
 //!
@@ -337,6 +340,69 @@ fn invert3(m: [[f64; 3]; 3]) -> Option<[[f64; 3]; 3]> {
     Some(inv)
 }
 
+/// Standard deviation of a Horn slope component made by noise alone, from the NMAD of the
+/// differences of two surveys (each survey carries about 1/√2 of it).
+fn slope_noise(nmad_dh: f64, g: &GridGeometry) -> f64 {
+    // Check: Horn (1981) stencil — weights (1, 2, 1) on each side over 8·Δx, so the sum of squared
+    // weights is 12 and σ_p = σ·√12 / (8·Δx); analytic, REFERENCES.md §1
+    let sigma = nmad_dh / std::f64::consts::SQRT_2;
+    if sigma.is_finite() {
+        sigma * 12f64.sqrt() / (8.0 * g.cell_x_m())
+    } else {
+        0.0
+    }
+}
+
+/// Distance, in cells, at which the correlation of `dh` between stable cells falls to 1/e:
+/// measured along rows and columns at lags 1, 2, 3, 4, 6, 8, 12, 16, 24 and 32 cells, with linear
+/// interpolation between lags (correlation 1 at lag 0). Common practice, no source: a variogram
+/// reduced to its range, as used to count independent values in DEM error budgets.
+fn correlation_range_cells(dh: &[f32], stable: &[bool], rows: usize, cols: usize) -> f64 {
+    let values: Vec<f64> = (0..dh.len())
+        .filter(|&k| stable[k])
+        .map(|k| dh[k] as f64)
+        .collect();
+    if values.len() < 2 {
+        return 0.0;
+    }
+    let mean = values.iter().sum::<f64>() / values.len() as f64;
+    let var = values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / values.len() as f64;
+    if !(var > 0.0) {
+        return 0.0;
+    }
+    let target = (-1f64).exp();
+    let (mut prev_lag, mut prev_corr) = (0.0, 1.0);
+    for lag in [1usize, 2, 3, 4, 6, 8, 12, 16, 24, 32] {
+        let (mut sum, mut n) = (0.0, 0usize);
+        for r in 0..rows {
+            for c in 0..cols {
+                let k = r * cols + c;
+                if !stable[k] {
+                    continue;
+                }
+                let here = dh[k] as f64 - mean;
+                if c + lag < cols && stable[k + lag] {
+                    sum += here * (dh[k + lag] as f64 - mean);
+                    n += 1;
+                }
+                if r + lag < rows && stable[k + lag * cols] {
+                    sum += here * (dh[k + lag * cols] as f64 - mean);
+                    n += 1;
+                }
+            }
+        }
+        if n == 0 {
+            return prev_lag;
+        }
+        let corr = sum / n as f64 / var;
+        if corr < target {
+            return prev_lag + (lag as f64 - prev_lag) * (prev_corr - target) / (prev_corr - corr);
+        }
+        (prev_lag, prev_corr) = (lag as f64, corr);
+    }
+    32.0
+}
+
 /// Marks as stable the candidate cells whose `dh` lies within `band` of `med`; found ground also
 /// keeps `buffer_m` away from patches of change beyond the band (a majority of a 5 x 5
 /// neighbourhood, so single noisy cells do not punch holes).
@@ -415,8 +481,12 @@ fn estimate(
         // outliers.
         let band = lod_m.max(3.0 * nmad) as f32;
         select_stable(&mut stable, &dh, med, band, &cand, found, g, opts);
+        // Slopes made by survey noise alone say nothing about a shift, and their aspects are
+        // random: keep cells steeper than three times the slope noise of the reference.
+        let (_, nmad_stable, _) = median_nmad(&dh, |k| stable[k]);
+        let lo_eff = lo.max((3.0 * slope_noise(nmad_stable, g)) as f32);
         let fit: Vec<usize> = (0..dh.len())
-            .filter(|&k| stable[k] && t.tan_slope[k] >= lo && t.tan_slope[k] <= hi)
+            .filter(|&k| stable[k] && t.tan_slope[k] >= lo_eff && t.tan_slope[k] <= hi)
             .collect();
         if fit.len() < opts.min_cells {
             break;
@@ -462,19 +532,24 @@ fn estimate(
     let band = lod_m.max(3.0 * nmad) as f32;
     select_stable(&mut stable, &dh, med, band, &cand, found, g, opts);
     let (vertical, nmad, n) = median_nmad(&dh, |k| stable[k]);
+    // Errors of neighbouring cells are not independent: count one independent value per area
+    // of correlation (at least one cell).
+    let range = correlation_range_cells(&dh, &stable, g.rows, g.cols);
+    let cells_per_value = (std::f64::consts::PI * range * range).max(1.0);
+    let n_eff = (n as f64 / cells_per_value).max(1.0);
     Estimate {
         east_m: if horizontal_ok { east } else { f64::NAN },
         north_m: if horizontal_ok { north } else { f64::NAN },
         horizontal_sigma_m: if horizontal_ok {
-            sig_e.hypot(sig_n)
+            sig_e.hypot(sig_n) * cells_per_value.sqrt()
         } else {
             f64::NAN
         },
         horizontal_ok,
         vertical_m: vertical,
-        // Check: standard error of a median ≈ 1.2533·σ/√n for normal errors (from memory); the
-        // NMAD/√n form of REFERENCES.md §14 is used as stated there
-        vertical_sigma_m: nmad / (n.max(1) as f64).sqrt(),
+        // Check: REFERENCES.md §14 — NMAD/√n_eff; the standard error of a median is about
+        // 1.2533·σ/√n for normal errors (from memory), so this is the optimistic side
+        vertical_sigma_m: nmad / n_eff.sqrt(),
         nmad_m: nmad,
         stable,
     }

@@ -77,7 +77,7 @@ use raster::Dims;
 pub use reduce::estimate_within;
 pub use result::{Dominant, FlowField, FlowResult, Verdict};
 
-pub(crate) use raster::{sample_clamped, Dims as RasterDims};
+pub(crate) use raster::{base_plane, sample_clamped, Dims as RasterDims};
 
 /// Settings of the displacement estimate. The job file deserialises into this.
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]

@@ -101,7 +101,8 @@ pub(super) fn coregister_stack(
             warnings.push(line);
         } else if r.status.contains("stable cells") {
             let line = format!("survey {id}: co-registration {}", r.status);
-            log::warn!("{line}");
+            // Logged at info: the CLI prints the report's warnings once, at the end.
+            log::info!("{line}");
             warnings.push(line);
         }
     }
