@@ -177,3 +177,72 @@ fn migration_follows_each_moving_dune() {
     let site = pair.migration_azimuth_deg.unwrap();
     assert!((site - 67.5).abs() < 10.0, "{site}");
 }
+
+/// Writes the moving-dune job in `dir`, runs it and returns its tables as text.
+fn tables_of(dir: &std::path::Path, extra: &str) -> Vec<(String, String)> {
+    run_tables(&common::moving_dune_job(dir, extra))
+}
+
+/// Runs a job (without frames) and returns its tables as text.
+fn run_tables(job_path: &std::path::Path) -> Vec<(String, String)> {
+    let dir = job_path.parent().unwrap();
+    let mut job = dunereel::job::load(job_path).unwrap();
+    job.output.png_frames = false;
+    job.output.poster = false;
+    job.output.gif = None;
+    let out = dir.join("out");
+    dunereel::run_job(
+        &job,
+        &dunereel::RunOptions {
+            output_folder: Some(out.clone()),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    ["surveys.csv", "surveys.json", "pairs.csv", "landforms.csv", "landforms.json"]
+        .iter()
+        .map(|n| {
+            let text = std::fs::read_to_string(out.join("data/tables").join(n)).unwrap();
+            (n.to_string(), text)
+        })
+        .collect()
+}
+
+#[test]
+fn the_same_job_in_two_folders_gives_identical_tables() {
+    let one = tempfile::tempdir().unwrap();
+    let two = tempfile::tempdir().unwrap();
+    let deeper = two.path().join("elsewhere/on/another/machine");
+    std::fs::create_dir_all(&deeper).unwrap();
+    let a = tables_of(one.path(), "");
+    let b = tables_of(&deeper, "");
+    for ((name, x), (_, y)) in a.iter().zip(&b) {
+        assert_eq!(x, y, "{name} differs between the two folders");
+    }
+    // Source files are named relative to the job file, and keep their checksum.
+    let surveys = &a[0].1;
+    assert!(surveys.contains(",2030-03-01.tif,"), "{surveys}");
+    assert!(!surveys.contains(&one.path().display().to_string()));
+}
+
+#[test]
+fn a_datum_offset_is_applied_and_recorded() {
+    let d = tempfile::tempdir().unwrap();
+    let plain = tables_of(d.path(), "");
+    let d2 = tempfile::tempdir().unwrap();
+    let job = common::moving_dune_job(d2.path(), "");
+    let text = std::fs::read_to_string(&job)
+        .unwrap()
+        .replace("grid: 2031-03-01.tif, sigma_z_m: 0.1 }", "grid: 2031-03-01.tif, sigma_z_m: 0.1, vertical_offset_m: -0.35 }")
+        + "coregister: false\n";
+    std::fs::write(&job, text).unwrap();
+    let shifted = run_tables(&job);
+    let json = |t: &str| -> serde_json::Value { serde_json::from_str(t).unwrap() };
+    let (p, s) = (json(&plain[1].1), json(&shifted[1].1));
+    assert_eq!(s[1]["vertical_offset_m"], -0.35);
+    assert_eq!(s[0]["vertical_offset_m"], 0.0);
+    // Check: analytic — adding −0.35 m to every cell lowers the mean elevation by 0.35 m
+    let dm = s[1]["mean_elevation_m"].as_f64().unwrap() - p[1]["mean_elevation_m"].as_f64().unwrap();
+    assert!((dm + 0.35).abs() < 1e-4, "{dm}");
+    assert!(s[1]["coreg_status"].as_str().unwrap().contains("turned off"));
+}

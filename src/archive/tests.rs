@@ -42,7 +42,7 @@ fn writes_a_bag_that_verifies() {
     let (rec, figs) = sample(LinearUnit::Metre);
     assert_eq!(figs.len(), 4); // 2 consecutive + first-to-last maps, 1 chart
     let report = write_archive(&dir, &rec, &figs, &extras(), &opts()).unwrap();
-    assert_eq!(report.payload_files, 6 + 2 + 4 + 1);
+    assert_eq!(report.payload_files, 8 + 2 + 4 + 1);
     for f in [
         "bagit.txt",
         "bag-info.txt",

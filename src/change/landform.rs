@@ -14,8 +14,9 @@
 //! 3. Flanks joined: the kept cells are grown by half of `change.landform_join_m` in every
 //!    direction, so the eroded windward flank and the raised lee flank of one dune, separated by a
 //!    crest that hardly changed, become one region; regions closer than that distance merge.
-//! 4. Regions: 8-connected components of the grown cells. A region whose detected change covers
-//!    less than `change.landform_min_area_m2` is dropped.
+//! 4. Regions: 8-connected components of the grown cells. A region whose speckle-free change
+//!    covers less than `change.landform_min_area_m2` is dropped. A region's area and volumes count
+//!    every cell inside it whose change reaches the LoD.
 //!
 //! Each region's migration is the dominant displacement of the relief inside the region only
 //! (`interp::flow::estimate` on the region's box, cells outside the region flattened to the base
@@ -102,8 +103,9 @@ struct Delimit {
     min_cells: usize,
 }
 
-/// Detected change, speckle removed (majority of a 5 x 5 neighbourhood).
-fn kept_change(a: &[f32], b: &[f32], rows: usize, cols: usize, lod: f64) -> Vec<bool> {
+/// Detected change (|DoD| >= LoD) and the same with speckle removed (majority of a 5 x 5
+/// neighbourhood).
+fn kept_change(a: &[f32], b: &[f32], rows: usize, cols: usize, lod: f64) -> (Vec<bool>, Vec<bool>) {
     let lod = lod as f32;
     let n = rows * cols;
     let mut detected = vec![0u32; n];
@@ -117,9 +119,10 @@ fn kept_change(a: &[f32], b: &[f32], rows: usize, cols: usize, lod: f64) -> Vec<
     }
     let sd = box_sum(&detected, rows, cols, 2);
     let sv = box_sum(&valid, rows, cols, 2);
-    (0..n)
+    let kept = (0..n)
         .map(|k| detected[k] == 1 && 2 * sd[k] >= sv[k])
-        .collect()
+        .collect();
+    (detected.iter().map(|&d| d == 1).collect(), kept)
 }
 
 /// Sum over the (2r+1) x (2r+1) window around each cell (clipped at the edges), two 1-D passes.
@@ -152,8 +155,15 @@ pub(crate) fn box_sum(x: &[u32], rows: usize, cols: usize, r: usize) -> Vec<u32>
     out
 }
 
-/// Regions of kept change, grown by `join_cells`, largest detected area first.
-fn regions(kept: &[bool], rows: usize, cols: usize, d: &Delimit) -> Vec<Region> {
+/// Regions of kept change, grown by `join_cells`, largest detected area first; `detected` is the
+/// change before speckle removal, counted inside each region.
+fn regions(
+    detected: &[bool],
+    kept: &[bool],
+    rows: usize,
+    cols: usize,
+    d: &Delimit,
+) -> Vec<Region> {
     let as_u32: Vec<u32> = kept.iter().map(|&k| k as u32).collect();
     let grown: Vec<bool> = box_sum(&as_u32, rows, cols, d.join_cells)
         .into_iter()
@@ -189,10 +199,13 @@ fn regions(kept: &[bool], rows: usize, cols: usize, d: &Delimit) -> Vec<Region> 
             }
         }
         cells.sort_unstable();
-        let detected: Vec<usize> = cells.iter().copied().filter(|&k| kept[k]).collect();
-        out.push(Region { cells, detected });
+        let inside: Vec<usize> = cells.iter().copied().filter(|&k| detected[k]).collect();
+        out.push(Region {
+            cells,
+            detected: inside,
+        });
     }
-    out.retain(|r| r.detected.len() >= d.min_cells.max(1));
+    out.retain(|r| r.cells.iter().filter(|&&k| kept[k]).count() >= d.min_cells.max(1));
     // Largest first; ties keep raster order (the sort is stable).
     out.sort_by(|x, y| y.detected.len().cmp(&x.detected.len()));
     out
@@ -274,12 +287,12 @@ pub fn landforms(
     let cell_area = g.cell_area_m2();
     let sa: Vec<f32> = a.iter().copied().collect();
     let sb: Vec<f32> = b.iter().copied().collect();
-    let kept = kept_change(&sa, &sb, rows, cols, pair.lod_m);
+    let (detected_cells, kept) = kept_change(&sa, &sb, rows, cols, pair.lod_m);
     let d = Delimit {
         join_cells: (0.5 * join_m / cell_m).round().max(0.0) as usize,
         min_cells: (min_area_m2 / cell_area).ceil().max(1.0) as usize,
     };
-    let found = regions(&kept, rows, cols, &d);
+    let found = regions(&detected_cells, &kept, rows, cols, &d);
     // The ground that did not change: everything outside the regions.
     let mut in_region = vec![false; rows * cols];
     for r in &found {
@@ -388,9 +401,10 @@ mod tests {
                 b[r * cols + c] = 1.0;
             }
         }
-        let kept = kept_change(&a, &b, rows, cols, 0.5);
-        assert!(!kept[5 * cols + 5]);
+        let (detected, kept) = kept_change(&a, &b, rows, cols, 0.5);
+        assert!(detected[5 * cols + 5] && !kept[5 * cols + 5]);
         let found = regions(
+            &detected,
             &kept,
             rows,
             cols,
@@ -400,8 +414,9 @@ mod tests {
             },
         );
         assert_eq!(found.len(), 1);
-        assert!(found[0].detected.len() >= 80);
+        assert_eq!(found[0].detected.len(), 96);
         let apart = regions(
+            &detected,
             &kept,
             rows,
             cols,

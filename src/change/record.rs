@@ -24,7 +24,8 @@ use crate::error::{Error, Result};
 
 /// Note carried by every survey row.
 pub const SURVEY_NOTE: &str =
-    "measured: the elevations are the survey as delivered, resampled onto the analysis grid";
+    "measured: the elevations are the survey as delivered, resampled onto the analysis grid, with \
+     the datum offset and co-registration correction given in this row";
 /// Note carried by every pair row.
 pub const PAIR_NOTE: &str =
     "only the two survey dates are measurements; nothing is known of the surface between them, \

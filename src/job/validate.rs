@@ -642,6 +642,27 @@ mod tests {
     }
 
     #[test]
+    fn coregistration_keys() {
+        let d = job_dir();
+        let job = parse(&d.path().join("job.yaml"), MINIMAL.into()).unwrap();
+        assert!(job.coregister.enabled);
+        assert_eq!(job.stable_ground, None);
+        assert_eq!(job.surveys[0].vertical_offset_m, 0.0);
+        let text = format!(
+            "{}coregister: false\nstable_ground: {{ polygons: [[[0, 0], [10, 0], [10, 10]]], min_cells: 50 }}\n",
+            MINIMAL.replace("b.tif }", "b.tif, vertical_offset_m: 0.12 }")
+        );
+        let job = parse(&d.path().join("job.yaml"), text).unwrap();
+        assert!(!job.coregister.enabled);
+        assert_eq!(job.coregister.min_cells, 50);
+        assert_eq!(job.surveys[1].vertical_offset_m, 0.12);
+        assert!(matches!(job.stable_ground, Some(StableGround::Polygons(ref p)) if p.len() == 1));
+        let text = format!("{MINIMAL}stable_ground: {{ mask: ./a.tif }}\n");
+        let job = parse(&d.path().join("job.yaml"), text).unwrap();
+        assert_eq!(job.stable_ground, Some(StableGround::Mask(d.path().join("a.tif"))));
+    }
+
+    #[test]
     fn paths_are_tidied() {
         assert_eq!(
             tidy(Path::new("/a/jobs/../data/./x.tif")),
@@ -746,6 +767,26 @@ mod tests {
             (
                 format!("{MINIMAL}colour: {{ drape: a.tif }}\n"),
                 "colour.drape",
+            ),
+            (
+                MINIMAL.replace("b.tif }", "b.tif, vertical_offset_m: .nan }"),
+                "surveys[1].vertical_offset_m",
+            ),
+            (
+                format!("{MINIMAL}stable_ground: {{ mask: a.tif, polygons: [[[0, 0], [1, 0], [1, 1]]] }}\n"),
+                "stable_ground",
+            ),
+            (
+                format!("{MINIMAL}stable_ground: {{ polygons: [[[0, 0], [1, 0]]] }}\n"),
+                "stable_ground.polygons[0]",
+            ),
+            (
+                format!("{MINIMAL}stable_ground: {{ mask: nowhere.tif }}\n"),
+                "stable_ground.mask",
+            ),
+            (
+                format!("{MINIMAL}stable_ground: {{ min_slope_deg: 30, max_slope_deg: 10 }}\n"),
+                "stable_ground.min_slope_deg",
             ),
         ];
         for (text, key) in cases {
