@@ -2,7 +2,8 @@
 //!
 //! The analysis grid is the first survey's grid, cropped to the area of interest when one is given.
 //! Other surveys are resampled onto it bilinearly; a cell whose neighbourhood touches nodata stays
-//! nodata. Surveys whose CRS differ are refused: this program does not reproject.
+//! nodata. A survey in another projected CRS is reprojected onto it (`crate::reproject`); one whose
+//! CRS is not stated, or that the projection library cannot handle, is refused.
 //!
 //! Invariant, true by construction because only [`align`] builds an `AlignedStack`: every grid in the
 //! stack shares one geometry, and surveys are in strictly increasing date order.
@@ -11,6 +12,7 @@ use ndarray::Array2;
 
 use crate::error::{Error, Result};
 use crate::grid::{Grid, GridGeometry};
+use crate::reproject::Reprojection;
 use crate::survey::Survey;
 
 /// A rectangle in map coordinates (the CRS's horizontal unit) that limits the analysis.
@@ -80,6 +82,19 @@ impl AlignedStack {
 /// units differ, a survey does not overlap the analysis grid at all, or the area of interest misses
 /// the first grid.
 pub fn align(surveys: Vec<Survey>, aoi: Option<AreaOfInterest>) -> Result<AlignedStack> {
+    align_with_report(surveys, aoi).map(|(stack, _)| stack)
+}
+
+/// Like [`align`], and also says, per survey, how it was reprojected (None: it was already in the
+/// analysis grid's CRS).
+///
+/// # Errors
+/// As [`align`]; a survey in another CRS is refused only when a CRS is not stated or the
+/// projection library cannot handle it.
+pub fn align_with_report(
+    surveys: Vec<Survey>,
+    aoi: Option<AreaOfInterest>,
+) -> Result<(AlignedStack, Vec<Option<Reprojection>>)> {
     let first = surveys
         .first()
         .ok_or_else(|| Error::input(std::path::Path::new("(job)"), "no surveys to align"))?;
@@ -109,17 +124,40 @@ pub fn align(surveys: Vec<Survey>, aoi: Option<AreaOfInterest>) -> Result<Aligne
         }
     }
     let mut out = Vec::with_capacity(surveys.len());
+    let mut reports = Vec::with_capacity(surveys.len());
     for s in surveys {
         let g = &s.grid.geometry;
         if g.epsg != base.epsg {
-            return Err(Error::input(
-                &s.source.path,
-                format!(
-                    "CRS {} differs from the first survey's CRS {}; reproject this grid to the first survey's CRS before running",
-                    crs_name(g.epsg),
-                    crs_name(base.epsg)
-                ),
-            ));
+            if g.epsg.is_none() || base.epsg.is_none() {
+                return Err(Error::input(
+                    &s.source.path,
+                    format!(
+                        "CRS {} differs from the first survey's CRS {}, and without both EPSG codes it cannot be                          reprojected; write the EPSG code into the GeoTIFF, or reproject this grid to the first                          survey's CRS before running",
+                        crs_name(g.epsg),
+                        crs_name(base.epsg)
+                    ),
+                ));
+            }
+            let (z, report) = crate::reproject::reproject(&s.grid, &base)
+                .map_err(|m| Error::input(&s.source.path, m))?;
+            if z.iter().all(|v| v.is_nan()) {
+                return Err(Error::input(
+                    &s.source.path,
+                    format!(
+                        "reprojected from {} to {}, this grid does not overlap the analysis grid anywhere with                          data; check its georeference and CRS",
+                        report.source_crs, report.target_crs
+                    ),
+                ));
+            }
+            out.push(Survey {
+                grid: Grid {
+                    geometry: base.clone(),
+                    z,
+                },
+                ..s
+            });
+            reports.push(Some(report));
+            continue;
         }
         if g.horizontal_unit != base.horizontal_unit {
             return Err(Error::input(
@@ -146,6 +184,7 @@ pub fn align(surveys: Vec<Survey>, aoi: Option<AreaOfInterest>) -> Result<Aligne
             },
             ..s
         });
+        reports.push(None);
     }
     if out.len() < 2 {
         return Err(Error::input(
@@ -153,10 +192,13 @@ pub fn align(surveys: Vec<Survey>, aoi: Option<AreaOfInterest>) -> Result<Aligne
             "at least two surveys are needed to show change",
         ));
     }
-    Ok(AlignedStack {
-        geometry: base,
-        surveys: out,
-    })
+    Ok((
+        AlignedStack {
+            geometry: base,
+            surveys: out,
+        },
+        reports,
+    ))
 }
 
 fn crs_name(epsg: Option<u32>) -> String {
@@ -292,12 +334,19 @@ mod tests {
         let err = align(vec![survey(2, 0.0, flat), survey(1, 0.0, flat)], None).unwrap_err();
         assert!(err.to_string().contains("date order"), "{err}");
         let mut b = survey(2, 0.0, flat);
-        b.grid.geometry.epsg = Some(26918);
+        b.grid.geometry.epsg = None;
         let err = align(vec![survey(1, 0.0, flat), b], None).unwrap_err();
         let text = err.to_string();
         assert!(
-            text.contains("EPSG:26918") && text.contains("EPSG:32633"),
+            text.contains("not stated") && text.contains("EPSG:32633"),
             "{text}"
         );
+        // A CRS the library does not know is refused clearly.
+        let mut b = survey(2, 0.0, flat);
+        b.grid.geometry.epsg = Some(1);
+        let text = align(vec![survey(1, 0.0, flat), b], None)
+            .unwrap_err()
+            .to_string();
+        assert!(text.contains("EPSG:1 ") && text.contains("reproject"), "{text}");
     }
 }

@@ -27,6 +27,7 @@ pub mod grid;
 pub mod interp;
 pub mod job;
 pub mod render;
+pub mod reproject;
 pub mod run;
 pub mod survey;
 pub mod timeline;

@@ -96,6 +96,11 @@ pub struct SurveyRecord {
     pub sigma_z_m: f64,
     /// `stated` when the job gave the uncertainty, `default` when the program assumed it.
     pub sigma_z_source: &'static str,
+    /// The CRS the survey was delivered in, e.g. `EPSG:2264`.
+    pub source_crs: String,
+    /// How it was brought onto the analysis grid's CRS: `none` when it already was, else the
+    /// transformation used (and a caution when the datums differ).
+    pub reprojection: String,
     /// Metres added to every elevation on reading for a known datum difference
     /// (`surveys[].vertical_offset_m`).
     pub vertical_offset_m: f64,
@@ -228,6 +233,14 @@ pub struct PairRecord {
 }
 
 impl SurveyRecord {
+    /// Fills the CRS columns from how `align` reprojected this survey.
+    pub fn set_reprojection(&mut self, r: &crate::reproject::Reprojection) {
+        self.source_crs = r.source_crs.clone();
+        self.reprojection = match &r.datum_caution {
+            Some(c) => format!("{}; CAUTION: {c}", r.transformation),
+            None => r.transformation.clone(),
+        };
+    }
     /// Fills the co-registration columns from what `coregister` reported for this survey.
     pub fn set_registration(&mut self, r: &crate::coregister::Registration) {
         let some = |v: f64| v.is_finite().then_some(v);
@@ -482,6 +495,10 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             area_above_reference_m2: st.cells_above as f64 * cell_area,
             sigma_z_m: sigma,
             sigma_z_source: sigma_source,
+            source_crs: geometry
+                .epsg
+                .map_or_else(|| "not stated".to_string(), |c| format!("EPSG:{c}")),
+            reprojection: "none".into(),
             vertical_offset_m: 0.0,
             coreg_east_m: None,
             coreg_north_m: None,

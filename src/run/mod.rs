@@ -101,7 +101,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         .iter()
         .map(survey::read_survey)
         .collect::<Result<Vec<_>>>()?;
-    let mut stack = align::align(surveys, job.area_of_interest)?;
+    let (mut stack, reprojections) = align::align_with_report(surveys, job.area_of_interest)?;
     let stable = series::stable_ground(job, &stack)?;
     let (registrations, coreg_warnings) = series::coregister_stack(job, &mut stack, stable);
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
@@ -141,9 +141,10 @@ fn prepare(job: &Job) -> Result<Prepared> {
         ));
     }
     let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
-    let mut warnings = coreg_warnings;
+    let mut warnings = series::reprojection_warnings(&stack, &reprojections);
+    warnings.extend(coreg_warnings);
     warnings.append(&mut record.warnings);
-    series::annotate_surveys(job, &mut record, &registrations);
+    series::annotate_surveys(job, &mut record, &registrations, &reprojections);
 
     // Migration comes from the landforms that changed beyond the LoD, not the whole relief.
     warnings.extend(series::measure_landforms(

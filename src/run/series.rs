@@ -12,6 +12,7 @@ use crate::coregister::{self, Registration, StableSource};
 use crate::error::{Error, Result};
 use crate::geotiff;
 use crate::job::{Job, StableGround};
+use crate::reproject::Reprojection;
 
 /// The stable ground the job names, on the analysis grid (None: the tool finds it).
 ///
@@ -65,6 +66,22 @@ pub(super) fn stable_ground(
     }
 }
 
+/// Warnings about reprojected surveys whose datums differ (the shift between them is approximate).
+pub(super) fn reprojection_warnings(
+    stack: &AlignedStack,
+    reprojections: &[Option<Reprojection>],
+) -> Vec<String> {
+    stack
+        .surveys()
+        .iter()
+        .zip(reprojections)
+        .filter_map(|(s, r)| {
+            let c = r.as_ref()?.datum_caution.as_ref()?;
+            Some(format!("survey {}: reprojected; {c}", s.id))
+        })
+        .collect()
+}
+
 /// Co-registers the stack in place; returns one registration per survey and the warnings.
 pub(super) fn coregister_stack(
     job: &Job,
@@ -112,7 +129,12 @@ pub(super) fn coregister_stack(
 /// Puts into the survey rows what only the run knows: datum offsets, co-registration, and source
 /// paths relative to the job file's folder (forward slashes), so the record reads the same on
 /// every machine.
-pub(super) fn annotate_surveys(job: &Job, record: &mut ChangeRecord, regs: &[Registration]) {
+pub(super) fn annotate_surveys(
+    job: &Job,
+    record: &mut ChangeRecord,
+    regs: &[Registration],
+    reprojections: &[Option<Reprojection>],
+) {
     let here = job.path.parent().unwrap_or(Path::new("."));
     for (i, row) in record.surveys.iter_mut().enumerate() {
         if let Some(spec) = job.surveys.get(i) {
@@ -121,6 +143,9 @@ pub(super) fn annotate_surveys(job: &Job, record: &mut ChangeRecord, regs: &[Reg
         }
         if let Some(r) = regs.get(i) {
             row.set_registration(r);
+        }
+        if let Some(Some(p)) = reprojections.get(i) {
+            row.set_reprojection(p);
         }
     }
 }
