@@ -140,16 +140,21 @@ pub(crate) fn box_sum(x: &[u32], rows: usize, cols: usize, r: usize) -> Vec<u32>
             h[row * cols + c] = prefix[hi] - prefix[lo];
         }
     }
-    let mut out = vec![0u32; x.len()];
-    for c in 0..cols {
-        let mut prefix = vec![0u32; rows + 1];
-        for row in 0..rows {
-            prefix[row + 1] = prefix[row] + h[row * cols + c];
+    // Column sums a row at a time (prefix sums down the rows), which reads memory in order.
+    let mut prefix = vec![0u32; (rows + 1) * cols];
+    for row in 0..rows {
+        let (done, rest) = prefix.split_at_mut((row + 1) * cols);
+        let above = &done[row * cols..];
+        for ((p, &a), &v) in rest[..cols].iter_mut().zip(above).zip(&h[row * cols..(row + 1) * cols]) {
+            *p = a + v;
         }
-        for row in 0..rows {
-            let lo = row.saturating_sub(r);
-            let hi = (row + r + 1).min(rows);
-            out[row * cols + c] = prefix[hi] - prefix[lo];
+    }
+    let mut out = vec![0u32; x.len()];
+    for row in 0..rows {
+        let lo = row.saturating_sub(r) * cols;
+        let hi = (row + r + 1).min(rows) * cols;
+        for (c, o) in out[row * cols..(row + 1) * cols].iter_mut().enumerate() {
+            *o = prefix[hi + c] - prefix[lo + c];
         }
     }
     out
