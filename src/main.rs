@@ -33,14 +33,21 @@ enum Command {
         /// Replace the output folder if it exists.
         #[arg(long)]
         overwrite: bool,
-        /// Worker threads (default: all cores). The output is the same for any number.
-        #[arg(long, value_name = "N")]
-        threads: Option<usize>,
+        /// Worker threads, 1 or more (default: all cores). The output is the same for any number.
+        #[arg(long, value_name = "N", allow_negative_numbers = true,
+              value_parser = clap::value_parser!(u16).range(1..))]
+        threads: Option<u16>,
     },
-    /// Check a job file and its grids without writing anything.
+    /// Check a job file, its grids and its output folder as `render` would, writing nothing.
     Check {
         /// The job file (YAML).
         job: PathBuf,
+        /// Check this output folder instead of the job's output.folder.
+        #[arg(long, value_name = "FOLDER")]
+        output: Option<PathBuf>,
+        /// Check as if --overwrite were given to render.
+        #[arg(long)]
+        overwrite: bool,
     },
     /// Check an output folder against its SHA-256 manifests: missing, extra or altered files.
     Verify {
@@ -69,7 +76,11 @@ fn main() -> ExitCode {
             overwrite,
             threads,
         } => render(&job, output, overwrite, threads, cli.quiet),
-        Command::Check { job } => check(&job),
+        Command::Check {
+            job,
+            output,
+            overwrite,
+        } => check(&job, output, overwrite, cli.quiet),
         Command::Verify { folder } => verify(&folder),
     };
     match outcome {
@@ -85,13 +96,13 @@ fn render(
     path: &std::path::Path,
     output: Option<PathBuf>,
     overwrite: bool,
-    threads: Option<usize>,
+    threads: Option<u16>,
     quiet: bool,
 ) -> dunereel::Result<()> {
     if let Some(n) = threads {
         // Only fails if a pool was built already, which cannot happen this early.
         let _ = rayon::ThreadPoolBuilder::new()
-            .num_threads(n.max(1))
+            .num_threads(usize::from(n))
             .build_global();
     }
     let job = job::load(path)?;
@@ -115,7 +126,7 @@ fn render(
     }
     if !quiet {
         println!(
-            "{}: {} frames ({} surveys, {} interpolated), {} files",
+            "{}: {} frames ({} surveys, {} interpolated), {} payload files",
             report.folder.display(),
             report.frames,
             report.survey_frames,
@@ -126,28 +137,54 @@ fn render(
     Ok(())
 }
 
-fn check(path: &std::path::Path) -> dunereel::Result<()> {
+fn check(
+    path: &std::path::Path,
+    output: Option<PathBuf>,
+    overwrite: bool,
+    quiet: bool,
+) -> dunereel::Result<()> {
     let job = job::load(path)?;
-    let report = dunereel::run::check_job(&job)?;
-    println!("{}: ok — {report}", path.display());
+    let opts = RunOptions {
+        overwrite,
+        output_folder: output,
+        progress: None,
+    };
+    let report = dunereel::run::check_job(&job, &opts)?;
+    if !quiet {
+        for w in &report.warnings {
+            eprintln!("warning: {w}");
+        }
+    }
+    println!("{}: ok — {}", path.display(), report.summary);
     Ok(())
 }
 
 fn verify(folder: &std::path::Path) -> dunereel::Result<()> {
     let report = dunereel::archive::verify(folder)?;
+    for f in &report.ignored {
+        println!("ignored: {f} (left by the operating system, not part of the record)");
+    }
     if report.is_intact() {
         println!(
-            "{}: intact — {} files match their checksums",
+            "{}: intact — {} payload files and {} tag files match their checksums",
             folder.display(),
-            report.checked
+            report.payload_checked,
+            report.tags_checked
         );
         return Ok(());
     }
-    for (what, list) in [
-        ("missing", &report.missing),
-        ("extra", &report.extra),
-        ("altered", &report.altered),
-    ] {
+    for f in &report.altered_tags {
+        println!("altered tag file: {f} (differs from its line in tagmanifest-sha256.txt)");
+    }
+    let payload_word = if report.manifest_edited() {
+        "differs from its line in the edited manifest-sha256.txt (the line or the file changed)"
+    } else {
+        "altered (differs from its line in manifest-sha256.txt)"
+    };
+    for f in &report.altered {
+        println!("{f}: {payload_word}");
+    }
+    for (what, list) in [("missing", &report.missing), ("extra", &report.extra)] {
         for f in list {
             println!("{what}: {f}");
         }
@@ -158,11 +195,12 @@ fn verify(folder: &std::path::Path) -> dunereel::Result<()> {
     Err(dunereel::Error::input(
         folder,
         format!(
-            "the archive does not match its manifests ({} missing, {} extra, {} altered, {} other problems); \
-             restore the listed files from a trusted copy",
+            "the archive does not match its manifests ({} missing, {} extra, {} altered, {} altered tag files, \
+             {} other problems); restore missing or altered files from a trusted copy and move extra files out",
             report.missing.len(),
             report.extra.len(),
             report.altered.len(),
+            report.altered_tags.len(),
             report.problems.len()
         ),
     ))

@@ -33,7 +33,17 @@ pub(super) fn write_outputs(
         drape,
         mut warnings,
     } = prepared;
-    std::fs::create_dir_all(scratch).map_err(|e| Error::io(scratch, e))?;
+    std::fs::create_dir_all(scratch).map_err(|e| {
+        // The working folder is an implementation detail; name the folder the user chose.
+        let parent = scratch.parent().unwrap_or(Path::new("."));
+        Error::output(
+            folder,
+            format!(
+                "cannot write in {} ({e}); choose an output folder where you may write (output.folder or --output)",
+                parent.display()
+            ),
+        )
+    })?;
     let unit = job.change.display_unit;
     let mut extra = vec![ExtraFile {
         name: "job/job.yaml".into(),
@@ -191,6 +201,7 @@ pub(super) fn write_outputs(
         &ArchiveOptions {
             overwrite,
             bagging_date: None,
+            protected: super::protected(job),
         },
     )?;
     warnings.dedup();
