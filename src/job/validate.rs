@@ -638,11 +638,18 @@ mod tests {
 
     #[test]
     fn impossible_and_disordered_dates() {
+        // Check: Gregorian calendar — February 2031 has 28 days (2031 is not a leap year); common practice
         let e = err(&MINIMAL.replace("2032-05-01", "2031-02-30"));
         assert!(
             e.contains("surveys[1].date")
-                && e.contains("not a calendar date")
-                && e.contains("YYYY-MM-DD"),
+                && e.contains("February 2031 has 28 days, so day 30 does not exist"),
+            "{e}"
+        );
+        let e = err(&MINIMAL.replace("2032-05-01", "2031-13-01"));
+        assert!(e.contains("there is no month 13"), "{e}");
+        let e = err(&MINIMAL.replace("2032-05-01", "1 May 2032"));
+        assert!(
+            e.contains("not a calendar date") && e.contains("YYYY-MM-DD"),
             "{e}"
         );
         let e = err(&MINIMAL.replace("2032-05-01", "2029-05-01"));

@@ -16,6 +16,8 @@ mod scratch;
 
 use std::path::{Path, PathBuf};
 
+use rayon::prelude::*;
+
 use crate::align::{self, AlignedStack};
 use crate::archive::{self, Protected};
 use crate::change::{self, ChangeRecord};
@@ -183,12 +185,18 @@ fn prepare(job: &Job) -> Result<Prepared> {
 
     // The displacement field of every consecutive pair: the morph needs it, and the record reports
     // the dominant displacement as the migration of the landform.
+    // Pairs are independent, so they are estimated side by side (each also uses rayon inside);
+    // results come back in pair order, so the output does not depend on the thread count.
     let cell_m = stack.geometry().cell_x_m();
+    let estimated: Vec<FlowResult> = (0..stack.len() - 1)
+        .into_par_iter()
+        .map(|i| {
+            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE)
+        })
+        .collect();
     let mut fields = Vec::with_capacity(stack.len() - 1);
-    for i in 0..stack.len() - 1 {
+    for (i, result) in estimated.into_iter().enumerate() {
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
-        let result =
-            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE);
         let pair = record
             .pairs
             .iter_mut()
