@@ -49,6 +49,18 @@ enum Command {
         #[arg(long)]
         overwrite: bool,
     },
+    /// Draft a commented job file for survey grids (dates from the file names or the TIFF DateTime tag).
+    New {
+        /// The survey GeoTIFFs, in any order.
+        #[arg(required = true)]
+        grids: Vec<PathBuf>,
+        /// The job file to write.
+        #[arg(short = 'o', long = "output", value_name = "JOB.yaml")]
+        output: PathBuf,
+        /// Replace the job file if it exists.
+        #[arg(long)]
+        overwrite: bool,
+    },
     /// Check an output folder against its SHA-256 manifests: missing, extra or altered files.
     Verify {
         /// The output (archive) folder of a run.
@@ -82,6 +94,11 @@ fn main() -> ExitCode {
             overwrite,
         } => check(&job, output, overwrite, cli.quiet),
         Command::Verify { folder } => verify(&folder),
+        Command::New {
+            grids,
+            output,
+            overwrite,
+        } => new_job(&grids, &output, overwrite),
     };
     match outcome {
         Ok(()) => ExitCode::from(exit::OK),
@@ -156,6 +173,23 @@ fn check(
         }
     }
     println!("{}: ok — {}", path.display(), report.summary);
+    Ok(())
+}
+
+fn new_job(grids: &[PathBuf], job: &std::path::Path, overwrite: bool) -> dunereel::Result<()> {
+    use std::io::Write;
+    dunereel::encode::atomic::check_target(job, overwrite)?;
+    let text = job::draft::draft(grids, job)?;
+    dunereel::encode::atomic::write_atomic(job, overwrite, |f| {
+        f.write_all(text.as_bytes())
+            .map_err(|e| dunereel::Error::io(job, e))
+    })?;
+    println!(
+        "{}: a job for {} surveys; check it with `dunereel check {}`",
+        job.display(),
+        grids.len(),
+        job.display()
+    );
     Ok(())
 }
 

@@ -3,6 +3,7 @@
 //! `schema` mirrors the file for serde; `validate` applies defaults, resolves paths against the job
 //! file's folder, parses dates and checks every range. Nothing after this stage reads YAML again.
 
+pub mod draft;
 pub(crate) mod length;
 mod schema;
 mod validate;
