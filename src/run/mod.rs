@@ -9,9 +9,11 @@
 //! - `frames.rs`: one frame — its surface, shell, colouring, render and labels.
 //! - `outputs.rs`: the loop over frames and every file of the run.
 //! - `scratch.rs`: hidden working folders beside the output, and clearing those of killed runs.
+//! - `parts.rs`: a job split over a cluster (`render --part K/N`) and put together (`assemble`).
 
 mod frames;
 mod outputs;
+pub mod parts;
 mod scratch;
 
 use std::path::{Path, PathBuf};
@@ -77,12 +79,37 @@ pub fn run_job(job: &Job, opts: &RunOptions) -> Result<RunReport> {
     let prepared = prepare(job)?;
     let cleared = scratch::clear_stale(&folder);
     let scratch = scratch::scratch_path(&folder);
-    let result = outputs::write_outputs(job, prepared, &scratch, &folder, overwrite, opts);
+    let result = outputs::write_outputs(
+        job,
+        prepared,
+        &scratch,
+        &folder,
+        overwrite,
+        opts,
+        FrameSource::Render,
+    );
     let _ = std::fs::remove_dir_all(&scratch);
     result.map(|mut report| {
         report.warnings.extend(cleared);
         report
     })
+}
+
+/// Where the frames of a run come from: rendered here, or rendered by the parts of a split job.
+pub(super) enum FrameSource<'a> {
+    /// Render every frame in this process.
+    Render,
+    /// Decode every frame from the part folders (`assemble`).
+    Parts(&'a parts::Gathered),
+}
+
+/// How far along the orbit frame `index` of `total` stands, 0 to 1.
+pub(super) fn orbit_share(index: usize, total: usize) -> f64 {
+    if total > 1 {
+        index as f64 / (total - 1) as f64
+    } else {
+        0.0
+    }
 }
 
 /// The folder a run writes: `--output` if given, else the job's `output.folder`.
@@ -312,6 +339,37 @@ pub(super) fn effective_method(
         (Some(Method::Morph), Some(Some(_))) => Method::Morph,
         _ => Method::Linear,
     }
+}
+
+/// True when the job's output folder already holds a finished run of this very job: it verifies
+/// against its manifests, its copy of the job file has the same bytes, and the grids' SHA-256 in its
+/// survey table are those of the grids the job names now. Used by `render --skip-done`, so a
+/// campaign re-run resumes where it stopped. Any doubt (unreadable, different, missing) is `false`.
+pub fn is_done(job: &Job, opts: &RunOptions) -> bool {
+    let folder = output_folder(job, opts);
+    let intact = archive::verify(&folder).is_ok_and(|r| r.is_intact());
+    if !intact {
+        return false;
+    }
+    let same_job = std::fs::read(folder.join("data/job/job.yaml"))
+        .is_ok_and(|bytes| bytes == job.text.as_bytes());
+    let recorded: Option<Vec<String>> =
+        std::fs::read_to_string(folder.join("data/tables/surveys.json"))
+            .ok()
+            .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
+            .and_then(|v| {
+                v.as_array().map(|rows| {
+                    rows.iter()
+                        .map(|r| r["source_sha256"].as_str().unwrap_or("").to_string())
+                        .collect()
+                })
+            });
+    let now: Option<Vec<String>> = job
+        .surveys
+        .iter()
+        .map(|s| crate::change::record::sha256_file(&s.grid).ok())
+        .collect();
+    same_job && recorded.is_some() && recorded == now
 }
 
 /// What `check_job` found: a one-line summary and everything `render` would warn about.

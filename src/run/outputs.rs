@@ -12,7 +12,7 @@ use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
 
 use super::frames::Painter;
-use super::{effective_method, Prepared, RunOptions, RunReport};
+use super::{effective_method, orbit_share, FrameSource, Prepared, RunOptions, RunReport};
 use crate::job::Job;
 
 pub(super) fn write_outputs(
@@ -22,6 +22,7 @@ pub(super) fn write_outputs(
     folder: &Path,
     overwrite: bool,
     opts: &RunOptions,
+    source: FrameSource<'_>,
 ) -> Result<RunReport> {
     let Prepared {
         stack,
@@ -71,12 +72,12 @@ pub(super) fn write_outputs(
         None
     };
     for t in &timeline.frames {
-        let orbit = if n > 1 {
-            t.index as f64 / (n - 1) as f64
-        } else {
-            0.0
+        let peak_height = match &source {
+            FrameSource::Render => {
+                painter.paint(&mut renderer, t, orbit_share(t.index, n), &mut frame)
+            }
+            FrameSource::Parts(gathered) => gathered.load(t.index, &mut frame)?,
         };
-        let peak_height = painter.paint(&mut renderer, t, orbit, &mut frame);
         if let Some((seq, _)) = png.as_mut() {
             let row = png_seq::IndexRow {
                 time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
