@@ -135,7 +135,7 @@ fn main() -> ExitCode {
             grids,
             output,
             overwrite,
-        } => new_job(&grids, &output, overwrite),
+        } => new_job(&grids, &output, overwrite, cli.quiet),
     };
     match outcome {
         Ok(()) => ExitCode::from(exit::OK),
@@ -365,7 +365,12 @@ fn check(
     Ok(())
 }
 
-fn new_job(grids: &[PathBuf], job: &std::path::Path, overwrite: bool) -> dunereel::Result<()> {
+fn new_job(
+    grids: &[PathBuf],
+    job: &std::path::Path,
+    overwrite: bool,
+    quiet: bool,
+) -> dunereel::Result<()> {
     use std::io::Write;
     dunereel::encode::atomic::check_target(job, overwrite)?;
     let text = job::draft::draft(grids, job)?;
@@ -373,6 +378,9 @@ fn new_job(grids: &[PathBuf], job: &std::path::Path, overwrite: bool) -> duneree
         f.write_all(text.as_bytes())
             .map_err(|e| dunereel::Error::io(job, e))
     })?;
+    if quiet {
+        return Ok(());
+    }
     println!(
         "{}: a job for {} surveys; check it with `dunereel check {}`",
         job.display(),
