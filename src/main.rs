@@ -288,39 +288,10 @@ fn print_warnings(warnings: &[String], quiet: bool) {
     }
 }
 
-/// Part K of N from a Slurm job array: K = (task id − min) / step + 1, N = task count (the CLI, not
-/// the library, reads the environment).
+/// Part K of N from the Slurm job-array variables of this process.
 fn slurm_part() -> dunereel::Result<PartSpec> {
-    let var = |name: &str| -> dunereel::Result<usize> {
-        let v = std::env::var(name).map_err(|_| {
-            dunereel::Error::job(
-                std::path::Path::new("--part slurm"),
-                name,
-                "is not set: run inside an `sbatch --array` job, or give the part as --part K/N",
-            )
-        })?;
-        v.trim().parse().map_err(|_| {
-            dunereel::Error::job(
-                std::path::Path::new("--part slurm"),
-                name,
-                format!("{v:?} is not a whole number"),
-            )
-        })
-    };
-    let (id, min, count) = (
-        var("SLURM_ARRAY_TASK_ID")?,
-        var("SLURM_ARRAY_TASK_MIN")?,
-        var("SLURM_ARRAY_TASK_COUNT")?,
-    );
-    let step = var("SLURM_ARRAY_TASK_STEP").unwrap_or(1).max(1);
-    let k = id.checked_sub(min).map(|d| d / step + 1).unwrap_or(0);
-    PartSpec::new(k, count).map_err(|m| {
-        dunereel::Error::job(
-            std::path::Path::new("--part slurm"),
-            "SLURM_ARRAY_TASK_ID",
-            m,
-        )
-    })
+    PartSpec::from_slurm(|name| std::env::var(name).ok())
+        .map_err(|(var, m)| dunereel::Error::job(std::path::Path::new("--part slurm"), var, m))
 }
 
 fn assemble(
@@ -392,8 +363,8 @@ fn new_job(
 
 fn verify(folder: &std::path::Path) -> dunereel::Result<()> {
     let report = dunereel::archive::verify(folder)?;
-    for f in &report.ignored {
-        println!("ignored: {f} (left by the operating system, not part of the record)");
+    for line in report.lines() {
+        println!("{line}");
     }
     if report.is_intact() {
         println!(
@@ -404,37 +375,7 @@ fn verify(folder: &std::path::Path) -> dunereel::Result<()> {
         );
         return Ok(());
     }
-    for f in &report.altered_tags {
-        println!("altered tag file: {f} (differs from its line in tagmanifest-sha256.txt)");
-    }
-    let payload_word = if report.manifest_edited() {
-        "differs from its line in the edited manifest-sha256.txt (the line or the file changed)"
-    } else {
-        "altered (differs from its line in manifest-sha256.txt)"
-    };
-    for f in &report.altered {
-        println!("{f}: {payload_word}");
-    }
-    for (what, list) in [("missing", &report.missing), ("extra", &report.extra)] {
-        for f in list {
-            println!("{what}: {f}");
-        }
-    }
-    for p in &report.problems {
-        println!("problem: {p}");
-    }
-    Err(dunereel::Error::input(
-        folder,
-        format!(
-            "the archive does not match its manifests ({} missing, {} extra, {} altered, {} altered tag files, \
-             {} other problems); restore missing or altered files from a trusted copy and move extra files out",
-            report.missing.len(),
-            report.extra.len(),
-            report.altered.len(),
-            report.altered_tags.len(),
-            report.problems.len()
-        ),
-    ))
+    Err(dunereel::Error::input(folder, report.summary()))
 }
 
 /// A progress bar on standard error; hidden when that is not a terminal or when quiet.

@@ -180,6 +180,45 @@ impl VerifyReport {
     pub fn manifest_edited(&self) -> bool {
         self.altered_tags.iter().any(|t| t == MANIFEST)
     }
+
+    /// One line per finding, for people: ignored litter, altered tag files, altered, missing and
+    /// extra files, other problems.
+    pub fn lines(&self) -> Vec<String> {
+        let mut out: Vec<String> = self
+            .ignored
+            .iter()
+            .map(|f| format!("ignored: {f} (left by the operating system, not part of the record)"))
+            .collect();
+        out.extend(
+            self.altered_tags.iter().map(|f| {
+                format!("altered tag file: {f} (differs from its line in {TAG_MANIFEST})")
+            }),
+        );
+        let how = if self.manifest_edited() {
+            format!("differs from its line in the edited {MANIFEST} (the line or the file changed)")
+        } else {
+            format!("altered (differs from its line in {MANIFEST})")
+        };
+        out.extend(self.altered.iter().map(|f| format!("{f}: {how}")));
+        out.extend(self.missing.iter().map(|f| format!("missing: {f}")));
+        out.extend(self.extra.iter().map(|f| format!("extra: {f}")));
+        out.extend(self.problems.iter().map(|p| format!("problem: {p}")));
+        out
+    }
+
+    /// The verdict in one sentence with the fix, for a bag that is not intact.
+    pub fn summary(&self) -> String {
+        format!(
+            "the archive does not match its manifests ({} missing, {} extra, {} altered, {} altered tag \
+             files, {} other problems); restore missing or altered files from a trusted copy and move \
+             extra files out",
+            self.missing.len(),
+            self.extra.len(),
+            self.altered.len(),
+            self.altered_tags.len(),
+            self.problems.len()
+        )
+    }
 }
 
 /// Parses manifest text into path -> checksum; malformed lines go to `problems`.

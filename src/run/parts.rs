@@ -69,6 +69,36 @@ impl PartSpec {
         PartSpec::new(k, n)
     }
 
+    /// The part a Slurm job-array task stands for: K = (SLURM_ARRAY_TASK_ID − SLURM_ARRAY_TASK_MIN) /
+    /// SLURM_ARRAY_TASK_STEP + 1 and N = SLURM_ARRAY_TASK_COUNT (REFERENCES.md §16; from memory for
+    /// the variable names, confirmed on a real one-node cluster by tests/slurm). `var` looks a
+    /// variable up (the CLI passes the environment; the library never reads it).
+    ///
+    /// # Errors
+    /// The variable at fault and a message: missing, not a whole number, or an impossible part.
+    pub fn from_slurm(
+        var: impl Fn(&str) -> Option<String>,
+    ) -> std::result::Result<Self, (&'static str, String)> {
+        let get = |name: &'static str| -> std::result::Result<usize, (&'static str, String)> {
+            let v = var(name).ok_or((
+                name,
+                "is not set: run inside an `sbatch --array` job, or give the part as --part K/N"
+                    .to_string(),
+            ))?;
+            v.trim()
+                .parse()
+                .map_err(|_| (name, format!("{v:?} is not a whole number")))
+        };
+        let (id, min, count) = (
+            get("SLURM_ARRAY_TASK_ID")?,
+            get("SLURM_ARRAY_TASK_MIN")?,
+            get("SLURM_ARRAY_TASK_COUNT")?,
+        );
+        let step = get("SLURM_ARRAY_TASK_STEP").unwrap_or(1).max(1);
+        let k = id.checked_sub(min).map_or(0, |d| d / step + 1);
+        PartSpec::new(k, count).map_err(|m| ("SLURM_ARRAY_TASK_ID", m))
+    }
+
     /// The frames of this part among `total`: see the module doc.
     pub fn frames(&self, total: usize) -> Range<usize> {
         (self.k - 1) * total / self.n..self.k * total / self.n
@@ -453,6 +483,19 @@ mod tests {
             .unwrap_err()
             .contains("does not exist"));
         assert!(PartSpec::parse("two").unwrap_err().contains("K/N"));
+        // An array --array=10-20:5 has tasks 10, 15, 20: task 15 is part 2 of 3.
+        let vars = |name: &str| match name {
+            "SLURM_ARRAY_TASK_ID" => Some("15".to_string()),
+            "SLURM_ARRAY_TASK_MIN" => Some("10".to_string()),
+            "SLURM_ARRAY_TASK_COUNT" => Some("3".to_string()),
+            "SLURM_ARRAY_TASK_STEP" => Some("5".to_string()),
+            _ => None,
+        };
+        assert_eq!(PartSpec::from_slurm(vars).unwrap(), PartSpec { k: 2, n: 3 });
+        assert_eq!(
+            PartSpec::from_slurm(|_| None).unwrap_err().0,
+            "SLURM_ARRAY_TASK_ID"
+        );
         assert_eq!(
             parts_folder(Path::new("/a/out/site")),
             PathBuf::from("/a/out/site.parts")
