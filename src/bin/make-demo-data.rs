@@ -685,6 +685,7 @@ fn generate(out_dir: &Path, force: bool) -> Result<Vec<PathBuf>, String> {
                 "elevation (m), {}, {}, sigma {:.2} m",
                 spec.date, spec.sensor, spec.sigma_z_m
             )],
+            ..Default::default()
         };
         write_bands(&targets[k], &geometry, &[grid], &opts).map_err(|e| e.to_string())?;
     }

@@ -180,6 +180,7 @@ pub(super) fn write_outputs(
                 "east displacement (m)".into(),
                 "north displacement (m)".into(),
             ],
+            effort: geotiff::Effort::Fast,
         };
         geotiff::write_bands(
             &path,
