@@ -33,7 +33,10 @@ pub(super) fn write_outputs(
         shell_grid,
         drape,
         mut warnings,
+        timings,
     } = prepared;
+    let mut clock = super::Stopwatch::start();
+    clock.laps = timings;
     std::fs::create_dir_all(scratch).map_err(|e| {
         // The working folder is an implementation detail; name the folder the user chose.
         let parent = scratch.parent().unwrap_or(Path::new("."));
@@ -105,6 +108,7 @@ pub(super) fn write_outputs(
             cb(t.index + 1, n);
         }
     }
+    clock.lap("frames: surface, render, labels, PNG");
     if let Some((seq, dir)) = png {
         seq.finish()?;
         extra.extend(files_under(&dir, "frames")?);
@@ -124,6 +128,7 @@ pub(super) fn write_outputs(
             stats.mean_colour_error
         );
         drop(kept);
+        clock.lap("GIF");
         extra.push(ExtraFile {
             name: format!("animation/{name}"),
             content: ExtraContent::File(path),
@@ -166,6 +171,7 @@ pub(super) fn write_outputs(
             name: "poster.png".into(),
             content: ExtraContent::File(path),
         });
+        clock.lap("poster");
     }
     // The displacement fields as two-band rasters (east, north in metres), for the record.
     for (i, f) in fields.iter().enumerate() {
@@ -194,7 +200,9 @@ pub(super) fn write_outputs(
         });
     }
 
+    clock.lap("displacement rasters");
     let figures = change::figures(&stack, &record, &job.change);
+    clock.lap("maps and charts");
     let archive = archive::write_archive(
         folder,
         &record,
@@ -206,6 +214,7 @@ pub(super) fn write_outputs(
             protected: super::protected(job),
         },
     )?;
+    clock.lap("archive and checksums");
     warnings.dedup();
     Ok(RunReport {
         folder: archive.dir,
@@ -217,6 +226,7 @@ pub(super) fn write_outputs(
             .count(),
         files: archive.payload_files,
         warnings,
+        timings: clock.laps,
     })
 }
 
