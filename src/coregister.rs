@@ -690,7 +690,11 @@ pub fn coregister(
         } else {
             (0.0, 0.0)
         };
-        let dz = if r.applied_vertical { e.vertical_m } else { 0.0 };
+        let dz = if r.applied_vertical {
+            e.vertical_m
+        } else {
+            0.0
+        };
         if de != 0.0 || dn != 0.0 || dz != 0.0 {
             let unit = g.horizontal_unit.metres();
             let mut z = if de != 0.0 || dn != 0.0 {

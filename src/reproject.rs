@@ -57,7 +57,8 @@ pub fn projected_crs(epsg: u32) -> Result<(Proj, &'static str), String> {
         )
     };
     let code = u16::try_from(epsg).map_err(|_| refuse("is not a CRS this program knows"))?;
-    let def = crs_definitions::from_code(code).ok_or_else(|| refuse("is not a CRS this program knows"))?;
+    let def = crs_definitions::from_code(code)
+        .ok_or_else(|| refuse("is not a CRS this program knows"))?;
     let proj = Proj::from_proj_string(def.proj4)
         .map_err(|e| refuse(&format!("cannot be used by the projection library ({e})")))?;
     if proj.is_latlong() {
@@ -70,7 +71,9 @@ pub fn projected_crs(epsg: u32) -> Result<(Proj, &'static str), String> {
 fn datum_of(def: &str) -> String {
     let mut parts: Vec<&str> = def
         .split_whitespace()
-        .filter(|p| p.starts_with("+datum=") || p.starts_with("+ellps=") || p.starts_with("+towgs84="))
+        .filter(|p| {
+            p.starts_with("+datum=") || p.starts_with("+ellps=") || p.starts_with("+towgs84=")
+        })
         .collect();
     parts.sort_unstable();
     parts.join(" ")
@@ -90,7 +93,9 @@ fn point(src: &Proj, dst: &Proj, x: f64, y: f64) -> Option<(f64, f64)> {
 pub fn transform_point(from_epsg: u32, to_epsg: u32, x: f64, y: f64) -> Result<(f64, f64), String> {
     let (from, _) = projected_crs(from_epsg)?;
     let (to, _) = projected_crs(to_epsg)?;
-    point(&from, &to, x, y).ok_or_else(|| format!("({x}, {y}) cannot be transformed from EPSG:{from_epsg} to EPSG:{to_epsg}"))
+    point(&from, &to, x, y).ok_or_else(|| {
+        format!("({x}, {y}) cannot be transformed from EPSG:{from_epsg} to EPSG:{to_epsg}")
+    })
 }
 
 /// Samples `src` (in CRS `src_epsg`) at every cell centre of `target` (in `target.epsg`).
@@ -130,12 +135,26 @@ pub fn reproject(src: &Grid, target: &GridGeometry) -> Result<(Array2<f32>, Repr
         .collect();
     let nc = node_c.len();
     let interpolate = |r: usize, c: usize| -> (f64, f64) {
-        let i = node_r.partition_point(|&v| v <= r).saturating_sub(1).min(node_r.len().saturating_sub(2));
-        let j = node_c.partition_point(|&v| v <= c).saturating_sub(1).min(nc.saturating_sub(2));
+        let i = node_r
+            .partition_point(|&v| v <= r)
+            .saturating_sub(1)
+            .min(node_r.len().saturating_sub(2));
+        let j = node_c
+            .partition_point(|&v| v <= c)
+            .saturating_sub(1)
+            .min(nc.saturating_sub(2));
         let (r0, r1) = (node_r[i], node_r[(i + 1).min(node_r.len() - 1)]);
         let (c0, c1) = (node_c[j], node_c[(j + 1).min(nc - 1)]);
-        let fr = if r1 > r0 { (r - r0) as f64 / (r1 - r0) as f64 } else { 0.0 };
-        let fc = if c1 > c0 { (c - c0) as f64 / (c1 - c0) as f64 } else { 0.0 };
+        let fr = if r1 > r0 {
+            (r - r0) as f64 / (r1 - r0) as f64
+        } else {
+            0.0
+        };
+        let fc = if c1 > c0 {
+            (c - c0) as f64 / (c1 - c0) as f64
+        } else {
+            0.0
+        };
         let at = |a: usize, b: usize| lattice[a * nc + b];
         let i1 = (i + 1).min(node_r.len() - 1);
         let j1 = (j + 1).min(nc - 1);
@@ -143,7 +162,10 @@ pub fn reproject(src: &Grid, target: &GridGeometry) -> Result<(Array2<f32>, Repr
         let mix = |a: f64, b: f64, c: f64, d: f64| {
             (1.0 - fr) * ((1.0 - fc) * a + fc * b) + fr * ((1.0 - fc) * c + fc * d)
         };
-        (mix(p00.0, p01.0, p10.0, p11.0), mix(p00.1, p01.1, p10.1, p11.1))
+        (
+            mix(p00.0, p01.0, p10.0, p11.0),
+            mix(p00.1, p01.1, p10.1, p11.1),
+        )
     };
     // Measure the lattice's error at the centre of every block.
     let cell = src.geometry.cell_x.min(src.geometry.cell_y);
@@ -154,7 +176,11 @@ pub fn reproject(src: &Grid, target: &GridGeometry) -> Result<(Array2<f32>, Repr
             let (ex, ey) = exact(r as f64, c as f64);
             let (ix, iy) = interpolate(r, c);
             let e = (ex - ix).hypot(ey - iy) / cell;
-            worst = if e.is_nan() { f64::INFINITY } else { worst.max(e) };
+            worst = if e.is_nan() {
+                f64::INFINITY
+            } else {
+                worst.max(e)
+            };
         }
     }
     let use_lattice = worst <= MAX_LATTICE_ERROR_CELLS;
@@ -172,7 +198,11 @@ pub fn reproject(src: &Grid, target: &GridGeometry) -> Result<(Array2<f32>, Repr
                         .min(node_r.len().saturating_sub(2));
                     let i1 = (i + 1).min(node_r.len() - 1);
                     let (r0, r1) = (node_r[i], node_r[i1]);
-                    let fr = if r1 > r0 { (r - r0) as f64 / (r1 - r0) as f64 } else { 0.0 };
+                    let fr = if r1 > r0 {
+                        (r - r0) as f64 / (r1 - r0) as f64
+                    } else {
+                        0.0
+                    };
                     for (j, n) in column_nodes.iter_mut().enumerate() {
                         let (a, b) = (lattice[i * nc + j], lattice[i1 * nc + j]);
                         *n = (a.0 + fr * (b.0 - a.0), a.1 + fr * (b.1 - a.1));
@@ -183,7 +213,11 @@ pub fn reproject(src: &Grid, target: &GridGeometry) -> Result<(Array2<f32>, Repr
                         let j = (c / LATTICE_CELLS).min(nc.saturating_sub(2));
                         let j1 = (j + 1).min(nc - 1);
                         let (c0, c1) = (node_c[j], node_c[j1]);
-                        let fc = if c1 > c0 { (c - c0) as f64 / (c1 - c0) as f64 } else { 0.0 };
+                        let fc = if c1 > c0 {
+                            (c - c0) as f64 / (c1 - c0) as f64
+                        } else {
+                            0.0
+                        };
                         let (a, b) = (column_nodes[j], column_nodes[j1]);
                         (a.0 + fc * (b.0 - a.0), a.1 + fc * (b.1 - a.1))
                     } else {
@@ -236,9 +270,33 @@ mod tests {
         // Check: PROJ (GDAL 3.10.3 in rasterio 1.4.4), REFERENCES.md §13 — library run, not here;
         // tolerance 1 mm in metres / 0.005 US ft (the sheet gives four decimals)
         let cases = [
-            (32631, 32630, 500_000.0, 5_800_000.0, 908_490.3304, 5_816_961.7269, 0.001),
-            (32618, 32617, 400_000.0, 4_100_000.0, 933_716.7011, 4_110_540.2459, 0.001),
-            (32618, 2264, 400_000.0, 4_100_000.0, 2_839_481.4248, 1_210_065.5133, 0.005),
+            (
+                32631,
+                32630,
+                500_000.0,
+                5_800_000.0,
+                908_490.3304,
+                5_816_961.7269,
+                0.001,
+            ),
+            (
+                32618,
+                32617,
+                400_000.0,
+                4_100_000.0,
+                933_716.7011,
+                4_110_540.2459,
+                0.001,
+            ),
+            (
+                32618,
+                2264,
+                400_000.0,
+                4_100_000.0,
+                2_839_481.4248,
+                1_210_065.5133,
+                0.005,
+            ),
         ];
         for (from, to, x, y, ex, ey, tol) in cases {
             let (gx, gy) = transform_point(from, to, x, y).unwrap();
@@ -251,7 +309,10 @@ mod tests {
         // transformation; proj4rs passes through geocentric coordinates between the WGS 84 and
         // GRS80 ellipsoids and lands 0.11 mm away, so the tolerance here is 1 mm
         let (gx, gy) = transform_point(32618, 26918, 400_000.0, 4_100_000.0).unwrap();
-        assert!((gx - 400_000.0).abs() < 1e-3 && (gy - 4_100_000.0).abs() < 1e-3, "({gx}, {gy})");
+        assert!(
+            (gx - 400_000.0).abs() < 1e-3 && (gy - 4_100_000.0).abs() < 1e-3,
+            "({gx}, {gy})"
+        );
     }
 
     #[test]
@@ -263,7 +324,10 @@ mod tests {
 
     #[test]
     fn datum_parts() {
-        assert_eq!(datum_of("+proj=utm +zone=18 +datum=WGS84 +units=m"), "+datum=WGS84");
+        assert_eq!(
+            datum_of("+proj=utm +zone=18 +datum=WGS84 +units=m"),
+            "+datum=WGS84"
+        );
         assert_ne!(
             datum_of("+proj=utm +zone=18 +datum=NAD83 +units=m"),
             datum_of("+proj=utm +zone=18 +datum=WGS84 +units=m")

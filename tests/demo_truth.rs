@@ -67,7 +67,9 @@ fn demo_record_matches_the_generator_truth() {
             .as_array()
             .unwrap()
             .iter()
-            .find(|l| l["from_id"] == p["from_id"] && l["to_id"] == p["to_id"] && l["landform_id"] == "1")
+            .find(|l| {
+                l["from_id"] == p["from_id"] && l["to_id"] == p["to_id"] && l["landform_id"] == "1"
+            })
             .expect("a landform row for the main dune");
         let (te, tn) = (f(&t["crest_shift_east_m"]), f(&t["crest_shift_north_m"]));
         let rate = f(&main["migration_rate_m_per_yr"]);

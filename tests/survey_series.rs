@@ -31,6 +31,9 @@ fn survey(k: usize, z: Array2<f32>) -> Survey {
             compression: "none".into(),
             nodata: None,
             vertical_unit: LinearUnit::Metre,
+            vertical_unit_source: dunereel::grid::UnitSource::File,
+            horizontal_unit: LinearUnit::Metre,
+            horizontal_unit_source: dunereel::grid::UnitSource::File,
             pixel_is_point: false,
         },
     }
@@ -71,7 +74,10 @@ fn co_registration_recovers_the_offset_and_the_volume() {
     assert!((r.vertical_m - OFFSET.2).abs() < 0.02, "{r:?}");
     assert!(r.applied_horizontal && r.applied_vertical, "{r:?}");
     assert!(r.stable_area_m2 > 30_000.0, "{r:?}");
-    assert!(r.horizontal_sigma_m > 0.0 && r.horizontal_sigma_m < 0.05, "{r:?}");
+    assert!(
+        r.horizontal_sigma_m > 0.0 && r.horizontal_sigma_m < 0.05,
+        "{r:?}"
+    );
     let after = change::record(&shifted, &opts).unwrap().pairs[0].net_volume_raw_m3;
     eprintln!("recovered {r:?}; net volume {after} m3 vs unshifted {want} m3");
     // Check: analytic — a 0.20 m bias over 65 536 m² adds about 13 100 m³ of false deposition
@@ -85,7 +91,10 @@ fn co_registration_recovers_the_offset_and_the_volume() {
     // The dune lost a quarter of its height: 2π·H·σ² of the Gaussian, times -0.25.
     // Check: analytic — Gaussian mound volume 2π·A·σ², REFERENCES.md §6
     let model = -2.0 * std::f64::consts::PI * 2.5 * 16.0 * 16.0;
-    assert!((want - model).abs() < 0.05 * model.abs(), "{want} vs {model}");
+    assert!(
+        (want - model).abs() < 0.05 * model.abs(),
+        "{want} vs {model}"
+    );
 }
 
 #[test]
@@ -113,7 +122,11 @@ fn turned_off_or_without_stable_ground_nothing_changes() {
         &lods(&opts),
         &CoregOptions::default(),
     );
-    assert!(regs[1].status.contains("stable cells"), "{}", regs[1].status);
+    assert!(
+        regs[1].status.contains("stable cells"),
+        "{}",
+        regs[1].status
+    );
     assert!(!regs[1].applied_vertical);
     assert_eq!(shifted.z(1), &z1);
 }
@@ -126,7 +139,12 @@ fn given_polygons_are_used() {
     // The western third (the fixed ridge) and the south-east corner (the knoll), in CRS units.
     let (x0, y0) = (g.origin_x, g.origin_y);
     let polys = vec![
-        vec![[x0, y0], [x0 + 80.0, y0], [x0 + 80.0, y0 - 256.0], [x0, y0 - 256.0]],
+        vec![
+            [x0, y0],
+            [x0 + 80.0, y0],
+            [x0 + 80.0, y0 - 256.0],
+            [x0, y0 - 256.0],
+        ],
         vec![
             [x0 + 170.0, y0 - 170.0],
             [x0 + 256.0, y0 - 170.0],
@@ -143,7 +161,10 @@ fn given_polygons_are_used() {
     );
     let r = &regs[1];
     // Check: Nuth & Kääb (2011) — same bounds as above, on the ground the job names
-    assert!((r.east_m - OFFSET.0).hypot(r.north_m - OFFSET.1) < 0.1, "{r:?}");
+    assert!(
+        (r.east_m - OFFSET.0).hypot(r.north_m - OFFSET.1) < 0.1,
+        "{r:?}"
+    );
     assert!((r.vertical_m - OFFSET.2).abs() < 0.02, "{r:?}");
     assert!(r.stable_area_m2 <= 80.0 * 256.0 + 86.0 * 86.0 + 1.0);
 }
@@ -158,17 +179,25 @@ fn migration_follows_each_moving_dune() {
     assert_eq!(rows.len(), 3, "{rows:#?}");
     for (row, dune) in rows.iter().zip(SERIES_DUNES) {
         let (e, n) = dune.shift();
-        let (ge, gn) = (row.migration_east_m.unwrap(), row.migration_north_m.unwrap());
+        let (ge, gn) = (
+            row.migration_east_m.unwrap(),
+            row.migration_north_m.unwrap(),
+        );
         // Check: generator truth (analytic translation) — within 0.5 m and 2° (issue acceptance)
         assert!((ge - e).hypot(gn - n) < 0.5, "{row:?} vs ({e}, {n})");
         let az = row.migration_azimuth_deg.unwrap();
-        assert!((az - dune.azimuth_deg).abs() < 2.0, "{az} vs {}", dune.azimuth_deg);
+        assert!(
+            (az - dune.azimuth_deg).abs() < 2.0,
+            "{az} vs {}",
+            dune.azimuth_deg
+        );
         // The centroid of the detected change lies between the dune's two positions.
         let g = truth.geometry();
         let mid_x = g.origin_x + dune.start.0 + 0.5 * e;
         let mid_y = g.origin_y - dune.start.1 + 0.5 * n;
         assert!(
-            (row.centroid_x_crs - mid_x).hypot(row.centroid_y_crs - mid_y) < 0.5 * dune.sigma_m + 2.0,
+            (row.centroid_x_crs - mid_x).hypot(row.centroid_y_crs - mid_y)
+                < 0.5 * dune.sigma_m + 2.0,
             "{row:?}"
         );
     }
@@ -199,13 +228,19 @@ fn run_tables(job_path: &std::path::Path) -> Vec<(String, String)> {
         },
     )
     .unwrap();
-    ["surveys.csv", "surveys.json", "pairs.csv", "landforms.csv", "landforms.json"]
-        .iter()
-        .map(|n| {
-            let text = std::fs::read_to_string(out.join("data/tables").join(n)).unwrap();
-            (n.to_string(), text)
-        })
-        .collect()
+    [
+        "surveys.csv",
+        "surveys.json",
+        "pairs.csv",
+        "landforms.csv",
+        "landforms.json",
+    ]
+    .iter()
+    .map(|n| {
+        let text = std::fs::read_to_string(out.join("data/tables").join(n)).unwrap();
+        (n.to_string(), text)
+    })
+    .collect()
 }
 
 #[test]
@@ -231,10 +266,10 @@ fn a_datum_offset_is_applied_and_recorded() {
     let plain = tables_of(d.path(), "");
     let d2 = tempfile::tempdir().unwrap();
     let job = common::moving_dune_job(d2.path(), "");
-    let text = std::fs::read_to_string(&job)
-        .unwrap()
-        .replace("grid: 2031-03-01.tif, sigma_z_m: 0.1 }", "grid: 2031-03-01.tif, sigma_z_m: 0.1, vertical_offset_m: -0.35 }")
-        + "coregister: false\n";
+    let text = std::fs::read_to_string(&job).unwrap().replace(
+        "grid: 2031-03-01.tif, sigma_z_m: 0.1 }",
+        "grid: 2031-03-01.tif, sigma_z_m: 0.1, vertical_offset_m: -0.35 }",
+    ) + "coregister: false\n";
     std::fs::write(&job, text).unwrap();
     let shifted = run_tables(&job);
     let json = |t: &str| -> serde_json::Value { serde_json::from_str(t).unwrap() };
@@ -242,9 +277,13 @@ fn a_datum_offset_is_applied_and_recorded() {
     assert_eq!(s[1]["vertical_offset_m"], -0.35);
     assert_eq!(s[0]["vertical_offset_m"], 0.0);
     // Check: analytic — adding −0.35 m to every cell lowers the mean elevation by 0.35 m
-    let dm = s[1]["mean_elevation_m"].as_f64().unwrap() - p[1]["mean_elevation_m"].as_f64().unwrap();
+    let dm =
+        s[1]["mean_elevation_m"].as_f64().unwrap() - p[1]["mean_elevation_m"].as_f64().unwrap();
     assert!((dm + 0.35).abs() < 1e-4, "{dm}");
-    assert!(s[1]["coreg_status"].as_str().unwrap().contains("turned off"));
+    assert!(s[1]["coreg_status"]
+        .as_str()
+        .unwrap()
+        .contains("turned off"));
 }
 
 #[test]
@@ -269,9 +308,17 @@ fn a_survey_in_us_survey_feet_of_another_crs_is_reprojected() {
         .map(|&(x, y)| transform_point(32618, 2264, x, y).unwrap())
         .collect();
     let min_x = corners.iter().map(|c| c.0).fold(f64::INFINITY, f64::min) - 30.0;
-    let max_x = corners.iter().map(|c| c.0).fold(f64::NEG_INFINITY, f64::max) + 30.0;
+    let max_x = corners
+        .iter()
+        .map(|c| c.0)
+        .fold(f64::NEG_INFINITY, f64::max)
+        + 30.0;
     let min_y = corners.iter().map(|c| c.1).fold(f64::INFINITY, f64::min) - 30.0;
-    let max_y = corners.iter().map(|c| c.1).fold(f64::NEG_INFINITY, f64::max) + 30.0;
+    let max_y = corners
+        .iter()
+        .map(|c| c.1)
+        .fold(f64::NEG_INFINITY, f64::max)
+        + 30.0;
     let feet = GridGeometry {
         cols: ((max_x - min_x) / 3.0).ceil() as usize,
         rows: ((max_y - min_y) / 3.0).ceil() as usize,
@@ -298,7 +345,9 @@ fn a_survey_in_us_survey_feet_of_another_crs_is_reprojected() {
     let mut second = survey(1, model(&feet, true));
     second.grid.geometry = feet.clone();
     let (stack, reports) = align::align_with_report(vec![first, second], None).unwrap();
-    let report = reports[1].as_ref().expect("the second survey was reprojected");
+    let report = reports[1]
+        .as_ref()
+        .expect("the second survey was reprojected");
     assert_eq!(report.source_crs, "EPSG:2264");
     assert!(report.datum_caution.as_deref().unwrap().contains("NAD83"));
     let truth = model(&base, true);

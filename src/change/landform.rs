@@ -145,7 +145,11 @@ pub(crate) fn box_sum(x: &[u32], rows: usize, cols: usize, r: usize) -> Vec<u32>
     for row in 0..rows {
         let (done, rest) = prefix.split_at_mut((row + 1) * cols);
         let above = &done[row * cols..];
-        for ((p, &a), &v) in rest[..cols].iter_mut().zip(above).zip(&h[row * cols..(row + 1) * cols]) {
+        for ((p, &a), &v) in rest[..cols]
+            .iter_mut()
+            .zip(above)
+            .zip(&h[row * cols..(row + 1) * cols])
+        {
             *p = a + v;
         }
     }
@@ -162,13 +166,7 @@ pub(crate) fn box_sum(x: &[u32], rows: usize, cols: usize, r: usize) -> Vec<u32>
 
 /// Regions of kept change, grown by `join_cells`, largest detected area first; `detected` is the
 /// change before speckle removal, counted inside each region.
-fn regions(
-    detected: &[bool],
-    kept: &[bool],
-    rows: usize,
-    cols: usize,
-    d: &Delimit,
-) -> Vec<Region> {
+fn regions(detected: &[bool], kept: &[bool], rows: usize, cols: usize, d: &Delimit) -> Vec<Region> {
     let as_u32: Vec<u32> = kept.iter().map(|&k| k as u32).collect();
     let grown: Vec<bool> = box_sum(&as_u32, rows, cols, d.join_cells)
         .into_iter()
@@ -249,8 +247,14 @@ fn region_migration(
     if cells.is_empty() || r1 >= rows || c1 >= cols {
         return Err("no region".into());
     }
-    let (r0, c0) = (r0.saturating_sub(MARGIN_CELLS), c0.saturating_sub(MARGIN_CELLS));
-    let (r1, c1) = ((r1 + MARGIN_CELLS).min(rows - 1), (c1 + MARGIN_CELLS).min(cols - 1));
+    let (r0, c0) = (
+        r0.saturating_sub(MARGIN_CELLS),
+        c0.saturating_sub(MARGIN_CELLS),
+    );
+    let (r1, c1) = (
+        (r1 + MARGIN_CELLS).min(rows - 1),
+        (c1 + MARGIN_CELLS).min(cols - 1),
+    );
     let (h, w) = (r1 - r0 + 1, c1 - c0 + 1);
     let mut inside = Array2::from_elem((h, w), false);
     for &k in cells {
@@ -366,7 +370,10 @@ pub fn landforms(
         .flat_map(|r| r.detected.iter().copied())
         .collect();
     let site = if found.is_empty() {
-        Err("no change beyond the level of detection: nothing moved that the surveys can show".into())
+        Err(
+            "no change beyond the level of detection: nothing moved that the surveys can show"
+                .into(),
+        )
     } else {
         region_migration(a, b, &all, plane, cell_m, flow_opts, max_side)
     };

@@ -39,7 +39,8 @@ fn median(mut v: Vec<Duration>) -> Duration {
 fn bench_reproject(n: usize) {
     // Target: EPSG:32631 near its western zone edge; source: the same ground in EPSG:32630.
     let target = geometry(n, 32631, 300_000.0, 5_800_000.0);
-    let (sx, sy) = dunereel::reproject::transform_point(32631, 32630, 300_000.0, 5_800_000.0).unwrap();
+    let (sx, sy) =
+        dunereel::reproject::transform_point(32631, 32630, 300_000.0, 5_800_000.0).unwrap();
     let m = n + n / 8;
     let src_g = geometry(m, 32630, sx - (n / 16) as f64, sy + (n / 16) as f64);
     let z = Array2::from_shape_fn((m, m), |(r, c)| relief(c as f64, r as f64));
@@ -78,6 +79,9 @@ fn survey(k: usize, g: &GridGeometry, z: Array2<f32>) -> Survey {
             compression: "none".into(),
             nodata: None,
             vertical_unit: LinearUnit::Metre,
+            vertical_unit_source: dunereel::grid::UnitSource::File,
+            horizontal_unit: LinearUnit::Metre,
+            horizontal_unit_source: dunereel::grid::UnitSource::File,
             pixel_is_point: false,
         },
     }
@@ -88,11 +92,16 @@ fn bench_coregister() {
     let g = geometry(n, 32631, 400_000.0, 6_000_000.0);
     let a = Array2::from_shape_fn((n, n), |(r, c)| relief(c as f64, r as f64));
     // Shown 0.6 m east, 0.4 m south, 0.15 m high.
-    let b = Array2::from_shape_fn((n, n), |(r, c)| relief(c as f64 - 0.6, r as f64 + 0.4) + 0.15);
+    let b = Array2::from_shape_fn((n, n), |(r, c)| {
+        relief(c as f64 - 0.6, r as f64 + 0.4) + 0.15
+    });
     let times: Vec<Duration> = (0..RUNS)
         .map(|_| {
-            let mut stack =
-                align::align(vec![survey(0, &g, a.clone()), survey(1, &g, b.clone())], None).unwrap();
+            let mut stack = align::align(
+                vec![survey(0, &g, a.clone()), survey(1, &g, b.clone())],
+                None,
+            )
+            .unwrap();
             let t = Instant::now();
             let regs = coregister(&mut stack, None, &[0.0, 0.14], &CoregOptions::default());
             let e = t.elapsed();

@@ -189,7 +189,14 @@ pub fn series_surface(east: f64, north: f64, after: bool) -> f64 {
 /// One survey of the series site on `geometry(256, 256)`, sampled at cell centres shifted by
 /// (`east_m`, `north_m`) (the survey's mis-registration: it shows the ground at x − d at x),
 /// raised by `dz_m`, with normal noise of `sigma_m` from `seed`.
-pub fn series_survey(after: bool, east_m: f64, north_m: f64, dz_m: f64, sigma_m: f64, seed: u64) -> Array2<f32> {
+pub fn series_survey(
+    after: bool,
+    east_m: f64,
+    north_m: f64,
+    dz_m: f64,
+    sigma_m: f64,
+    seed: u64,
+) -> Array2<f32> {
     let mut rng = Seeded::new(seed);
     Array2::from_shape_fn((256, 256), |(r, c)| {
         let (e, n) = (c as f64 + 0.5 - east_m, -(r as f64 + 0.5) - north_m);
