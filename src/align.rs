@@ -142,23 +142,14 @@ pub fn align_with_report(
             ));
         }
         if g.epsg != base.epsg {
-            if g.epsg.is_none() || base.epsg.is_none() {
-                return Err(Error::input(
-                    &s.source.path,
-                    format!(
-                        "CRS {} differs from the first survey's CRS {}, and without both EPSG codes it cannot be                          reprojected; write the EPSG code into the GeoTIFF, or reproject this grid to the first                          survey's CRS before running",
-                        crs_name(g.epsg),
-                        crs_name(base.epsg)
-                    ),
-                ));
-            }
             let (z, report) = crate::reproject::reproject(&s.grid, &base)
                 .map_err(|m| Error::input(&s.source.path, m))?;
             if z.iter().all(|v| v.is_nan()) {
                 return Err(Error::input(
                     &s.source.path,
                     format!(
-                        "reprojected from {} to {}, this grid does not overlap the analysis grid anywhere with                          data; check its georeference and CRS",
+                        "reprojected from {} to {}, this grid does not overlap the analysis grid anywhere \
+                         with data; check its georeference and CRS",
                         report.source_crs, report.target_crs
                     ),
                 ));
@@ -359,7 +350,7 @@ mod tests {
         let err = align(vec![survey(1, 0.0, flat), b], None).unwrap_err();
         let text = err.to_string();
         assert!(
-            text.contains("not stated") && text.contains("EPSG:32633"),
+            text.contains("states no CRS") && text.contains("EPSG:32633"),
             "{text}"
         );
         // A CRS the library does not know is refused clearly.

@@ -326,7 +326,7 @@ fn invert3(m: [[f64; 3]; 3]) -> Option<[[f64; 3]; 3]> {
     let det = m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
         - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
         + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0]);
-    if !(det.abs() > 1e-12) {
+    if det.is_nan() || det.abs() <= 1e-12 {
         return None;
     }
     let mut inv = [[0f64; 3]; 3];
@@ -367,7 +367,7 @@ fn correlation_range_cells(dh: &[f32], stable: &[bool], rows: usize, cols: usize
     }
     let mean = values.iter().sum::<f64>() / values.len() as f64;
     let var = values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / values.len() as f64;
-    if !(var > 0.0) {
+    if var.is_nan() || var <= 0.0 {
         return 0.0;
     }
     let target = (-1f64).exp();
@@ -775,9 +775,10 @@ mod tests {
     fn inverse_of_a_3x3() {
         let m = [[4.0, 1.0, 0.0], [1.0, 3.0, 1.0], [0.0, 1.0, 2.0]];
         let inv = invert3(m).unwrap();
-        for i in 0..3 {
+        // Check: analytic — m · m⁻¹ is the identity
+        for (i, row) in m.iter().enumerate() {
             for j in 0..3 {
-                let v: f64 = (0..3).map(|k| m[i][k] * inv[k][j]).sum();
+                let v: f64 = (0..3).map(|k| row[k] * inv[k][j]).sum();
                 assert!((v - if i == j { 1.0 } else { 0.0 }).abs() < 1e-12);
             }
         }

@@ -210,7 +210,7 @@ fn regions(detected: &[bool], kept: &[bool], rows: usize, cols: usize, d: &Delim
     }
     out.retain(|r| r.cells.iter().filter(|&&k| kept[k]).count() >= d.min_cells.max(1));
     // Largest first; ties keep raster order (the sort is stable).
-    out.sort_by(|x, y| y.detected.len().cmp(&x.detected.len()));
+    out.sort_by_key(|r| std::cmp::Reverse(r.detected.len()));
     out
 }
 
