@@ -777,8 +777,10 @@ mod tests {
         let inv = invert3(m).unwrap();
         // Check: analytic — m · m⁻¹ is the identity
         for (i, row) in m.iter().enumerate() {
-            for j in 0..3 {
-                let v: f64 = (0..3).map(|k| row[k] * inv[k][j]).sum();
+            let product: Vec<f64> = (0..3)
+                .map(|j| (0..3).map(|k| row[k] * inv[k][j]).sum())
+                .collect();
+            for (j, v) in product.iter().enumerate() {
                 assert!((v - if i == j { 1.0 } else { 0.0 }).abs() < 1e-12);
             }
         }
