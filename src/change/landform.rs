@@ -398,6 +398,28 @@ mod tests {
     }
 
     #[test]
+    fn box_sums_match_a_direct_count() {
+        let (rows, cols) = (37, 23);
+        let x: Vec<u32> = (0..rows * cols)
+            .map(|k| ((k * 7919) % 5 == 0) as u32)
+            .collect();
+        for r in [1usize, 2, 5, 30] {
+            let fast = box_sum(&x, rows, cols, r);
+            for row in 0..rows {
+                for col in 0..cols {
+                    let mut n = 0;
+                    for rr in row.saturating_sub(r)..(row + r + 1).min(rows) {
+                        for cc in col.saturating_sub(r)..(col + r + 1).min(cols) {
+                            n += x[rr * cols + cc];
+                        }
+                    }
+                    assert_eq!(fast[row * cols + col], n, "r {r} at ({row}, {col})");
+                }
+            }
+        }
+    }
+
+    #[test]
     fn speckle_is_dropped_and_flanks_join() {
         let (rows, cols) = (40, 60);
         let a = vec![0f32; rows * cols];
