@@ -28,9 +28,8 @@
 
 use std::io::Write;
 
-/// Ticks per second of the media (track) time scale. 90 000 is divisible by 100, so GIF delays in
-/// hundredths of a second become whole ticks (900 per centisecond) and the video's timing equals
-/// the GIF's exactly.
+/// Ticks per second of the media (track) time scale. 90 000 (common practice, no source) divides
+/// evenly by the usual frame rates (10, 12, 15, 24, 25, 30, 60 fps) and by 100 (GIF delays).
 pub const MEDIA_TIMESCALE: u32 = 90_000;
 
 /// Ticks per second of the movie time scale (`mvhd`, `tkhd` durations): milliseconds.

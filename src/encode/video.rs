@@ -9,8 +9,10 @@
 //! Size: 4:2:0 chroma needs an even width and height. A frame with an odd side loses its last pixel
 //! column (or row) in the video only; the GIF and the PNG frames keep every pixel.
 //!
-//! Timing: frame i is shown for the same hundredths of a second as in the GIF (`gif::delays_cs`),
-//! so survey holds become longer samples and the two animations last exactly as long.
+//! Timing: each frame lasts its time on the timeline (1/fps, plus the hold on survey frames), as a
+//! sample duration in 1/90 000 s; ends are rounded from the running total, so no error builds up
+//! and a 12 fps animation gets exactly 7 500 ticks a frame. The GIF shows the same timeline in
+//! hundredths of a second, so the two differ by less than one frame over the whole animation.
 //!
 //! Quality: [`VideoOptions::quality`] pins the H.264 quantiser (no rate control, no dropped frames),
 //! so every frame gets the same fidelity whatever its content. Survey frames are coded as IDR
@@ -105,8 +107,10 @@ pub struct VideoWriter {
     y: Vec<u8>,
     u: Vec<u8>,
     v: Vec<u8>,
-    keyframe_every_cs: u32,
-    since_key_cs: u32,
+    /// Ideal end time of the last frame, seconds, and the ticks written so far.
+    elapsed_s: f64,
+    elapsed_ticks: u64,
+    since_key_s: f64,
     keyframes: usize,
     annex_b: Vec<u8>,
 }
@@ -178,8 +182,9 @@ impl VideoWriter {
             y: vec![0; w * h],
             u: vec![0; w * h / 4],
             v: vec![0; w * h / 4],
-            keyframe_every_cs: (KEYFRAME_EVERY_S * 100.0) as u32,
-            since_key_cs: 0,
+            elapsed_s: 0.0,
+            elapsed_ticks: 0,
+            since_key_s: 0.0,
             keyframes: 0,
             annex_b: Vec::new(),
         })
@@ -190,12 +195,19 @@ impl VideoWriter {
         self.size
     }
 
-    /// Encodes `frame`, shown for `delay_cs` hundredths of a second. With `keyframe` the frame is
-    /// coded as an IDR picture (survey frames, so players can jump to them).
+    /// Encodes `frame`, shown for `duration_s` seconds. With `keyframe` the frame is coded as an
+    /// IDR picture (survey frames, so players can jump to them).
     ///
     /// # Errors
-    /// [`Error::Output`] if the frame's size differs from the announced one, or the encoder fails.
-    pub fn write_frame(&mut self, frame: &Frame, delay_cs: u16, keyframe: bool) -> Result<()> {
+    /// [`Error::Output`] if the frame's size differs from the announced one, the duration is not
+    /// positive, or the encoder fails.
+    pub fn write_frame(&mut self, frame: &Frame, duration_s: f64, keyframe: bool) -> Result<()> {
+        if !(duration_s.is_finite() && duration_s > 0.0) {
+            return Err(Error::output(
+                &self.path,
+                format!("a frame lasting {duration_s} s; this is a bug in dunereel"),
+            ));
+        }
         if (frame.width, frame.height) != self.source
             || frame.rgba.len() != frame.width as usize * frame.height as usize * 4
         {
@@ -209,7 +221,7 @@ impl VideoWriter {
         }
         rgba_to_yuv420_into(frame, self.size, &mut self.y, &mut self.u, &mut self.v);
         let first = self.mux.is_empty();
-        if first || keyframe || self.since_key_cs >= self.keyframe_every_cs {
+        if first || keyframe || self.since_key_s >= KEYFRAME_EVERY_S - 1e-9 {
             self.encoder.force_intra_frame();
         }
         let (w, h) = (self.size.0 as usize, self.size.1 as usize);
@@ -229,15 +241,21 @@ impl VideoWriter {
         self.annex_b.clear();
         bits.write_vec(&mut self.annex_b);
         let is_sync = kind == FrameType::IDR;
-        let ticks = delay_cs as u32 * (MEDIA_TIMESCALE / 100);
+        self.elapsed_s += duration_s;
+        let end = (self.elapsed_s * MEDIA_TIMESCALE as f64).round() as u64;
+        let ticks = end.saturating_sub(self.elapsed_ticks).max(1);
+        self.elapsed_ticks += ticks;
+        let ticks = u32::try_from(ticks).map_err(|_| {
+            Error::output(&self.path, "a frame lasting over 13 hours; shorten timeline.hold_s")
+        })?;
         self.mux
             .push(&self.annex_b, ticks, is_sync)
             .map_err(|e| encoder_error(&self.path, "packing a frame", e))?;
         if is_sync {
             self.keyframes += 1;
-            self.since_key_cs = 0;
+            self.since_key_s = 0.0;
         }
-        self.since_key_cs += delay_cs as u32;
+        self.since_key_s += duration_s;
         Ok(())
     }
 
@@ -425,7 +443,7 @@ mod tests {
             let mut w = VideoWriter::create(&p, 47, 32, 12.0, &VideoOptions::default(), false).unwrap();
             assert_eq!(w.size(), (46, 32));
             for (i, f) in frames.iter().enumerate() {
-                w.write_frame(f, if i == 3 { 108 } else { 8 }, i == 3).unwrap();
+                w.write_frame(f, if i == 3 { 1.0 + 1.0 / 12.0 } else { 1.0 / 12.0 }, i == 3).unwrap();
             }
             let stats = w.finish().unwrap();
             (std::fs::read(&p).unwrap(), stats)
@@ -435,7 +453,8 @@ mod tests {
         assert_eq!(a, b, "same frames, same bytes");
         assert_eq!(stats.frames, 6);
         assert_eq!(stats.keyframes, 2, "the first frame and the survey frame");
-        assert!((stats.duration_s - 1.48).abs() < 1e-9);
+        // Six frames at 12 fps plus a one-second hold: 1.5 s exactly (7500 ticks a frame).
+        assert!((stats.duration_s - 1.5).abs() < 1e-12, "{}", stats.duration_s);
         assert_eq!(stats.bytes as usize, a.len());
         // Nothing but the two files is left in the folder.
         let mut names: Vec<_> = std::fs::read_dir(dir.path())
@@ -457,12 +476,12 @@ mod tests {
         // A writer that is dropped before finish writes nothing.
         let q = dir.path().join("w.mp4");
         let mut w = VideoWriter::create(&q, 64, 48, 12.0, &VideoOptions::default(), false).unwrap();
-        w.write_frame(&solid(64, 48, [10, 200, 30]), 8, false).unwrap();
+        w.write_frame(&solid(64, 48, [10, 200, 30]), 0.1, false).unwrap();
         drop(w);
         assert!(!q.exists());
         // A wrong-sized frame is an error, and finish with no frames writes nothing.
         let mut w = VideoWriter::create(&q, 64, 48, 12.0, &VideoOptions::default(), false).unwrap();
-        assert!(w.write_frame(&solid(32, 48, [0, 0, 0]), 8, false).is_err());
+        assert!(w.write_frame(&solid(32, 48, [0, 0, 0]), 0.1, false).is_err());
         assert!(w.finish().is_err());
         assert!(!q.exists());
         let names: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();

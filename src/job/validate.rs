@@ -412,6 +412,10 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             format!("{} is out of range; use 2 to 256", f.animation.colours),
         ));
     }
+    f.video.validate().map_err(|m| match m.split_once(": ") {
+        Some((key, rest)) => bad(key, rest.to_string()),
+        None => bad("video", m),
+    })?;
     let output = resolve_output(path, here, &f.output)?;
     Ok(Job {
         path: path.to_path_buf(),
@@ -439,6 +443,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         credit: f.credit,
         animation: f.animation,
         poster: f.poster,
+        video: f.video,
         change: f.change,
         output,
     })
@@ -484,9 +489,31 @@ fn resolve_output(path: &Path, here: &Path, o: &OutputEntry) -> Result<OutputSpe
             ));
         }
     }
+    if let Some(v) = &o.video {
+        let plain = Path::new(v)
+            .file_name()
+            .map(|n| n == v.as_str())
+            .unwrap_or(false);
+        let stem_ok = v.len() > 4 && !v.starts_with('.');
+        if !plain || !stem_ok || !v.to_ascii_lowercase().ends_with(".mp4") {
+            return Err(Error::job(
+                path,
+                "output.video",
+                format!("\"{v}\" should be a plain file name ending in .mp4, such as dunes.mp4 (it is written inside output.folder, beside the GIF)"),
+            ));
+        }
+        if o.gif.as_deref().is_some_and(|g| g.eq_ignore_ascii_case(v)) {
+            return Err(Error::job(
+                path,
+                "output.video",
+                format!("\"{v}\" is also the GIF's name; give the video its own name"),
+            ));
+        }
+    }
     Ok(OutputSpec {
         folder: tidy(&here.join(&o.folder)),
         gif: o.gif.clone(),
+        video: o.video.clone(),
         png_frames: o.png_frames,
         poster: o.poster,
         overwrite: o.overwrite,
@@ -517,7 +544,22 @@ mod tests {
         assert_eq!(job.frame_plan, FramePlan::PerYear(12.0));
         assert_eq!(job.methods, vec![Method::Linear]);
         assert_eq!(job.output.gif.as_deref(), Some("animation.gif"));
+        assert_eq!(job.output.video, None);
+        assert_eq!(job.video.quality, 7);
         assert!(!job.output.overwrite);
+    }
+
+    #[test]
+    fn video_name_and_quality_are_taken() {
+        let d = job_dir();
+        let text = MINIMAL.replace("folder: out", "folder: out, video: Dunes.MP4")
+            + "video: { quality: 9 }\n";
+        let job = parse(&d.path().join("job.yaml"), text).unwrap();
+        assert_eq!(job.output.video.as_deref(), Some("Dunes.MP4"));
+        assert_eq!(job.video.quality, 9);
+        let e = err(&(MINIMAL.replace("folder: out", "folder: out, video: dune.mp4")
+            + "video: { qualty: 9 }\n"));
+        assert!(e.contains("did you mean `quality`"), "{e}");
     }
 
     fn err(text: &str) -> String {
@@ -646,6 +688,20 @@ mod tests {
                 format!("{MINIMAL}colour: {{ by: drape }}\n"),
                 "colour.drape",
             ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: films/dune.mp4"),
+                "output.video",
+            ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: dune.mov"),
+                "output.video",
+            ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: .mp4"),
+                "output.video",
+            ),
+            (format!("{MINIMAL}video: {{ quality: 0 }}\n"), "video.quality"),
+            (format!("{MINIMAL}video: {{ quality: 11 }}\n"), "video.quality"),
             (
                 format!("{MINIMAL}colour: {{ by: drape, drape: photo.tif }}\n"),
                 "colour.drape",

@@ -6,6 +6,7 @@ use std::path::Path;
 use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
 use crate::change;
 use crate::encode::gif;
+use crate::encode::video::VideoWriter;
 use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
 use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
@@ -60,6 +61,22 @@ pub(super) fn write_outputs(
     } else {
         None
     };
+    let mut video = match &job.output.video {
+        Some(name) => {
+            let (w, h) = (job.view.width, job.view.height);
+            if w % 2 == 1 || h % 2 == 1 {
+                let msg = format!(
+                    "{name}: the frame size {w} x {h} is odd; the video leaves out the last pixel {} (H.264 4:2:0 needs even sizes); the GIF and PNG frames keep every pixel",
+                    if w % 2 == 1 && h % 2 == 1 { "column and row" } else if w % 2 == 1 { "column" } else { "row" }
+                );
+                log::info!("{msg}");
+                warnings.push(msg);
+            }
+            let path = scratch.join(name);
+            Some((VideoWriter::create(&path, w, h, job.fps, &job.video, false)?, path))
+        }
+        None => None,
+    };
     for t in &timeline.frames {
         let orbit = if n > 1 {
             t.index as f64 / (n - 1) as f64
@@ -87,6 +104,9 @@ pub(super) fn write_outputs(
             };
             seq.write_frame(&frame, row)?;
         }
+        if let Some((v, _)) = video.as_mut() {
+            v.write_frame(&frame, t.duration_s, t.kind.is_measured())?;
+        }
         if job.output.gif.is_some() {
             kept.push(frame.clone());
         }
@@ -97,6 +117,23 @@ pub(super) fn write_outputs(
     if let Some((seq, dir)) = png {
         seq.finish()?;
         extra.extend(files_under(&dir, "frames")?);
+    }
+    if let Some((v, path)) = video {
+        let stats = v.finish()?;
+        log::info!(
+            "video: {} frames of {} x {}, {:.2} s, {} bytes, {} keyframes",
+            stats.frames,
+            stats.size.0,
+            stats.size.1,
+            stats.duration_s,
+            stats.bytes,
+            stats.keyframes
+        );
+        let name = job.output.video.as_deref().unwrap_or("animation.mp4");
+        extra.push(ExtraFile {
+            name: format!("animation/{name}"),
+            content: ExtraContent::File(path),
+        });
     }
     if let Some(name) = &job.output.gif {
         let path = scratch.join(name);
