@@ -220,6 +220,19 @@ pub(super) fn write_outputs(
     }
 
     let figures = change::figures(&stack, &record, &job.change);
+    // The viewer page is made from the files above, so it comes last among the extras.
+    let page = archive::viewer::page(&archive::viewer::ViewerInputs {
+        title: &job.title,
+        record: &record,
+        figures: &figures,
+        extra: &extra,
+        fps: job.fps,
+        hold_s: job.hold_s,
+    })?;
+    extra.push(ExtraFile {
+        name: archive::viewer::PAGE.into(),
+        content: ExtraContent::Bytes(page.into_bytes()),
+    });
     let archive = archive::write_archive(
         folder,
         &record,
