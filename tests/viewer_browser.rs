@@ -342,3 +342,35 @@ fn viewer_fits_a_phone_screen() {
     let errors = severe_console_entries(&b);
     assert!(errors.is_empty(), "console errors: {errors:?}");
 }
+
+#[test]
+fn everything_the_viewer_shows_is_in_the_manifest_and_verified() {
+    let d = tempfile::tempdir().unwrap();
+    let bag = record(d.path());
+    let page = bag.join("data/viewer/index.html");
+    let html = std::fs::read_to_string(&page).unwrap();
+    let data = dunereel::archive::viewer::embedded_data(&html).expect("the page embeds its data");
+    let manifest = std::fs::read_to_string(bag.join("manifest-sha256.txt")).unwrap();
+    let listed: Vec<&str> = manifest.lines().filter_map(|l| l.split_once("  ").map(|p| p.1)).collect();
+    assert!(listed.contains(&"data/viewer/index.html"));
+    let files = data["files"].as_array().unwrap();
+    assert!(files.iter().any(|f| f == "animation/dune.mp4"));
+    assert!(files.iter().any(|f| f == "frames/frame-0000.png"));
+    assert!(files.iter().any(|f| f.as_str().unwrap().starts_with("maps/dod-")));
+    for f in files {
+        let f = format!("data/{}", f.as_str().unwrap());
+        assert!(listed.contains(&f.as_str()), "{f} is shown by the viewer but not in the manifest");
+    }
+    // Every relative src/href written in the page itself resolves inside data/.
+    for attr in ["src=\"", "href=\""] {
+        for part in html.split(attr).skip(1) {
+            let target = &part[..part.find('"').unwrap()];
+            assert!(!target.contains("://") && !target.starts_with("//"), "external reference {target}");
+        }
+    }
+    assert!(dunereel::archive::verify(&bag).unwrap().is_intact());
+    // An altered page is caught by verify.
+    std::fs::write(&page, html.replace("MEASURED", "MEASURED!")).unwrap();
+    let report = dunereel::archive::verify(&bag).unwrap();
+    assert_eq!(report.altered, vec!["data/viewer/index.html".to_string()]);
+}
