@@ -67,13 +67,27 @@ pub fn column_label(name: &str) -> (String, String) {
         ("_years", "years"),
         ("_px", "px"),
     ];
-    for (suffix, unit) in UNITS {
-        if let Some(stem) = name.strip_suffix(suffix) {
-            // `_m` also ends `_usft_m`-like names never written; stems are plain words.
-            return (stem.replace('_', " "), unit.to_string());
-        }
-    }
-    (name.replace('_', " "), String::new())
+    let (stem, unit) = UNITS
+        .iter()
+        .find_map(|(suffix, unit)| name.strip_suffix(suffix).map(|s| (s, *unit)))
+        .unwrap_or((name, ""));
+    (words(stem), unit.to_string())
+}
+
+/// Plain words for a column stem; a few terse names get spelled out.
+fn words(stem: &str) -> String {
+    let spelled = match stem {
+        "lod" => "level of detection (LoD)",
+        "lod_t" => "t of the LoD (1.96 = 95 %)",
+        "sigma_z" => "vertical uncertainty σz (1σ)",
+        "sigma_z_source" => "source of σz",
+        "sigma_dod" => "σ of the difference",
+        "volume_sigma_independent" => "± volume, independent cell errors (1σ)",
+        "volume_bound_lod" => "± volume bound, all errors alike",
+        "nodata_share" => "share of cells without data",
+        other => return other.replace('_', " "),
+    };
+    spelled.to_string()
 }
 
 fn table_json(t: &Table) -> Value {
@@ -292,7 +306,8 @@ mod tests {
         assert_eq!(column_label("migration_rate_m_per_yr"), ("migration rate".into(), "m/yr".into()));
         assert_eq!(column_label("area_ft2"), ("area".into(), "ft²".into()));
         assert_eq!(column_label("peak_x_crs"), ("peak x".into(), "CRS units".into()));
-        assert_eq!(column_label("lod_usft"), ("lod".into(), "US ft".into()));
+        assert_eq!(column_label("lod_usft"), ("level of detection (LoD)".into(), "US ft".into()));
+        assert_eq!(column_label("lod_t").1, "");
         assert_eq!(column_label("survey_id"), ("survey id".into(), String::new()));
     }
 
