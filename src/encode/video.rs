@@ -46,9 +46,11 @@ pub const QUALITY_RANGE: std::ops::RangeInclusive<u8> = 1..=10;
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct VideoOptions {
-    /// Fidelity from 1 (smallest file, visible blocks) to 10 (near lossless, largest file). Each
-    /// step lowers the H.264 quantiser by 3, which roughly halves the error and grows the file by
-    /// about a third. Default: 7 (about 41 dB PSNR on the demo at 1280 × 720).
+    /// Fidelity from 1 (smallest file, visible blocks) to 10 (largest file, finest picture). Each
+    /// step lowers the H.264 quantiser by 3 and grows the file by about a third. Measured on the
+    /// standard animation (demo, 154 frames of 1280 × 720, `cargo bench --bench video`): quality
+    /// 1 gives 0.29 MB at 31 dB PSNR, 5 gives 0.85 MB at 38 dB, 7 gives 1.46 MB at 40 dB, 9 gives
+    /// 2.35 MB at 42 dB (the GIF: 5.64 MB). Default: 7.
     pub quality: u8,
 }
 
@@ -322,7 +324,10 @@ fn coefficients() -> [[i32; 3]; 3] {
 }
 
 /// Converts the top-left `size` (even) of an RGBA frame to planar Y′CbCr 4:2:0, BT.709 limited
-/// range; chroma is the matrix applied to the mean of each 2 × 2 block (co-sited between samples).
+/// range; chroma is the matrix applied to the mean of each 2 × 2 block (sited at the block's
+/// centre). A left-sited [1 2 1] filter, the H.264 default siting, was tried and measured 0.6 dB
+/// lower PSNR through FFmpeg 5.1's decoder and converter (`tests/video_ffmpeg.rs`, 960 × 540), so
+/// the plain block mean stays.
 ///
 /// # Panics
 /// If the planes do not match `size` or the frame is smaller than `size` (a bug in the caller).
