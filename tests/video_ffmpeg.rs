@@ -209,3 +209,26 @@ fn higher_quality_means_a_larger_file_and_a_closer_picture() {
     };
     assert!(first(&high) > first(&low) + 3.0);
 }
+
+#[test]
+fn check_refuses_bad_video_keys_with_exit_2_and_writes_nothing() {
+    let d = tempfile::tempdir().unwrap();
+    let job = common::moving_dune_job(d.path(), "");
+    let text = std::fs::read_to_string(&job).unwrap();
+    for (edit, key) in [
+        (text.replace("output: { folder: out }", "output: { folder: out, video: clips/dune.mp4 }"), "output.video"),
+        (text.replace("output: { folder: out }", "output: { folder: out, video: dune.avi }"), "output.video"),
+        (text.replace("output: { folder: out }", "output: { folder: out, video: dune.mp4 }") + "video: { quality: 12 }\n", "video.quality"),
+    ] {
+        std::fs::write(&job, &edit).unwrap();
+        let out = Command::new(env!("CARGO_BIN_EXE_dunereel"))
+            .args(["check", "job.yaml"])
+            .current_dir(d.path())
+            .output()
+            .unwrap();
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{err}");
+        assert!(err.contains("job.yaml") && err.contains(key), "expected `{key}` in: {err}");
+        assert!(!d.path().join("out").exists());
+    }
+}

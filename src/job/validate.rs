@@ -417,6 +417,16 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         None => bad("video", m),
     })?;
     let output = resolve_output(path, here, &f.output)?;
+    if output.video.is_some() {
+        // OpenH264 takes frames up to 3840 × 2160 either way round.
+        let (w, h) = (f.view.width & !1, f.view.height & !1);
+        if w.max(h) > 3840 || w.min(h) > 2160 || w.min(h) < 2 {
+            return Err(bad(
+                "output.video",
+                format!("the H.264 encoder takes frames from 2 up to 3840 x 2160 (either way round), the view is {} x {}; lower view.width/view.height or remove output.video", f.view.width, f.view.height),
+            ));
+        }
+    }
     Ok(Job {
         path: path.to_path_buf(),
         text,
@@ -701,6 +711,11 @@ mod tests {
                 "output.video",
             ),
             (format!("{MINIMAL}video: {{ quality: 0 }}\n"), "video.quality"),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: v.mp4")
+                    + "view: { width: 4096, height: 2160 }\n",
+                "output.video",
+            ),
             (format!("{MINIMAL}video: {{ quality: 11 }}\n"), "video.quality"),
             (
                 format!("{MINIMAL}colour: {{ by: drape, drape: photo.tif }}\n"),
