@@ -98,6 +98,20 @@ pub fn align(surveys: Vec<Survey>, aoi: Option<AreaOfInterest>) -> Result<Aligne
     let mut out = Vec::with_capacity(surveys.len());
     for s in surveys {
         let g = &s.grid.geometry;
+        if g.epsg.is_none() != base.epsg.is_none() {
+            let (which, other) = if g.epsg.is_none() {
+                ("this grid", crs_name(base.epsg))
+            } else {
+                ("the first survey's grid", crs_name(g.epsg))
+            };
+            return Err(Error::input(
+                &s.source.path,
+                format!(
+                    "{which} states no CRS (no ProjectedCRSGeoKey) while the other is in {other}; if they are in \
+                     the same CRS, assign that CRS to the grid that lacks it (the elevations need no change)"
+                ),
+            ));
+        }
         if g.epsg != base.epsg {
             return Err(Error::input(
                 &s.source.path,
@@ -222,6 +236,9 @@ mod tests {
                 compression: "none".into(),
                 nodata: None,
                 vertical_unit: LinearUnit::Metre,
+                vertical_unit_source: crate::grid::UnitSource::File,
+                horizontal_unit: LinearUnit::Metre,
+                horizontal_unit_source: crate::grid::UnitSource::File,
                 pixel_is_point: false,
             },
         }

@@ -13,7 +13,7 @@ use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
 
 use super::frames::Painter;
-use super::{effective_method, Prepared, RunOptions, RunReport};
+use super::{effective_method, orbit_share, FrameSource, Prepared, RunOptions, RunReport};
 use crate::job::Job;
 
 pub(super) fn write_outputs(
@@ -23,6 +23,7 @@ pub(super) fn write_outputs(
     folder: &Path,
     overwrite: bool,
     opts: &RunOptions,
+    source: FrameSource<'_>,
 ) -> Result<RunReport> {
     let Prepared {
         stack,
@@ -34,7 +35,17 @@ pub(super) fn write_outputs(
         drape,
         mut warnings,
     } = prepared;
-    std::fs::create_dir_all(scratch).map_err(|e| Error::io(scratch, e))?;
+    std::fs::create_dir_all(scratch).map_err(|e| {
+        // The working folder is an implementation detail; name the folder the user chose.
+        let parent = scratch.parent().unwrap_or(Path::new("."));
+        Error::output(
+            folder,
+            format!(
+                "cannot write in {} ({e}); choose an output folder where you may write (output.folder or --output)",
+                parent.display()
+            ),
+        )
+    })?;
     let unit = job.change.display_unit;
     let mut extra = vec![ExtraFile {
         name: "job/job.yaml".into(),
@@ -78,12 +89,12 @@ pub(super) fn write_outputs(
         None => None,
     };
     for t in &timeline.frames {
-        let orbit = if n > 1 {
-            t.index as f64 / (n - 1) as f64
-        } else {
-            0.0
+        let peak_height = match &source {
+            FrameSource::Render => {
+                painter.paint(&mut renderer, t, orbit_share(t.index, n), &mut frame)
+            }
+            FrameSource::Parts(gathered) => gathered.load(t.index, &mut frame)?,
         };
-        let peak_height = painter.paint(&mut renderer, t, orbit, &mut frame);
         if let Some((seq, _)) = png.as_mut() {
             let row = png_seq::IndexRow {
                 time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
@@ -241,6 +252,7 @@ pub(super) fn write_outputs(
         &ArchiveOptions {
             overwrite,
             bagging_date: None,
+            protected: super::protected(job),
         },
     )?;
     warnings.dedup();
