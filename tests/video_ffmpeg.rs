@@ -50,7 +50,11 @@ fn ffprobe(file: &Path) -> Value {
         .arg(file)
         .output()
         .unwrap();
-    assert!(out.status.success(), "ffprobe failed: {}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "ffprobe failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
@@ -99,20 +103,34 @@ fn ffprobe_reads_a_browser_ready_h264_mp4_with_the_gifs_timing() {
         "{profile}"
     );
     assert_eq!(s["pix_fmt"], "yuv420p");
-    assert_eq!((s["width"].as_u64(), s["height"].as_u64()), (Some(320), Some(180)));
+    assert_eq!(
+        (s["width"].as_u64(), s["height"].as_u64()),
+        (Some(320), Some(180))
+    );
     assert_eq!(s["color_primaries"], "bt709");
     assert_eq!(s["color_transfer"], "bt709");
     assert_eq!(s["color_space"], "bt709");
     assert_eq!(s["color_range"], "tv");
-    assert!(info["format"]["format_name"].as_str().unwrap().contains("mp4"));
+    assert!(info["format"]["format_name"]
+        .as_str()
+        .unwrap()
+        .contains("mp4"));
 
     let frames = index_rows(&bag);
     let decoded: usize = s["nb_read_frames"].as_str().unwrap().parse().unwrap();
-    assert_eq!(decoded, frames.len(), "every frame of the index is in the video");
+    assert_eq!(
+        decoded,
+        frames.len(),
+        "every frame of the index is in the video"
+    );
 
     let (gif_s, gif_frames) = gif_duration_s(&bag.join("data/animation/dune.gif"));
     assert_eq!(gif_frames, frames.len());
-    let mp4_s: f64 = info["format"]["duration"].as_str().unwrap().parse().unwrap();
+    let mp4_s: f64 = info["format"]["duration"]
+        .as_str()
+        .unwrap()
+        .parse()
+        .unwrap();
     // The job plays at 10 fps: one frame is 0.1 s.
     assert!(
         (mp4_s - gif_s).abs() <= 0.1 + 1e-6,
@@ -146,7 +164,11 @@ fn decode_rgb(mp4: &Path, w: usize, h: usize) -> Vec<Vec<u8>> {
         .args(["-f", "rawvideo", "-"])
         .output()
         .unwrap();
-    assert!(out.status.success(), "ffmpeg failed: {}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "ffmpeg failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     assert_eq!(out.stdout.len() % (w * h * 3), 0);
     out.stdout.chunks(w * h * 3).map(<[u8]>::to_vec).collect()
 }
@@ -187,11 +209,18 @@ fn odd_frame_sizes_lose_one_column_in_the_video_only() {
     let bag = record(d.path(), 321, 181, "video: { quality: 9 }\n");
     let info = ffprobe(&bag.join("data/animation/dune.mp4"));
     let s = &info["streams"][0];
-    assert_eq!((s["width"].as_u64(), s["height"].as_u64()), (Some(320), Some(180)));
+    assert_eq!(
+        (s["width"].as_u64(), s["height"].as_u64()),
+        (Some(320), Some(180))
+    );
     let png = image::open(bag.join("data/frames").join(&index_rows(&bag)[0])).unwrap();
     assert_eq!((png.width(), png.height()), (321, 181));
     let decoded = decode_rgb(&bag.join("data/animation/dune.mp4"), 320, 180);
-    let first = png_rgb(&bag.join("data/frames").join(&index_rows(&bag)[0]), 320, 180);
+    let first = png_rgb(
+        &bag.join("data/frames").join(&index_rows(&bag)[0]),
+        320,
+        180,
+    );
     assert!(psnr(&decoded[0], &first) >= 38.0);
 }
 
@@ -201,11 +230,23 @@ fn higher_quality_means_a_larger_file_and_a_closer_picture() {
     let d2 = tempfile::tempdir().unwrap();
     let low = record(d1.path(), 320, 180, "video: { quality: 3 }\n");
     let high = record(d2.path(), 320, 180, "video: { quality: 9 }\n");
-    let size = |b: &Path| std::fs::metadata(b.join("data/animation/dune.mp4")).unwrap().len();
-    assert!(size(&high) > size(&low), "{} vs {}", size(&high), size(&low));
+    let size = |b: &Path| {
+        std::fs::metadata(b.join("data/animation/dune.mp4"))
+            .unwrap()
+            .len()
+    };
+    assert!(
+        size(&high) > size(&low),
+        "{} vs {}",
+        size(&high),
+        size(&low)
+    );
     let first = |b: &Path| {
         let png = png_rgb(&b.join("data/frames").join(&index_rows(b)[0]), 320, 180);
-        psnr(&decode_rgb(&b.join("data/animation/dune.mp4"), 320, 180)[0], &png)
+        psnr(
+            &decode_rgb(&b.join("data/animation/dune.mp4"), 320, 180)[0],
+            &png,
+        )
     };
     assert!(first(&high) > first(&low) + 3.0);
 }
@@ -216,9 +257,27 @@ fn check_refuses_bad_video_keys_with_exit_2_and_writes_nothing() {
     let job = common::moving_dune_job(d.path(), "");
     let text = std::fs::read_to_string(&job).unwrap();
     for (edit, key) in [
-        (text.replace("output: { folder: out }", "output: { folder: out, video: clips/dune.mp4 }"), "output.video"),
-        (text.replace("output: { folder: out }", "output: { folder: out, video: dune.avi }"), "output.video"),
-        (text.replace("output: { folder: out }", "output: { folder: out, video: dune.mp4 }") + "video: { quality: 12 }\n", "video.quality"),
+        (
+            text.replace(
+                "output: { folder: out }",
+                "output: { folder: out, video: clips/dune.mp4 }",
+            ),
+            "output.video",
+        ),
+        (
+            text.replace(
+                "output: { folder: out }",
+                "output: { folder: out, video: dune.avi }",
+            ),
+            "output.video",
+        ),
+        (
+            text.replace(
+                "output: { folder: out }",
+                "output: { folder: out, video: dune.mp4 }",
+            ) + "video: { quality: 12 }\n",
+            "video.quality",
+        ),
     ] {
         std::fs::write(&job, &edit).unwrap();
         let out = Command::new(env!("CARGO_BIN_EXE_dunereel"))
@@ -228,7 +287,10 @@ fn check_refuses_bad_video_keys_with_exit_2_and_writes_nothing() {
             .unwrap();
         let err = String::from_utf8_lossy(&out.stderr);
         assert_eq!(out.status.code(), Some(2), "{err}");
-        assert!(err.contains("job.yaml") && err.contains(key), "expected `{key}` in: {err}");
+        assert!(
+            err.contains("job.yaml") && err.contains(key),
+            "expected `{key}` in: {err}"
+        );
         assert!(!d.path().join("out").exists());
     }
 }

@@ -67,7 +67,10 @@ impl Browser {
                     break;
                 }
             }
-            assert!(Instant::now() < deadline, "chromedriver did not get ready in 30 s");
+            assert!(
+                Instant::now() < deadline,
+                "chromedriver did not get ready in 30 s"
+            );
             std::thread::sleep(Duration::from_millis(100));
         }
         // The machine may have no network: these flags stop chromium from reaching out (and
@@ -104,10 +107,16 @@ impl Browser {
         } else {
             format!("{}/session/{}{path}", self.base, self.session)
         };
-        match ureq::post(&url).timeout(Duration::from_secs(60)).send_json(body) {
+        match ureq::post(&url)
+            .timeout(Duration::from_secs(60))
+            .send_json(body)
+        {
             Ok(r) => r.into_json::<Value>().unwrap()["value"].clone(),
             Err(ureq::Error::Status(code, r)) => {
-                panic!("WebDriver {path}: HTTP {code}: {}", r.into_string().unwrap_or_default())
+                panic!(
+                    "WebDriver {path}: HTTP {code}: {}",
+                    r.into_string().unwrap_or_default()
+                )
             }
             Err(e) => panic!("WebDriver {path}: {e}"),
         }
@@ -122,10 +131,12 @@ impl Browser {
     }
 
     fn text(&self, id: &str) -> String {
-        self.js(&format!("return document.getElementById('{id}').textContent;"))
-            .as_str()
-            .unwrap()
-            .to_string()
+        self.js(&format!(
+            "return document.getElementById('{id}').textContent;"
+        ))
+        .as_str()
+        .unwrap()
+        .to_string()
     }
 
     fn element(&self, css: &str) -> String {
@@ -228,7 +239,11 @@ fn requested_urls(b: &Browser) -> Vec<String> {
         .iter()
         .filter_map(|e| serde_json::from_str::<Value>(e["message"].as_str()?).ok())
         .filter(|m| m["message"]["method"] == "Network.requestWillBeSent")
-        .filter_map(|m| m["message"]["params"]["request"]["url"].as_str().map(String::from))
+        .filter_map(|m| {
+            m["message"]["params"]["request"]["url"]
+                .as_str()
+                .map(String::from)
+        })
         .collect()
 }
 
@@ -245,17 +260,30 @@ fn viewer_steps_plays_and_stays_inside_the_bag() {
     b.log("performance");
     b.log("browser");
     b.open(&file_url(&page));
-    b.wait_for("the first frame", |b| b.text("frame-no").starts_with("1 of"));
+    b.wait_for("the first frame", |b| {
+        b.text("frame-no").starts_with("1 of")
+    });
     assert_eq!(b.text("frame-no"), format!("1 of {}", frames.len()));
-    assert!(b.text("status").contains("MEASURED"), "{}", b.text("status"));
+    assert!(
+        b.text("status").contains("MEASURED"),
+        "{}",
+        b.text("status")
+    );
     assert_eq!(b.text("date"), "2030-03-01");
     assert!(b.text("caution").contains("not measurements"));
 
     // Jump to a survey by its date mark.
-    let k = frames.iter().position(|f| f.0.starts_with("2031-03-01")).unwrap();
+    let k = frames
+        .iter()
+        .position(|f| f.0.starts_with("2031-03-01"))
+        .unwrap();
     b.click(&format!("#survey-buttons button[data-frame='{k}']"));
     assert_eq!(b.text("frame-no"), format!("{} of {}", k + 1, frames.len()));
-    assert!(b.text("status").starts_with("MEASURED"), "{}", b.text("status"));
+    assert!(
+        b.text("status").starts_with("MEASURED"),
+        "{}",
+        b.text("status")
+    );
     assert_eq!(b.text("date"), "2031-03-01");
 
     // Move the slider to an interpolated date and read back frame and status.
@@ -270,9 +298,18 @@ fn viewer_steps_plays_and_stays_inside_the_bag() {
     ));
     assert_eq!(b.text("frame-no"), format!("{} of {}", j + 1, frames.len()));
     assert_eq!(b.text("date"), &time[..10]);
-    assert!(b.text("status").contains("INTERPOLATED"), "{}", b.text("status"));
+    assert!(
+        b.text("status").contains("INTERPOLATED"),
+        "{}",
+        b.text("status")
+    );
     let made = b.text("method");
-    assert!(made.starts_with(method.as_str()) && made.contains("2031-03-01") && made.contains("2033-03-01"), "{made}");
+    assert!(
+        made.starts_with(method.as_str())
+            && made.contains("2031-03-01")
+            && made.contains("2033-03-01"),
+        "{made}"
+    );
     let src = b.js("return document.getElementById('frame').getAttribute('src');");
     assert_eq!(src, format!("../frames/frame-{j:04}.png"));
 
@@ -284,7 +321,13 @@ fn viewer_steps_plays_and_stays_inside_the_bag() {
     b.click("#play");
     assert_eq!(b.text("play"), "Pause");
     b.wait_for("playing to advance past frame 2", |b| {
-        let n: usize = b.text("frame-no").split(' ').next().unwrap().parse().unwrap();
+        let n: usize = b
+            .text("frame-no")
+            .split(' ')
+            .next()
+            .unwrap()
+            .parse()
+            .unwrap();
         n >= 3
     });
     b.keys("#slider", " ");
@@ -295,11 +338,16 @@ fn viewer_steps_plays_and_stays_inside_the_bag() {
     assert!(heads.as_str().unwrap().contains("(m³)"), "{heads}");
     b.js("window.scrollTo(0, document.body.scrollHeight);");
     b.wait_for("every image to load", |b| {
-        b.js("return Array.from(document.images).every(i => i.complete && i.naturalWidth > 0);") == true
+        b.js("return Array.from(document.images).every(i => i.complete && i.naturalWidth > 0);")
+            == true
     });
     let links = b.js("return Array.from(document.querySelectorAll('#links a')).map(a => a.getAttribute('href'));");
     for l in links.as_array().unwrap() {
-        let rel = l.as_str().unwrap().strip_prefix("../").expect("links stay inside data/");
+        let rel = l
+            .as_str()
+            .unwrap()
+            .strip_prefix("../")
+            .expect("links stay inside data/");
         assert!(bag.join("data").join(rel).is_file(), "broken link {rel}");
     }
     assert!(links.to_string().contains("dune.mp4") && links.to_string().contains("dune.gif"));
@@ -309,17 +357,26 @@ fn viewer_steps_plays_and_stays_inside_the_bag() {
     assert!(errors.is_empty(), "console errors: {errors:?}");
     let root = file_url(&bag) + "/";
     let urls = requested_urls(&b);
-    assert!(urls.len() > 3, "the performance log saw the page load: {urls:?}");
+    assert!(
+        urls.len() > 3,
+        "the performance log saw the page load: {urls:?}"
+    );
     for u in &urls {
         // `data:` URLs carry their bytes in themselves (the browser's own video controls use
         // some); anything else must be a file of the bag.
-        assert!(u.starts_with(&root) || u.starts_with("data:"), "request outside the bag: {u}");
+        assert!(
+            u.starts_with(&root) || u.starts_with("data:"),
+            "request outside the bag: {u}"
+        );
     }
     assert!(urls.iter().any(|u| u.ends_with("/data/viewer/index.html")));
     // The page's own view of it (W3C Resource Timing) agrees.
     let timing = b.js("return performance.getEntriesByType('resource').map(e => e.name);");
     for u in timing.as_array().unwrap() {
-        assert!(u.as_str().unwrap().starts_with(&root), "resource outside the bag: {u}");
+        assert!(
+            u.as_str().unwrap().starts_with(&root),
+            "resource outside the bag: {u}"
+        );
     }
 }
 
@@ -330,7 +387,9 @@ fn viewer_fits_a_phone_screen() {
     let b = Browser::start();
     b.post("/window/rect", json!({ "width": 390, "height": 844 }));
     b.open(&file_url(&bag.join("data/viewer/index.html")));
-    b.wait_for("the first frame", |b| b.text("frame-no").starts_with("1 of"));
+    b.wait_for("the first frame", |b| {
+        b.text("frame-no").starts_with("1 of")
+    });
     let fits = b.js("return document.documentElement.scrollWidth <= window.innerWidth + 1;");
     let widths = b.js("return [document.documentElement.scrollWidth, window.innerWidth];");
     assert_eq!(fits, true, "page wider than the screen: {widths}");
@@ -351,21 +410,32 @@ fn everything_the_viewer_shows_is_in_the_manifest_and_verified() {
     let html = std::fs::read_to_string(&page).unwrap();
     let data = dunereel::archive::viewer::embedded_data(&html).expect("the page embeds its data");
     let manifest = std::fs::read_to_string(bag.join("manifest-sha256.txt")).unwrap();
-    let listed: Vec<&str> = manifest.lines().filter_map(|l| l.split_once("  ").map(|p| p.1)).collect();
+    let listed: Vec<&str> = manifest
+        .lines()
+        .filter_map(|l| l.split_once("  ").map(|p| p.1))
+        .collect();
     assert!(listed.contains(&"data/viewer/index.html"));
     let files = data["files"].as_array().unwrap();
     assert!(files.iter().any(|f| f == "animation/dune.mp4"));
     assert!(files.iter().any(|f| f == "frames/frame-0000.png"));
-    assert!(files.iter().any(|f| f.as_str().unwrap().starts_with("maps/dod-")));
+    assert!(files
+        .iter()
+        .any(|f| f.as_str().unwrap().starts_with("maps/dod-")));
     for f in files {
         let f = format!("data/{}", f.as_str().unwrap());
-        assert!(listed.contains(&f.as_str()), "{f} is shown by the viewer but not in the manifest");
+        assert!(
+            listed.contains(&f.as_str()),
+            "{f} is shown by the viewer but not in the manifest"
+        );
     }
     // Every relative src/href written in the page itself resolves inside data/.
     for attr in ["src=\"", "href=\""] {
         for part in html.split(attr).skip(1) {
             let target = &part[..part.find('"').unwrap()];
-            assert!(!target.contains("://") && !target.starts_with("//"), "external reference {target}");
+            assert!(
+                !target.contains("://") && !target.starts_with("//"),
+                "external reference {target}"
+            );
         }
     }
     assert!(dunereel::archive::verify(&bag).unwrap().is_intact());

@@ -138,7 +138,11 @@ fn index_json(text: &str, source: &Path) -> Result<Value> {
         }
     }
     let rows: Vec<Vec<String>> = lines.map(csv_fields).collect();
-    if let Some((i, r)) = rows.iter().enumerate().find(|(_, r)| r.len() != header.len()) {
+    if let Some((i, r)) = rows
+        .iter()
+        .enumerate()
+        .find(|(_, r)| r.len() != header.len())
+    {
         return Err(Error::output(
             source,
             format!(
@@ -302,18 +306,34 @@ mod tests {
 
     #[test]
     fn column_labels_carry_their_units() {
-        assert_eq!(column_label("net_volume_m3"), ("net volume".into(), "m³".into()));
-        assert_eq!(column_label("migration_rate_m_per_yr"), ("migration rate".into(), "m/yr".into()));
+        assert_eq!(
+            column_label("net_volume_m3"),
+            ("net volume".into(), "m³".into())
+        );
+        assert_eq!(
+            column_label("migration_rate_m_per_yr"),
+            ("migration rate".into(), "m/yr".into())
+        );
         assert_eq!(column_label("area_ft2"), ("area".into(), "ft²".into()));
-        assert_eq!(column_label("peak_x_crs"), ("peak x".into(), "CRS units".into()));
-        assert_eq!(column_label("lod_usft"), ("level of detection (LoD)".into(), "US ft".into()));
+        assert_eq!(
+            column_label("peak_x_crs"),
+            ("peak x".into(), "CRS units".into())
+        );
+        assert_eq!(
+            column_label("lod_usft"),
+            ("level of detection (LoD)".into(), "US ft".into())
+        );
         assert_eq!(column_label("lod_t").1, "");
-        assert_eq!(column_label("survey_id"), ("survey id".into(), String::new()));
+        assert_eq!(
+            column_label("survey_id"),
+            ("survey id".into(), String::new())
+        );
     }
 
     #[test]
     fn the_index_is_read_by_column_name() {
-        let text = "status,frame,extra_col,file,time\nsurveyed,0,\"a, b\",f-0.png,2030-01-01T00:00:00\n";
+        let text =
+            "status,frame,extra_col,file,time\nsurveyed,0,\"a, b\",f-0.png,2030-01-01T00:00:00\n";
         let v = index_json(text, Path::new("index.csv")).unwrap();
         assert_eq!(v["columns"][3], "file");
         assert_eq!(v["rows"][0][2], "a, b");

@@ -116,7 +116,13 @@ impl Mp4Muxer {
     /// # Errors
     /// [`MuxError`] for a zero, odd or too large size.
     pub fn new(width: u32, height: u32, colour: ColourInfo) -> Result<Mp4Muxer, MuxError> {
-        if width == 0 || height == 0 || width % 2 == 1 || height % 2 == 1 || width > 65535 || height > 65535 {
+        if width == 0
+            || height == 0
+            || width % 2 == 1
+            || height % 2 == 1
+            || width > 65535
+            || height > 65535
+        {
             return Err(MuxError(format!(
                 "a {width} x {height} track: H.264 4:2:0 video needs even sizes from 2 to 65534"
             )));
@@ -166,7 +172,8 @@ impl Mp4Muxer {
                 }
                 continue;
             }
-            let len = u32::try_from(nal.len()).map_err(|_| MuxError("a NAL unit over 4 GiB".into()))?;
+            let len =
+                u32::try_from(nal.len()).map_err(|_| MuxError("a NAL unit over 4 GiB".into()))?;
             self.data.extend_from_slice(&len.to_be_bytes());
             self.data.extend_from_slice(nal);
         }
@@ -244,8 +251,8 @@ impl Mp4Muxer {
 
     fn moov(&self, sps: &[u8], pps: &[u8], first_offset: u32) -> Vec<u8> {
         let ticks = self.duration_ticks();
-        let movie_duration =
-            ((ticks * MOVIE_TIMESCALE as u64 + MEDIA_TIMESCALE as u64 / 2) / MEDIA_TIMESCALE as u64) as u32;
+        let movie_duration = ((ticks * MOVIE_TIMESCALE as u64 + MEDIA_TIMESCALE as u64 / 2)
+            / MEDIA_TIMESCALE as u64) as u32;
         let mut moov = Vec::new();
         put_box(&mut moov, b"mvhd", |b| {
             full_header(b, 0, 0);
@@ -286,7 +293,9 @@ impl Mp4Muxer {
                     b.extend_from_slice(&MEDIA_TIMESCALE.to_be_bytes());
                     b.extend_from_slice(&duration.to_be_bytes());
                     // Language "und" (ISO 639-2/T), three 5-bit letters minus 0x60.
-                    let lang = ((b'u' - 0x60) as u16) << 10 | ((b'n' - 0x60) as u16) << 5 | (b'd' - 0x60) as u16;
+                    let lang = ((b'u' - 0x60) as u16) << 10
+                        | ((b'n' - 0x60) as u16) << 5
+                        | (b'd' - 0x60) as u16;
                     b.extend_from_slice(&lang.to_be_bytes());
                     b.extend_from_slice(&0u16.to_be_bytes());
                 });
@@ -309,7 +318,9 @@ impl Mp4Muxer {
                             put_box(b, b"url ", |u| full_header(u, 0, 1)); // data in this file
                         });
                     });
-                    put_box(minf, b"stbl", |stbl| self.stbl(stbl, sps, pps, first_offset));
+                    put_box(minf, b"stbl", |stbl| {
+                        self.stbl(stbl, sps, pps, first_offset)
+                    });
                 });
             });
         });
@@ -466,7 +477,11 @@ mod tests {
         while i + 8 <= data.len() {
             let size = u32::from_be_bytes(data[i..i + 4].try_into().unwrap()) as usize;
             let kind: [u8; 4] = data[i + 4..i + 8].try_into().unwrap();
-            assert!(size >= 8 && i + size <= data.len(), "box {:?} overruns", kind);
+            assert!(
+                size >= 8 && i + size <= data.len(),
+                "box {:?} overruns",
+                kind
+            );
             out.push((kind, &data[i + 8..i + size]));
             i += size;
         }
@@ -514,9 +529,12 @@ mod tests {
     #[test]
     fn file_structure_follows_iso_14496_12_and_15() {
         let mut m = Mp4Muxer::new(64, 48, ColourInfo::BT709_LIMITED).unwrap();
-        m.push(&access_unit(true, &[0x65, 9, 9, 9]), 900 * 8, true).unwrap();
-        m.push(&access_unit(false, &[0x41, 7, 7]), 900 * 8, false).unwrap();
-        m.push(&access_unit(false, &[0x41, 5]), 900 * 108, false).unwrap();
+        m.push(&access_unit(true, &[0x65, 9, 9, 9]), 900 * 8, true)
+            .unwrap();
+        m.push(&access_unit(false, &[0x41, 7, 7]), 900 * 8, false)
+            .unwrap();
+        m.push(&access_unit(false, &[0x41, 5]), 900 * 108, false)
+            .unwrap();
         let mut file = Vec::new();
         let n = m.finish(&mut file).unwrap();
         assert_eq!(n as usize, file.len());
@@ -583,7 +601,11 @@ mod tests {
         m.push(&access_unit(true, &[0x65, 1]), 10, true).unwrap();
         let mut other = access_unit(true, &[0x65, 1]);
         other[7] = 40; // another level_idc
-        assert!(m.push(&other, 10, true).unwrap_err().0.contains("parameter set"));
+        assert!(m
+            .push(&other, 10, true)
+            .unwrap_err()
+            .0
+            .contains("parameter set"));
         assert!(m.push(&access_unit(false, &[0x41]), 0, false).is_err());
     }
 }

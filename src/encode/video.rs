@@ -77,7 +77,9 @@ impl VideoOptions {
 
     /// The H.264 quantisation parameter (0–51, lower = finer) for this quality.
     pub fn qp(&self) -> u8 {
-        let q = self.quality.clamp(*QUALITY_RANGE.start(), *QUALITY_RANGE.end());
+        let q = self
+            .quality
+            .clamp(*QUALITY_RANGE.start(), *QUALITY_RANGE.end());
         42 - 3 * q
     }
 }
@@ -149,7 +151,11 @@ impl VideoWriter {
                 format!("a {width} x {height} video is outside what the H.264 encoder takes (2 to 3840 x 2160); change view.width/view.height or set output.video to null"),
             ));
         }
-        let fps = if fps.is_finite() && fps > 0.0 { fps } else { 12.0 };
+        let fps = if fps.is_finite() && fps > 0.0 {
+            fps
+        } else {
+            12.0
+        };
         let qp = opts.qp();
         let config = EncoderConfig::new()
             .profile(Profile::Baseline)
@@ -248,7 +254,10 @@ impl VideoWriter {
         let ticks = end.saturating_sub(self.elapsed_ticks).max(1);
         self.elapsed_ticks += ticks;
         let ticks = u32::try_from(ticks).map_err(|_| {
-            Error::output(&self.path, "a frame lasting over 13 hours; shorten timeline.hold_s")
+            Error::output(
+                &self.path,
+                "a frame lasting over 13 hours; shorten timeline.hold_s",
+            )
         })?;
         self.mux
             .push(&self.annex_b, ticks, is_sync)
@@ -331,7 +340,13 @@ fn coefficients() -> [[i32; 3]; 3] {
 ///
 /// # Panics
 /// If the planes do not match `size` or the frame is smaller than `size` (a bug in the caller).
-pub fn rgba_to_yuv420_into(frame: &Frame, size: (u32, u32), y: &mut [u8], u: &mut [u8], v: &mut [u8]) {
+pub fn rgba_to_yuv420_into(
+    frame: &Frame,
+    size: (u32, u32),
+    y: &mut [u8],
+    u: &mut [u8],
+    v: &mut [u8],
+) {
     let (w, h) = (size.0 as usize, size.1 as usize);
     let stride = frame.width as usize * 4;
     assert!(w % 2 == 0 && h % 2 == 0 && w <= frame.width as usize && h <= frame.height as usize);
@@ -361,8 +376,10 @@ pub fn rgba_to_yuv420_into(frame: &Frame, size: (u32, u32), y: &mut [u8], u: &mu
             let g = a[1] as i32 + a[5] as i32 + d[1] as i32 + d[5] as i32;
             let b = a[2] as i32 + a[6] as i32 + d[2] as i32 + d[6] as i32;
             let round = 1 << 17;
-            *cb = (128 + ((c[1][0] * r + c[1][1] * g + c[1][2] * b + round) >> 18)).clamp(0, 255) as u8;
-            *cr = (128 + ((c[2][0] * r + c[2][1] * g + c[2][2] * b + round) >> 18)).clamp(0, 255) as u8;
+            *cb = (128 + ((c[1][0] * r + c[1][1] * g + c[1][2] * b + round) >> 18)).clamp(0, 255)
+                as u8;
+            *cr = (128 + ((c[2][0] * r + c[2][1] * g + c[2][2] * b + round) >> 18)).clamp(0, 255)
+                as u8;
         }
     }
 }
@@ -424,7 +441,10 @@ mod tests {
     fn quality_maps_to_a_pinned_quantiser() {
         let q = |quality| VideoOptions { quality }.qp();
         assert_eq!((q(1), q(7), q(10)), (39, 21, 12));
-        assert!(VideoOptions { quality: 0 }.validate().unwrap_err().starts_with("video.quality"));
+        assert!(VideoOptions { quality: 0 }
+            .validate()
+            .unwrap_err()
+            .starts_with("video.quality"));
         assert!(VideoOptions { quality: 11 }.validate().is_err());
         assert!(VideoOptions::default().validate().is_ok());
     }
@@ -445,10 +465,16 @@ mod tests {
             .collect();
         let write = |name: &str| {
             let p = dir.path().join(name);
-            let mut w = VideoWriter::create(&p, 47, 32, 12.0, &VideoOptions::default(), false).unwrap();
+            let mut w =
+                VideoWriter::create(&p, 47, 32, 12.0, &VideoOptions::default(), false).unwrap();
             assert_eq!(w.size(), (46, 32));
             for (i, f) in frames.iter().enumerate() {
-                w.write_frame(f, if i == 3 { 1.0 + 1.0 / 12.0 } else { 1.0 / 12.0 }, i == 3).unwrap();
+                w.write_frame(
+                    f,
+                    if i == 3 { 1.0 + 1.0 / 12.0 } else { 1.0 / 12.0 },
+                    i == 3,
+                )
+                .unwrap();
             }
             let stats = w.finish().unwrap();
             (std::fs::read(&p).unwrap(), stats)
@@ -459,7 +485,11 @@ mod tests {
         assert_eq!(stats.frames, 6);
         assert_eq!(stats.keyframes, 2, "the first frame and the survey frame");
         // Six frames at 12 fps plus a one-second hold: 1.5 s exactly (7500 ticks a frame).
-        assert!((stats.duration_s - 1.5).abs() < 1e-12, "{}", stats.duration_s);
+        assert!(
+            (stats.duration_s - 1.5).abs() < 1e-12,
+            "{}",
+            stats.duration_s
+        );
         assert_eq!(stats.bytes as usize, a.len());
         // Nothing but the two files is left in the folder.
         let mut names: Vec<_> = std::fs::read_dir(dir.path())
@@ -475,18 +505,23 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let p = dir.path().join("v.mp4");
         std::fs::write(&p, b"old").unwrap();
-        let e = VideoWriter::create(&p, 64, 48, 12.0, &VideoOptions::default(), false).err().unwrap();
+        let e = VideoWriter::create(&p, 64, 48, 12.0, &VideoOptions::default(), false)
+            .err()
+            .unwrap();
         assert!(e.to_string().contains("overwrite"), "{e}");
         assert_eq!(std::fs::read(&p).unwrap(), b"old");
         // A writer that is dropped before finish writes nothing.
         let q = dir.path().join("w.mp4");
         let mut w = VideoWriter::create(&q, 64, 48, 12.0, &VideoOptions::default(), false).unwrap();
-        w.write_frame(&solid(64, 48, [10, 200, 30]), 0.1, false).unwrap();
+        w.write_frame(&solid(64, 48, [10, 200, 30]), 0.1, false)
+            .unwrap();
         drop(w);
         assert!(!q.exists());
         // A wrong-sized frame is an error, and finish with no frames writes nothing.
         let mut w = VideoWriter::create(&q, 64, 48, 12.0, &VideoOptions::default(), false).unwrap();
-        assert!(w.write_frame(&solid(32, 48, [0, 0, 0]), 0.1, false).is_err());
+        assert!(w
+            .write_frame(&solid(32, 48, [0, 0, 0]), 0.1, false)
+            .is_err());
         assert!(w.finish().is_err());
         assert!(!q.exists());
         let names: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();

@@ -635,8 +635,10 @@ mod tests {
         let job = parse(&d.path().join("job.yaml"), text).unwrap();
         assert_eq!(job.output.video.as_deref(), Some("Dunes.MP4"));
         assert_eq!(job.video.quality, 9);
-        let e = err(&(MINIMAL.replace("folder: out", "folder: out, video: dune.mp4")
-            + "video: { qualty: 9 }\n"));
+        let e = err(
+            &(MINIMAL.replace("folder: out", "folder: out, video: dune.mp4")
+                + "video: { qualty: 9 }\n"),
+        );
         assert!(e.contains("did you mean `quality`"), "{e}");
     }
 
@@ -785,13 +787,19 @@ mod tests {
                 MINIMAL.replace("folder: out", "folder: out, video: .mp4"),
                 "output.video",
             ),
-            (format!("{MINIMAL}video: {{ quality: 0 }}\n"), "video.quality"),
+            (
+                format!("{MINIMAL}video: {{ quality: 0 }}\n"),
+                "video.quality",
+            ),
             (
                 MINIMAL.replace("folder: out", "folder: out, video: v.mp4")
                     + "view: { width: 4096, height: 2160 }\n",
                 "output.video",
             ),
-            (format!("{MINIMAL}video: {{ quality: 11 }}\n"), "video.quality"),
+            (
+                format!("{MINIMAL}video: {{ quality: 11 }}\n"),
+                "video.quality",
+            ),
             (
                 format!("{MINIMAL}colour: {{ by: drape, drape: photo.tif }}\n"),
                 "colour.drape",

@@ -6,8 +6,8 @@ use std::path::Path;
 use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
 use crate::change;
 use crate::encode::gif;
-use crate::encode::video::VideoWriter;
 use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
+use crate::encode::video::VideoWriter;
 use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
@@ -84,7 +84,10 @@ pub(super) fn write_outputs(
                 warnings.push(msg);
             }
             let path = scratch.join(name);
-            Some((VideoWriter::create(&path, w, h, job.fps, &job.video, false)?, path))
+            Some((
+                VideoWriter::create(&path, w, h, job.fps, &job.video, false)?,
+                path,
+            ))
         }
         None => None,
     };

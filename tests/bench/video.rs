@@ -32,7 +32,10 @@ extern "C" {
 /// This thread's CPU time in ms (Linux CLOCK_THREAD_CPUTIME_ID = 3), or wall time elsewhere.
 fn cpu_ms(wall: Instant) -> f64 {
     if cfg!(all(target_os = "linux", target_pointer_width = "64")) {
-        let mut ts = Timespec { tv_sec: 0, tv_nsec: 0 };
+        let mut ts = Timespec {
+            tv_sec: 0,
+            tv_nsec: 0,
+        };
         // SAFETY: `ts` is a valid, writable timespec with the 64-bit Linux layout (checked above).
         if unsafe { clock_gettime(3, &mut ts) } == 0 {
             return ts.tv_sec as f64 * 1e3 + ts.tv_nsec as f64 / 1e6;
@@ -60,7 +63,10 @@ fn render_standard(out: &Path, quality: u8) -> PathBuf {
         } else if t.starts_with("height:") {
             format!("{indent}height: 720")
         } else if t.starts_with("folder:") {
-            format!("{indent}folder: {}\n{indent}video: standard.mp4", out.display())
+            format!(
+                "{indent}folder: {}\n{indent}video: standard.mp4",
+                out.display()
+            )
         } else if t.starts_with("gif:") {
             format!("{indent}gif: standard.gif")
         } else {
@@ -147,12 +153,23 @@ fn main() {
     }
     w.finish().unwrap();
     let mean = times.iter().sum::<f64>() / times.len() as f64;
-    println!("video encode, 1280x720, 1 core: median {:.2} ms/frame, mean {:.2} ms/frame (target <= 15)", median(times), mean);
-    println!("colour conversion alone: median {:.2} ms/frame", median(conv));
+    println!(
+        "video encode, 1280x720, 1 core: median {:.2} ms/frame, mean {:.2} ms/frame (target <= 15)",
+        median(times),
+        mean
+    );
+    println!(
+        "colour conversion alone: median {:.2} ms/frame",
+        median(conv)
+    );
 
-    let gif = std::fs::metadata(bag.join("data/animation/standard.gif")).unwrap().len();
+    let gif = std::fs::metadata(bag.join("data/animation/standard.gif"))
+        .unwrap()
+        .len();
     let report = |quality: u8, bag: &Path| {
-        let mp4 = std::fs::metadata(bag.join("data/animation/standard.mp4")).unwrap().len();
+        let mp4 = std::fs::metadata(bag.join("data/animation/standard.mp4"))
+            .unwrap()
+            .len();
         let q = match psnr(bag, &frame_files(bag)) {
             Some((m, w)) => format!("PSNR mean {m:.2} dB, worst frame {w:.2} dB"),
             None => "PSNR not measured (ffmpeg missing)".into(),
