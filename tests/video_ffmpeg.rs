@@ -294,3 +294,39 @@ fn check_refuses_bad_video_keys_with_exit_2_and_writes_nothing() {
         assert!(!d.path().join("out").exists());
     }
 }
+
+#[test]
+fn video_and_viewer_are_byte_identical_on_one_and_two_threads() {
+    let d = tempfile::tempdir().unwrap();
+    let path = common::moving_dune_job(d.path(), "in_between: { method: morph }\n");
+    let text = std::fs::read_to_string(&path).unwrap().replace(
+        "output: { folder: out }",
+        "output: { folder: out, video: dune.mp4 }",
+    );
+    std::fs::write(&path, text).unwrap();
+    let job = dunereel::job::load(&path).unwrap();
+    let run_in = |threads: usize, name: &str| {
+        let out = d.path().join(name);
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| {
+            dunereel::run_job(
+                &job,
+                &dunereel::RunOptions {
+                    output_folder: Some(out.clone()),
+                    ..Default::default()
+                },
+            )
+        })
+        .unwrap();
+        let read = |rel: &str| std::fs::read(out.join(rel)).unwrap();
+        (
+            read("data/animation/dune.mp4"),
+            read("data/viewer/index.html"),
+        )
+    };
+    // Check: common practice, no source — same job, same build: same bytes on any thread count.
+    assert!(run_in(1, "one") == run_in(2, "two"));
+}
