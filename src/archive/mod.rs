@@ -381,7 +381,7 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
             "fields" => "displacement field of each pair: band 1 east, band 2 north, metres",
             "job" => "the job file as run",
             "poster.png" => "the surveys side by side, seen from one viewpoint",
-            "viewer" => "viewer/index.html: open in a browser to look through the record offline",
+            "viewer" => "the record as one web page: open it in a browser, no network needed",
             _ => "added by the run",
         };
         let name = if n > 1 {
