@@ -444,3 +444,28 @@ fn everything_the_viewer_shows_is_in_the_manifest_and_verified() {
     let report = dunereel::archive::verify(&bag).unwrap();
     assert_eq!(report.altered, vec!["data/viewer/index.html".to_string()]);
 }
+
+#[test]
+fn a_record_without_png_frames_still_gets_a_viewer_without_frame_links() {
+    let d = tempfile::tempdir().unwrap();
+    let job = common::moving_dune_job(d.path(), "");
+    let text = std::fs::read_to_string(&job).unwrap().replace(
+        "output: { folder: out }",
+        "output: { folder: out, png_frames: false }",
+    );
+    std::fs::write(&job, text).unwrap();
+    let job = dunereel::job::load(&job).unwrap();
+    let bag = dunereel::run_job(&job, &dunereel::RunOptions::default())
+        .unwrap()
+        .folder;
+    let html = std::fs::read_to_string(bag.join("data/viewer/index.html")).unwrap();
+    let data = dunereel::archive::viewer::embedded_data(&html).unwrap();
+    assert!(data["frames"].is_null(), "{}", data["frames"]);
+    let files = data["files"].as_array().unwrap();
+    assert!(files
+        .iter()
+        .all(|f| !f.as_str().unwrap().starts_with("frames/")));
+    assert!(files.iter().any(|f| f == "animation/animation.gif"));
+    assert!(html.contains("made without PNG frames"));
+    assert!(dunereel::archive::verify(&bag).unwrap().is_intact());
+}
