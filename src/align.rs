@@ -187,6 +187,10 @@ fn crop_geometry(g: &GridGeometry, a: &AreaOfInterest) -> Option<GridGeometry> {
 /// Bilinear resampling of `src` onto `target`; exact copy when the cells coincide. Cells outside
 /// `src`, or whose neighbourhood touches nodata, are NaN. The caller checks the CRS.
 pub fn resample(src: &Grid, target: &GridGeometry) -> Array2<f32> {
+    // A grid already on the analysis grid (the usual case: surveys delivered on one grid) is copied.
+    if src.geometry == *target {
+        return src.z.clone();
+    }
     Array2::from_shape_fn((target.rows, target.cols), |(r, c)| {
         let (x, y) = target.cell_center(r, c);
         let (sr, sc) = src.geometry.to_cell(x, y);

@@ -266,6 +266,9 @@ fn render_one(
     bar.finish_and_clear();
     let report = report?;
     print_warnings(&report.warnings, flags.quiet);
+    if log::log_enabled!(log::Level::Info) {
+        print_timings(&report.timings);
+    }
     Ok(Some(summary_line(&report)))
 }
 
@@ -278,6 +281,16 @@ fn summary_line(report: &dunereel::RunReport) -> String {
         report.frames - report.survey_frames,
         report.files
     )
+}
+
+/// The stage table printed with `-v`.
+fn print_timings(timings: &[(&str, f64)]) {
+    let total: f64 = timings.iter().map(|t| t.1).sum();
+    eprintln!("{:<40} {:>8} {:>6}", "stage", "seconds", "share");
+    for (stage, s) in timings {
+        eprintln!("{stage:<40} {s:>8.2} {:>5.1}%", 100.0 * s / total.max(1e-9));
+    }
+    eprintln!("{:<40} {total:>8.2}", "total");
 }
 
 fn print_warnings(warnings: &[String], quiet: bool) {

@@ -56,6 +56,8 @@ pub struct RunReport {
     pub files: usize,
     /// Warnings worth showing the user (also logged).
     pub warnings: Vec<String>,
+    /// Wall-clock seconds of each stage, in order (not part of the record).
+    pub timings: Vec<(&'static str, f64)>,
 }
 
 /// Most memory the kept animation frames may take, in bytes (frames are kept for the GIF palette).
@@ -156,20 +158,28 @@ pub(super) struct Prepared {
     /// The image draped over the terrain, when the job colours by one.
     pub(super) drape: Option<Drape>,
     pub(super) warnings: Vec<String>,
+    /// Seconds spent in each stage so far.
+    pub(super) timings: Vec<(&'static str, f64)>,
 }
 
 fn prepare(job: &Job) -> Result<Prepared> {
+    let mut clock = Stopwatch::start();
+    // Grids are read side by side; the first failing survey in job order is the one reported.
     let surveys = job
         .surveys
-        .iter()
+        .par_iter()
         .map(survey::read_survey)
+        .collect::<Vec<_>>()
+        .into_iter()
         .collect::<Result<Vec<_>>>()?;
+    clock.lap("read grids");
     let unit_warnings: Vec<String> = surveys
         .iter()
         .enumerate()
         .flat_map(|(i, s)| s.unit_warnings(i))
         .collect();
     let stack = align::align(surveys, job.area_of_interest)?;
+    clock.lap("align");
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
     let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
     let range = stack
@@ -206,7 +216,9 @@ fn prepare(job: &Job) -> Result<Prepared> {
             ),
         ));
     }
+    clock.lap("renderer, shell, drape");
     let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    clock.lap("change record");
     let mut warnings = unit_warnings;
     warnings.append(&mut record.warnings);
 
@@ -251,6 +263,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         }
     }
     record.warnings.extend(warnings.iter().cloned());
+    clock.lap("displacement fields");
     Ok(Prepared {
         stack,
         timeline,
@@ -260,7 +273,31 @@ fn prepare(job: &Job) -> Result<Prepared> {
         shell_grid,
         drape,
         warnings,
+        timings: clock.laps,
     })
+}
+
+/// Wall-clock time of each stage of a run, for `-v` and the benchmarks. Kept out of the record on
+/// purpose: the record must be byte-identical on every machine, thread count and split into parts.
+pub(super) struct Stopwatch {
+    last: std::time::Instant,
+    pub(super) laps: Vec<(&'static str, f64)>,
+}
+
+impl Stopwatch {
+    pub(super) fn start() -> Self {
+        Stopwatch {
+            last: std::time::Instant::now(),
+            laps: Vec::new(),
+        }
+    }
+    /// Records the time since the previous lap under `stage`.
+    pub(super) fn lap(&mut self, stage: &'static str) {
+        let now = std::time::Instant::now();
+        self.laps
+            .push((stage, now.duration_since(self.last).as_secs_f64()));
+        self.last = now;
+    }
 }
 
 /// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that

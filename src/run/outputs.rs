@@ -34,7 +34,10 @@ pub(super) fn write_outputs(
         shell_grid,
         drape,
         mut warnings,
+        timings,
     } = prepared;
+    let mut clock = super::Stopwatch::start();
+    clock.laps = timings;
     std::fs::create_dir_all(scratch).map_err(|e| {
         // The working folder is an implementation detail; name the folder the user chose.
         let parent = scratch.parent().unwrap_or(Path::new("."));
@@ -128,6 +131,12 @@ pub(super) fn write_outputs(
             cb(t.index + 1, n);
         }
     }
+    // With a video, each frame's H.264 encoding is inside this lap too (it runs as frames come).
+    clock.lap(if video.is_some() {
+        "frames: surface, render, PNG, video"
+    } else {
+        "frames: surface, render, labels, PNG"
+    });
     if let Some((seq, dir)) = png {
         seq.finish()?;
         extra.extend(files_under(&dir, "frames")?);
@@ -148,6 +157,7 @@ pub(super) fn write_outputs(
             name: format!("animation/{name}"),
             content: ExtraContent::File(path),
         });
+        clock.lap("video file");
     }
     if let Some(name) = &job.output.gif {
         let path = scratch.join(name);
@@ -164,6 +174,7 @@ pub(super) fn write_outputs(
             stats.mean_colour_error
         );
         drop(kept);
+        clock.lap("GIF");
         extra.push(ExtraFile {
             name: format!("animation/{name}"),
             content: ExtraContent::File(path),
@@ -206,6 +217,7 @@ pub(super) fn write_outputs(
             name: "poster.png".into(),
             content: ExtraContent::File(path),
         });
+        clock.lap("poster");
     }
     // The displacement fields as two-band rasters (east, north in metres), for the record.
     for (i, f) in fields.iter().enumerate() {
@@ -220,6 +232,7 @@ pub(super) fn write_outputs(
                 "east displacement (m)".into(),
                 "north displacement (m)".into(),
             ],
+            effort: geotiff::Effort::Fast,
         };
         geotiff::write_bands(
             &path,
@@ -233,7 +246,9 @@ pub(super) fn write_outputs(
         });
     }
 
+    clock.lap("displacement rasters");
     let figures = change::figures(&stack, &record, &job.change);
+    clock.lap("maps and charts");
     // The viewer page is made from the files above, so it comes last among the extras.
     let page = archive::viewer::page(&archive::viewer::ViewerInputs {
         title: &job.title,
@@ -247,6 +262,7 @@ pub(super) fn write_outputs(
         name: archive::viewer::PAGE.into(),
         content: ExtraContent::Bytes(page.into_bytes()),
     });
+    clock.lap("viewer page");
     let archive = archive::write_archive(
         folder,
         &record,
@@ -258,6 +274,7 @@ pub(super) fn write_outputs(
             protected: super::protected(job),
         },
     )?;
+    clock.lap("archive and checksums");
     warnings.dedup();
     Ok(RunReport {
         folder: archive.dir,
@@ -269,6 +286,7 @@ pub(super) fn write_outputs(
             .count(),
         files: archive.payload_files,
         warnings,
+        timings: clock.laps,
     })
 }
 

@@ -198,6 +198,7 @@ pub fn render_part(job: &Job, opts: &RunOptions, spec: PartSpec) -> Result<PartR
         shell_grid,
         drape,
         warnings,
+        ..
     } = prepared;
     let total = timeline.frames.len();
     let range = spec.frames(total);
