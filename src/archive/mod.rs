@@ -13,6 +13,7 @@
 //!   data/tables/transect.csv|json    profiles (only with a transect)
 //!   data/maps/*.png  data/charts/*.png
 //!   data/<extra files>               e.g. the animation and the job file as run
+//!   data/viewer/index.html           the record as one offline web page (`viewer`), when the run adds it
 //! ```
 //!
 //! Safety: everything is checked (names, extra files, the output folder) before the first byte is
@@ -22,6 +23,7 @@
 pub mod bagit;
 pub mod replace;
 pub mod table;
+pub mod viewer;
 
 use std::fs;
 use std::path::{Path, PathBuf};
@@ -385,7 +387,7 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
     for (key, first, n) in groups {
         let what = match key {
             "animation" => {
-                "the animation; frames between surveys are interpolations, not measurements"
+                "the animation (GIF, and MP4 video when asked); frames between surveys are interpolations, not measurements"
             }
             "frames" => {
                 "the animation's frames as numbered PNGs, and index.csv saying which are surveyed"
@@ -393,6 +395,7 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
             "fields" => "displacement field of each pair: band 1 east, band 2 north, metres",
             "job" => "the job file as run",
             "poster.png" => "the surveys side by side, seen from one viewpoint",
+            "viewer" => "the record as one web page: open it in a browser, no network needed",
             _ => "added by the run",
         };
         let name = if n > 1 {

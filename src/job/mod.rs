@@ -17,6 +17,7 @@ use crate::annotate::LabelOptions;
 use crate::change::ChangeOptions;
 use crate::encode::gif::GifOptions;
 use crate::encode::png_seq::PosterOptions;
+use crate::encode::video::VideoOptions;
 use crate::error::{Error, Result};
 use crate::interp::flow::FlowOptions;
 use crate::render::{LightOptions, ShellOptions, ViewOptions, WaterOptions};
@@ -114,6 +115,8 @@ pub struct OutputSpec {
     pub folder: PathBuf,
     /// File name of the animated GIF inside the folder, or None for no GIF.
     pub gif: Option<String>,
+    /// File name of the H.264/MP4 video inside the folder, or None for no video.
+    pub video: Option<String>,
     /// Whether to write the numbered PNG frames.
     pub png_frames: bool,
     /// Whether to write the poster of the surveys side by side.
@@ -170,6 +173,8 @@ pub struct Job {
     pub animation: GifOptions,
     /// Poster layout.
     pub poster: PosterOptions,
+    /// How the MP4 video is made (used when `output.video` names one).
+    pub video: VideoOptions,
     /// Change record settings.
     pub change: ChangeOptions,
     /// Co-registration settings (`coregister`, `stable_ground`).

@@ -7,6 +7,7 @@ use crate::annotate::LabelOptions;
 use crate::change::ChangeOptions;
 use crate::encode::gif::GifOptions;
 use crate::encode::png_seq::PosterOptions;
+use crate::encode::video::VideoOptions;
 use crate::interp::flow::FlowOptions;
 use crate::render::{LightOptions, ShellOptions, ViewOptions, WaterOptions};
 
@@ -43,6 +44,8 @@ pub(super) struct JobFile {
     pub animation: GifOptions,
     #[serde(default)]
     pub poster: PosterOptions,
+    #[serde(default)]
+    pub video: VideoOptions,
     #[serde(default)]
     pub change: ChangeOptions,
     /// Co-register later surveys to the first on stable ground.
@@ -197,6 +200,8 @@ pub(super) struct OutputEntry {
     pub folder: String,
     #[serde(default = "default_gif")]
     pub gif: Option<String>,
+    #[serde(default)]
+    pub video: Option<String>,
     #[serde(default = "default_true")]
     pub png_frames: bool,
     #[serde(default = "default_true")]

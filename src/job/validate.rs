@@ -490,7 +490,21 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         ));
     }
     let (coregister, stable_ground) = resolve_stable_ground(path, here, &f)?;
+    f.video.validate().map_err(|m| match m.split_once(": ") {
+        Some((key, rest)) => bad(key, rest.to_string()),
+        None => bad("video", m),
+    })?;
     let output = resolve_output(path, here, &f.output)?;
+    if output.video.is_some() {
+        // OpenH264 takes frames up to 3840 × 2160 either way round.
+        let (w, h) = (f.view.width & !1, f.view.height & !1);
+        if w.max(h) > 3840 || w.min(h) > 2160 || w.min(h) < 2 {
+            return Err(bad(
+                "output.video",
+                format!("the H.264 encoder takes frames from 2 up to 3840 x 2160 (either way round), the view is {} x {}; lower view.width/view.height or remove output.video", f.view.width, f.view.height),
+            ));
+        }
+    }
     Ok(Job {
         path: path.to_path_buf(),
         text,
@@ -517,6 +531,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         credit: f.credit,
         animation: f.animation,
         poster: f.poster,
+        video: f.video,
         change: f.change,
         coregister,
         stable_ground,
@@ -651,9 +666,31 @@ fn resolve_output(path: &Path, here: &Path, o: &OutputEntry) -> Result<OutputSpe
             ));
         }
     }
+    if let Some(v) = &o.video {
+        let plain = Path::new(v)
+            .file_name()
+            .map(|n| n == v.as_str())
+            .unwrap_or(false);
+        let stem_ok = v.len() > 4 && !v.starts_with('.');
+        if !plain || !stem_ok || !v.to_ascii_lowercase().ends_with(".mp4") {
+            return Err(Error::job(
+                path,
+                "output.video",
+                format!("\"{v}\" should be a plain file name ending in .mp4, such as dunes.mp4 (it is written inside output.folder, beside the GIF)"),
+            ));
+        }
+        if o.gif.as_deref().is_some_and(|g| g.eq_ignore_ascii_case(v)) {
+            return Err(Error::job(
+                path,
+                "output.video",
+                format!("\"{v}\" is also the GIF's name; give the video its own name"),
+            ));
+        }
+    }
     Ok(OutputSpec {
         folder: tidy(&here.join(&o.folder)),
         gif: o.gif.clone(),
+        video: o.video.clone(),
         png_frames: o.png_frames,
         poster: o.poster,
         overwrite: o.overwrite,
@@ -684,7 +721,24 @@ mod tests {
         assert_eq!(job.frame_plan, FramePlan::PerYear(12.0));
         assert_eq!(job.methods, vec![Method::Linear]);
         assert_eq!(job.output.gif.as_deref(), Some("animation.gif"));
+        assert_eq!(job.output.video, None);
+        assert_eq!(job.video.quality, 7);
         assert!(!job.output.overwrite);
+    }
+
+    #[test]
+    fn video_name_and_quality_are_taken() {
+        let d = job_dir();
+        let text = MINIMAL.replace("folder: out", "folder: out, video: Dunes.MP4")
+            + "video: { quality: 9 }\n";
+        let job = parse(&d.path().join("job.yaml"), text).unwrap();
+        assert_eq!(job.output.video.as_deref(), Some("Dunes.MP4"));
+        assert_eq!(job.video.quality, 9);
+        let e = err(
+            &(MINIMAL.replace("folder: out", "folder: out, video: dune.mp4")
+                + "video: { qualty: 9 }\n"),
+        );
+        assert!(e.contains("did you mean `quality`"), "{e}");
     }
 
     fn err(text: &str) -> String {
@@ -843,6 +897,31 @@ mod tests {
             (
                 format!("{MINIMAL}colour: {{ by: drape }}\n"),
                 "colour.drape",
+            ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: films/dune.mp4"),
+                "output.video",
+            ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: dune.mov"),
+                "output.video",
+            ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: .mp4"),
+                "output.video",
+            ),
+            (
+                format!("{MINIMAL}video: {{ quality: 0 }}\n"),
+                "video.quality",
+            ),
+            (
+                MINIMAL.replace("folder: out", "folder: out, video: v.mp4")
+                    + "view: { width: 4096, height: 2160 }\n",
+                "output.video",
+            ),
+            (
+                format!("{MINIMAL}video: {{ quality: 11 }}\n"),
+                "video.quality",
             ),
             (
                 format!("{MINIMAL}colour: {{ by: drape, drape: photo.tif }}\n"),

@@ -7,6 +7,7 @@ use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
 use crate::change;
 use crate::encode::gif;
 use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
+use crate::encode::video::VideoWriter;
 use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
@@ -74,6 +75,25 @@ pub(super) fn write_outputs(
     } else {
         None
     };
+    let mut video = match &job.output.video {
+        Some(name) => {
+            let (w, h) = (job.view.width, job.view.height);
+            if w % 2 == 1 || h % 2 == 1 {
+                let msg = format!(
+                    "{name}: the frame size {w} x {h} is odd; the video leaves out the last pixel {} (H.264 4:2:0 needs even sizes); the GIF and PNG frames keep every pixel",
+                    if w % 2 == 1 && h % 2 == 1 { "column and row" } else if w % 2 == 1 { "column" } else { "row" }
+                );
+                log::info!("{msg}");
+                warnings.push(msg);
+            }
+            let path = scratch.join(name);
+            Some((
+                VideoWriter::create(&path, w, h, job.fps, &job.video, false)?,
+                path,
+            ))
+        }
+        None => None,
+    };
     for t in &timeline.frames {
         let peak_height = match &source {
             FrameSource::Render => {
@@ -101,6 +121,9 @@ pub(super) fn write_outputs(
             };
             seq.write_frame(&frame, row)?;
         }
+        if let Some((v, _)) = video.as_mut() {
+            v.write_frame(&frame, t.duration_s, t.kind.is_measured())?;
+        }
         if job.output.gif.is_some() {
             kept.push(frame.clone());
         }
@@ -108,10 +131,33 @@ pub(super) fn write_outputs(
             cb(t.index + 1, n);
         }
     }
-    clock.lap("frames: surface, render, labels, PNG");
+    // With a video, each frame's H.264 encoding is inside this lap too (it runs as frames come).
+    clock.lap(if video.is_some() {
+        "frames: surface, render, PNG, video"
+    } else {
+        "frames: surface, render, labels, PNG"
+    });
     if let Some((seq, dir)) = png {
         seq.finish()?;
         extra.extend(files_under(&dir, "frames")?);
+    }
+    if let Some((v, path)) = video {
+        let stats = v.finish()?;
+        log::info!(
+            "video: {} frames of {} x {}, {:.2} s, {} bytes, {} keyframes",
+            stats.frames,
+            stats.size.0,
+            stats.size.1,
+            stats.duration_s,
+            stats.bytes,
+            stats.keyframes
+        );
+        let name = job.output.video.as_deref().unwrap_or("animation.mp4");
+        extra.push(ExtraFile {
+            name: format!("animation/{name}"),
+            content: ExtraContent::File(path),
+        });
+        clock.lap("video file");
     }
     if let Some(name) = &job.output.gif {
         let path = scratch.join(name);
@@ -203,6 +249,20 @@ pub(super) fn write_outputs(
     clock.lap("displacement rasters");
     let figures = change::figures(&stack, &record, &job.change);
     clock.lap("maps and charts");
+    // The viewer page is made from the files above, so it comes last among the extras.
+    let page = archive::viewer::page(&archive::viewer::ViewerInputs {
+        title: &job.title,
+        record: &record,
+        figures: &figures,
+        extra: &extra,
+        fps: job.fps,
+        hold_s: job.hold_s,
+    })?;
+    extra.push(ExtraFile {
+        name: archive::viewer::PAGE.into(),
+        content: ExtraContent::Bytes(page.into_bytes()),
+    });
+    clock.lap("viewer page");
     let archive = archive::write_archive(
         folder,
         &record,
