@@ -120,6 +120,11 @@ impl FrameView {
         d / self.camera.focal_px
     }
 
+    /// The vertical exaggeration this frame was rendered with.
+    pub fn vertical_exaggeration(&self) -> f64 {
+        self.exaggeration
+    }
+
     /// The camera of this frame (local metres about the grid centre; exaggerated heights).
     pub fn camera(&self) -> &Camera {
         &self.camera
