@@ -11,6 +11,9 @@
 
 mod frames;
 mod outputs;
+mod still;
+
+pub use still::{parse_view, still, StillOptions, StillReport, ViewOverride};
 
 use std::path::{Path, PathBuf};
 
@@ -103,25 +106,11 @@ fn prepare(job: &Job) -> Result<Prepared> {
     let stack = align::align(surveys, job.area_of_interest)?;
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
     let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
-    let range = stack
-        .elevation_range()
-        .expect("align refuses all-nodata grids");
-    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
-        .map_err(|m| keyed_job_error(&job.path, "view", m))?;
-    renderer
-        .set_water(&job.water)
-        .map_err(|m| keyed_job_error(&job.path, "water", m))?;
-    renderer
-        .set_shell(&job.shell)
-        .map_err(|m| keyed_job_error(&job.path, "shell", m))?;
-    let shell_grid = match &job.shell_grid {
-        Some(path) => Some(read_shell_grid(path, stack.geometry())?),
-        None => None,
-    };
-    let drape = match &job.colour {
-        ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
-        _ => None,
-    };
+    let Scene {
+        renderer,
+        shell_grid,
+        drape,
+    } = scene(job, &stack)?;
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
     if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
         return Err(Error::job(
@@ -143,12 +132,10 @@ fn prepare(job: &Job) -> Result<Prepared> {
 
     // The displacement field of every consecutive pair: the morph needs it, and the record reports
     // the dominant displacement as the migration of the landform.
-    let cell_m = stack.geometry().cell_x_m();
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for i in 0..stack.len() - 1 {
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
-        let result =
-            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE);
+        let result = pair_field(job, &stack, i);
         let pair = record
             .pairs
             .iter_mut()
@@ -186,6 +173,46 @@ fn prepare(job: &Job) -> Result<Prepared> {
         drape,
         warnings,
     })
+}
+
+/// The renderer and what it draws besides the surveys, checked against the stack.
+pub(super) struct Scene {
+    pub(super) renderer: Renderer,
+    pub(super) shell_grid: Option<ndarray::Array2<f32>>,
+    pub(super) drape: Option<Drape>,
+}
+
+pub(super) fn scene(job: &Job, stack: &AlignedStack) -> Result<Scene> {
+    let range = stack
+        .elevation_range()
+        .expect("align refuses all-nodata grids");
+    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
+        .map_err(|m| keyed_job_error(&job.path, "view", m))?;
+    renderer
+        .set_water(&job.water)
+        .map_err(|m| keyed_job_error(&job.path, "water", m))?;
+    renderer
+        .set_shell(&job.shell)
+        .map_err(|m| keyed_job_error(&job.path, "shell", m))?;
+    let shell_grid = match &job.shell_grid {
+        Some(path) => Some(read_shell_grid(path, stack.geometry())?),
+        None => None,
+    };
+    let drape = match &job.colour {
+        ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
+        _ => None,
+    };
+    Ok(Scene {
+        renderer,
+        shell_grid,
+        drape,
+    })
+}
+
+/// The displacement field of the pair (survey `i`, survey `i + 1`).
+pub(super) fn pair_field(job: &Job, stack: &AlignedStack, i: usize) -> FlowResult {
+    let cell_m = stack.geometry().cell_x_m();
+    flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE)
 }
 
 /// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that
