@@ -246,11 +246,19 @@ pub fn plan(width: u32, height: u32, overlay: &Overlay, opts: &LabelOptions) -> 
         if fits(&p, width as f32, height as f32) {
             return p;
         }
+        // Strictly in order: an element that found no room so far counts as dropped too, so it
+        // cannot reappear once later ones make room.
         let next = DROP_ORDER
             .iter()
-            .find(|e| !dropped.contains(*e) && present(&p, **e));
+            .position(|e| !dropped.contains(e) && present(&p, *e));
         match next {
-            Some(e) => dropped.push(*e),
+            Some(k) => {
+                for e in &DROP_ORDER[..=k] {
+                    if !dropped.contains(e) {
+                        dropped.push(*e);
+                    }
+                }
+            }
             None => {
                 // Even the essentials cannot fit: draw no text rather than cut it at the frame
                 // edge. The crest ring (no text) is still drawn.
@@ -372,7 +380,11 @@ fn plan_with(
     if badge.lines.first().is_none_or(|l| l.ends_with('…')) || badge.size_px < px(2.6) * 0.85 {
         badge = fit_text(short_badge, Weight::Bold, px(2.6), MIN_TEXT_PX, badge_room, 1);
     }
-    // The badge is not optional: `labels.status` is refused by the job check.
+    // The badge cannot be turned off in a job (the job check refuses `labels.status: false`); the
+    // library still allows a bare frame.
+    if !opts.status {
+        badge = empty(Weight::Bold);
+    }
     let row1_h = date_rect.map_or(badge.height + 2.0 * pad, |r| r.h);
     let badge_rect = (!badge.lines.is_empty()).then(|| Rect {
         x: row1_right,
@@ -441,19 +453,23 @@ fn plan_with(
             }
         }
     }
+    // The exaggeration goes with the status mark: on every frame of a run.
+    if !opts.status && scale_bar.is_none() {
+        scale_words.clear();
+    }
     let scale_text = fit_text(&scale_words, Weight::Regular, small, MIN_TEXT_PX, fw * 0.45, 1);
     let bar_h = (0.9 * u).max(2.0);
-    let scale = {
+    let scale = (!scale_text.lines.is_empty()).then(|| {
         let bar_w = scale_bar.map_or(0.0, |(_, p)| p);
         let w = scale_text.width.max(bar_w) + 2.0 * halo;
         let h = scale_text.height + 2.0 * halo + if scale_bar.is_some() { bar_h + 0.4 * u } else { 0.0 };
-        Some(Rect {
+        Rect {
             x: scale_right - w,
             y: band_y + (band_h - h) / 2.0,
             w,
             h,
-        })
-    };
+        }
+    });
     let legend_right = scale.map_or(scale_right, |s| s.x - gap);
     let (legend, legend_title, legend_lo, legend_hi) =
         match (&ov.legend, opts.legend && on(Optional::Legend)) {
