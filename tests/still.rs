@@ -151,3 +151,24 @@ fn still_refuses_bad_requests_and_writes_nothing() {
     let sheet = image::open(d.path().join("sheet.png")).unwrap();
     assert!(sheet.width() > 192 && sheet.height() > 108);
 }
+
+/// Not a check: renders the noisy series at 1280x720 into target/noisy-preview/ for a person to
+/// look at (`cargo test --test still -- --ignored`).
+#[test]
+#[ignore]
+fn noisy_series_preview() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("target/noisy-preview");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let job_path = common::noisy_series_job(
+        &dir,
+        0.1,
+        "labels: { crest_shows: height-above-reference }\nchange: { reference_elevation_m: 2.0 }\ncredit: Invented test coast, seeded noise of 0.1 m\n",
+    );
+    let text = std::fs::read_to_string(&job_path)
+        .unwrap()
+        .replace("width: 192, height: 108", "width: 1280, height: 720");
+    std::fs::write(&job_path, text).unwrap();
+    let job = job::load(&job_path).unwrap();
+    run_job(&job, &RunOptions::default()).unwrap();
+}

@@ -507,7 +507,7 @@ fn plan_with(
         (Some(c), true) if !c.survey_points.is_empty() => Some(Rect {
             x: m,
             y: band_y,
-            w: 42.0 * u,
+            w: 46.0 * u,
             h: band_h,
         }),
         _ => None,

@@ -340,13 +340,20 @@ impl Annotator {
                 c.unit.trim()
             )
         };
-        let col_w = (r.w * 0.45 - pad).max(1.0);
-        let head = super::fit::fit_text(&heading, Weight::Regular, small, layout::MIN_TEXT_PX, col_w, 1);
-        let rng = super::fit::fit_text(&range, Weight::Regular, small, layout::MIN_TEXT_PX, col_w, 1);
+        // The name never shrinks below the smallest text size: it wraps to two lines instead, and
+        // then the range gives way.
+        let col_w = (r.w * 0.5 - pad).max(1.0);
+        let head = super::fit::fit_text(&heading, Weight::Regular, small, small, col_w, 2);
+        let rng = if head.lines.len() < 2 {
+            super::fit::fit_text(&range, Weight::Regular, small, small, col_w, 1)
+        } else {
+            FittedText::empty(Weight::Regular)
+        };
         let text_h = head.height + rng.height;
         let ty = ((r.h - text_h) / 2.0).max(pad * 0.5);
-        if let Some(line) = head.lines.first() {
-            stamp_onto(&mut layer, &stamp(line, head.size_px, Weight::Regular, 0.0), pad, ty, SOFT_WHITE);
+        for (i, line) in head.lines.iter().enumerate() {
+            let y = ty + i as f32 * head.size_px * LINE_SPACING;
+            stamp_onto(&mut layer, &stamp(line, head.size_px, Weight::Regular, 0.0), pad, y, SOFT_WHITE);
         }
         if let Some(line) = rng.lines.first() {
             stamp_onto(&mut layer, &stamp(line, rng.size_px, Weight::Regular, 0.0), pad, ty + head.height, [200, 206, 214, 255]);
