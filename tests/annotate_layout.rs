@@ -328,7 +328,11 @@ fn panels_cover_at_most_a_tenth_stay_in_their_bands_and_read_from_the_back() {
             assert!(share <= 0.10, "{w}x{h}: panels change {share}");
             // Check: common practice, no source — text of about 1/40 of the screen height reads
             // from the back of a meeting room; nothing smaller is drawn
-            assert!(p.smallest_text_px >= SMALLEST_TEXT * fh - 0.01, "{}", p.smallest_text_px);
+            assert!(
+                p.smallest_text_px >= SMALLEST_TEXT * fh - 0.01,
+                "{}",
+                p.smallest_text_px
+            );
             // The frame states the vertical exaggeration, and the status mark is there.
             assert!(p.scale.is_some() && p.badge.is_some());
         }

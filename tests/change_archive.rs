@@ -38,6 +38,9 @@ fn survey(k: usize, dir: &std::path::Path) -> Survey {
             compression: "none".into(),
             nodata: Some(-9999.0),
             vertical_unit: LinearUnit::Metre,
+            vertical_unit_source: dunereel::grid::UnitSource::File,
+            horizontal_unit: LinearUnit::Metre,
+            horizontal_unit_source: dunereel::grid::UnitSource::File,
             pixel_is_point: false,
         },
     }
@@ -67,6 +70,7 @@ fn run(threads: usize, out: &std::path::Path, inputs: &std::path::Path) {
         let aopts = ArchiveOptions {
             overwrite: false,
             bagging_date: chrono::NaiveDate::from_ymd_opt(2044, 1, 1),
+            ..Default::default()
         };
         write_archive(out, &rec, &figs, &extra, &aopts).unwrap();
     });
@@ -94,7 +98,8 @@ fn archive_is_identical_on_one_or_many_threads_and_verifies() {
     let surveys = std::fs::read_to_string(a.join("data/tables/surveys.csv")).unwrap();
     let header = surveys.lines().next().unwrap();
     assert!(
-        header.contains("volume_above_reference_ft3") && header.contains("peak_height_ft"),
+        header.contains("volume_above_reference_ft3")
+            && header.contains("crest_height_above_reference_ft"),
         "{header}"
     );
     // The survey without a stated uncertainty is flagged in its row and in the README.

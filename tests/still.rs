@@ -52,7 +52,10 @@ fn still_matches_the_rendered_frames_and_the_crest_ignores_noise() {
     let job = job::load(&job_path).unwrap();
     let report = run_job(&job, &RunOptions::default()).unwrap();
     assert!(
-        report.warnings.iter().all(|w| !w.contains("no reliable displacement")),
+        report
+            .warnings
+            .iter()
+            .all(|w| !w.contains("no reliable displacement")),
         "{:?}",
         report.warnings
     );
@@ -71,11 +74,17 @@ fn still_matches_the_rendered_frames_and_the_crest_ignores_noise() {
     for (k, &(i, crest)) in surveys.iter().enumerate() {
         let truth = 2.0 + 12.0 - 0.4 * k as f64;
         // Check: analytic crest of the noise-free Gaussian dune; bound 0.10 m from issue #9 item 8
-        assert!((crest - truth).abs() < 0.10, "survey {k}: crest {crest} vs {truth}");
+        assert!(
+            (crest - truth).abs() < 0.10,
+            "survey {k}: crest {crest} vs {truth}"
+        );
         worst_cell = worst_cell.max(rows[i].3 - truth);
     }
     // The single highest cell stays in the index under its own name, riding on the noise.
-    assert!(worst_cell > 0.1, "highest cell at most {worst_cell} above the crest");
+    assert!(
+        worst_cell > 0.1,
+        "highest cell at most {worst_cell} above the crest"
+    );
     for i in 1..rows.len() - 1 {
         let mid = (rows[i - 1].2 + rows[i + 1].2) / 2.0;
         // Check: the noise-free crest falls linearly in time (morph of a Gaussian moving at a
@@ -94,7 +103,8 @@ fn still_matches_the_rendered_frames_and_the_crest_ignores_noise() {
         // Two frames may share a date only with many frames a year; not here.
         assert_eq!(rows.iter().filter(|r| &r.0[..10] == date).count(), 1);
         let file = format!("still-{i}.png");
-        let (code, stdout, err) = dunereel(&["still", "job.yaml", "--at", date, "-o", &file], d.path());
+        let (code, stdout, err) =
+            dunereel(&["still", "job.yaml", "--at", date, "-o", &file], d.path());
         assert_eq!(code, 0, "{err}");
         assert!(stdout.contains("view: {"), "{stdout}");
         let ours = std::fs::read(d.path().join(&file)).unwrap();
@@ -107,16 +117,38 @@ fn still_matches_the_rendered_frames_and_the_crest_ignores_noise() {
 fn still_refuses_bad_requests_and_writes_nothing() {
     let d = tempfile::tempdir().unwrap();
     common::noisy_series_job(d.path(), 0.1, "");
-    let before: Vec<_> = std::fs::read_dir(d.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    let before: Vec<_> = std::fs::read_dir(d.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
     for (args, says) in [
         (
             vec!["--at", "2029-12-31", "-o", "x.png"],
             "outside the surveys, which span 2030-06-01 to 2034-06-01",
         ),
-        (vec!["--at", "2031-02-30", "-o", "x.png"], "not a calendar date; write YYYY-MM-DD"),
-        (vec!["--at", "2031-01-01", "-o", "x.png", "--view", "20,35"], "not 3"),
-        (vec!["--at", "2031-01-01", "-o", "x.png", "--view", "north,35,300"], "facing \"north\" is not a number"),
-        (vec!["--at", "2031-01-01", "-o", "x.png", "--sheet", "0"], "give 1 to 36"),
+        (
+            vec!["--at", "2031-02-30", "-o", "x.png"],
+            "not a calendar date; write YYYY-MM-DD",
+        ),
+        (
+            vec!["--at", "2031-01-01", "-o", "x.png", "--view", "20,35"],
+            "not 3",
+        ),
+        (
+            vec![
+                "--at",
+                "2031-01-01",
+                "-o",
+                "x.png",
+                "--view",
+                "north,35,300",
+            ],
+            "facing \"north\" is not a number",
+        ),
+        (
+            vec!["--at", "2031-01-01", "-o", "x.png", "--sheet", "0"],
+            "give 1 to 36",
+        ),
     ] {
         let mut all = vec!["still", "job.yaml"];
         all.extend(args.iter());
@@ -125,17 +157,37 @@ fn still_refuses_bad_requests_and_writes_nothing() {
         assert!(err.contains(says), "{args:?}: {err}");
         assert!(!d.path().join("x.png").exists());
     }
-    let after: Vec<_> = std::fs::read_dir(d.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    let after: Vec<_> = std::fs::read_dir(d.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
     assert_eq!(before.len(), after.len());
 
     // An existing file is kept unless --overwrite is given.
     std::fs::write(d.path().join("mine.png"), b"the user's own picture").unwrap();
-    let (code, _, err) = dunereel(&["still", "job.yaml", "--at", "2031-01-01", "-o", "mine.png"], d.path());
-    assert_ne!(code, 0);
-    assert!(err.contains("already exists") && err.contains("--overwrite"), "{err}");
-    assert_eq!(std::fs::read(d.path().join("mine.png")).unwrap(), b"the user's own picture");
     let (code, _, err) = dunereel(
-        &["still", "job.yaml", "--at", "2031-01-01", "-o", "mine.png", "--overwrite"],
+        &["still", "job.yaml", "--at", "2031-01-01", "-o", "mine.png"],
+        d.path(),
+    );
+    assert_ne!(code, 0);
+    assert!(
+        err.contains("already exists") && err.contains("--overwrite"),
+        "{err}"
+    );
+    assert_eq!(
+        std::fs::read(d.path().join("mine.png")).unwrap(),
+        b"the user's own picture"
+    );
+    let (code, _, err) = dunereel(
+        &[
+            "still",
+            "job.yaml",
+            "--at",
+            "2031-01-01",
+            "-o",
+            "mine.png",
+            "--overwrite",
+        ],
         d.path(),
     );
     assert_eq!(code, 0, "{err}");
@@ -143,7 +195,16 @@ fn still_refuses_bad_requests_and_writes_nothing() {
 
     // A contact sheet of four viewpoints, each captioned with view keys to paste.
     let (code, stdout, err) = dunereel(
-        &["still", "job.yaml", "--at", "2031-01-01", "-o", "sheet.png", "--sheet", "4"],
+        &[
+            "still",
+            "job.yaml",
+            "--at",
+            "2031-01-01",
+            "-o",
+            "sheet.png",
+            "--sheet",
+            "4",
+        ],
         d.path(),
     );
     assert_eq!(code, 0, "{err}");

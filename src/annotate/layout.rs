@@ -307,9 +307,10 @@ pub(super) fn boxes(p: &Plan) -> Vec<Rect> {
 
 fn fits(p: &Plan, w: f32, h: f32) -> bool {
     let b = boxes(p);
-    b.iter().enumerate().all(|(i, a)| {
-        a.inside(w, h) && a.w > 0.0 && !b[i + 1..].iter().any(|o| a.overlaps(o))
-    }) && p.date.is_some() == !p.t.date.lines.is_empty()
+    b.iter()
+        .enumerate()
+        .all(|(i, a)| a.inside(w, h) && a.w > 0.0 && !b[i + 1..].iter().any(|o| a.overlaps(o)))
+        && p.date.is_some() == !p.t.date.lines.is_empty()
 }
 
 /// A text's box with room for its halo.
@@ -350,7 +351,14 @@ fn plan_with(
         empty(Weight::Bold)
     };
     let crest_name = if opts.crest {
-        fit_text(&ov.crest.name, Weight::Regular, small, MIN_TEXT_PX, fw * 0.3, 1)
+        fit_text(
+            &ov.crest.name,
+            Weight::Regular,
+            small,
+            MIN_TEXT_PX,
+            fw * 0.3,
+            1,
+        )
     } else {
         empty(Weight::Regular)
     };
@@ -368,7 +376,14 @@ fn plan_with(
 
     // ---- Top band, left: date, badge beside it, detail under both.
     let date = if opts.date {
-        fit_text(&ov.date_text, Weight::Bold, px(4.6), MIN_TEXT_PX, fw * 0.4, 1)
+        fit_text(
+            &ov.date_text,
+            Weight::Bold,
+            px(4.6),
+            MIN_TEXT_PX,
+            fw * 0.4,
+            1,
+        )
     } else {
         empty(Weight::Bold)
     };
@@ -376,9 +391,23 @@ fn plan_with(
     let date_rect = (!date.lines.is_empty()).then(|| text_rect(m + halo, m + halo, &date, halo));
     let row1_right = date_rect.map_or(m, |r| r.right() + gap * 0.6);
     let badge_room = (right_limit - row1_right - 2.0 * pad).max(1.0);
-    let mut badge = fit_text(long_badge, Weight::Bold, px(2.6), MIN_TEXT_PX, badge_room, 1);
+    let mut badge = fit_text(
+        long_badge,
+        Weight::Bold,
+        px(2.6),
+        MIN_TEXT_PX,
+        badge_room,
+        1,
+    );
     if badge.lines.first().is_none_or(|l| l.ends_with('…')) || badge.size_px < px(2.6) * 0.85 {
-        badge = fit_text(short_badge, Weight::Bold, px(2.6), MIN_TEXT_PX, badge_room, 1);
+        badge = fit_text(
+            short_badge,
+            Weight::Bold,
+            px(2.6),
+            MIN_TEXT_PX,
+            badge_room,
+            1,
+        );
     }
     // The badge cannot be turned off in a job (the job check refuses `labels.status: false`); the
     // library still allows a bare frame.
@@ -394,7 +423,14 @@ fn plan_with(
     });
     let row2_y = m + row1_h + 0.2 * u;
     let detail = if opts.status && on(Optional::StatusDetail) {
-        fit_text(&detail_s, Weight::Regular, small, MIN_TEXT_PX, right_limit - m - 2.0 * halo, 1)
+        fit_text(
+            &detail_s,
+            Weight::Regular,
+            small,
+            MIN_TEXT_PX,
+            right_limit - m - 2.0 * halo,
+            1,
+        )
     } else {
         empty(Weight::Regular)
     };
@@ -409,7 +445,14 @@ fn plan_with(
         .fold(m, f32::max);
     let title_room = right_limit - head_right - 2.0 * gap;
     let title = if opts.title && on(Optional::Title) && title_room > 12.0 * u {
-        fit_text(&ov.title, Weight::Bold, px(2.7), small.min(px(2.7)), title_room, 2)
+        fit_text(
+            &ov.title,
+            Weight::Bold,
+            px(2.7),
+            small.min(px(2.7)),
+            title_room,
+            2,
+        )
     } else {
         empty(Weight::Bold)
     };
@@ -457,12 +500,25 @@ fn plan_with(
     if !opts.status && scale_bar.is_none() {
         scale_words.clear();
     }
-    let scale_text = fit_text(&scale_words, Weight::Regular, small, MIN_TEXT_PX, fw * 0.45, 1);
+    let scale_text = fit_text(
+        &scale_words,
+        Weight::Regular,
+        small,
+        MIN_TEXT_PX,
+        fw * 0.45,
+        1,
+    );
     let bar_h = (0.9 * u).max(2.0);
     let scale = (!scale_text.lines.is_empty()).then(|| {
         let bar_w = scale_bar.map_or(0.0, |(_, p)| p);
         let w = scale_text.width.max(bar_w) + 2.0 * halo;
-        let h = scale_text.height + 2.0 * halo + if scale_bar.is_some() { bar_h + 0.4 * u } else { 0.0 };
+        let h = scale_text.height
+            + 2.0 * halo
+            + if scale_bar.is_some() {
+                bar_h + 0.4 * u
+            } else {
+                0.0
+            };
         Rect {
             x: scale_right - w,
             y: band_y + (band_h - h) / 2.0,
@@ -627,7 +683,10 @@ mod tests {
         let metres = plan(1280, 720, &ov, &LabelOptions::default());
         let (len_m, px_m) = metres.t.scale_bar.expect("room for a scale bar");
         let words = metres.t.scale_text.lines.join(" ");
-        assert!(words.contains(" m") && words.contains("heights ×2.5"), "{words}");
+        assert!(
+            words.contains(" m") && words.contains("heights ×2.5"),
+            "{words}"
+        );
         assert!(((px_m as f64) * 0.5 - len_m).abs() < 1e-3);
         // Check: international foot = 0.3048 m exactly (from memory, 1959 agreement); the bar's
         // length in pixels times metres per pixel equals the labelled feet times 0.3048

@@ -12,5 +12,7 @@ pub mod shapes;
 pub mod text;
 
 pub use layout::{plan, Optional, Plan, Rect, DROP_ORDER};
-pub use overlay::{CrestFigure, CrestLabel, FrameStatus, InsetChart, LabelOptions, Legend, Overlay};
+pub use overlay::{
+    CrestFigure, CrestLabel, FrameStatus, InsetChart, LabelOptions, Legend, Overlay,
+};
 pub use paint::{draw_overlay, Annotator};

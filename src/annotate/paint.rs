@@ -110,7 +110,15 @@ impl Annotator {
             };
             if let Some(mut c) = shapes::canvas(frame) {
                 // A dark rim keeps the badge's edge clear on pale sand.
-                shapes::fill_round_rect(&mut c, b.x - 1.0, b.y - 1.0, b.w + 2.0, b.h + 2.0, 0.5 * u + 1.0, HALO);
+                shapes::fill_round_rect(
+                    &mut c,
+                    b.x - 1.0,
+                    b.y - 1.0,
+                    b.w + 2.0,
+                    b.h + 2.0,
+                    0.5 * u + 1.0,
+                    HALO,
+                );
                 shapes::fill_round_rect(&mut c, b.x, b.y, b.w, b.h, 0.5 * u, fill);
             }
             let pad = p.t.pad;
@@ -126,7 +134,14 @@ impl Annotator {
             // Right-aligned: name above, value below.
             let (name, value) = (&p.t.crest_name, &p.t.crest_value);
             let right = r.right() - halo;
-            self.text(frame, right - name.width, r.y + halo, name, SOFT_WHITE, halo);
+            self.text(
+                frame,
+                right - name.width,
+                r.y + halo,
+                name,
+                SOFT_WHITE,
+                halo,
+            );
             self.text(
                 frame,
                 right - value.width,
@@ -143,11 +158,31 @@ impl Annotator {
             let t = &p.t.scale_text;
             self.text(frame, r.x + halo, r.y + halo, t, SOFT_WHITE, halo);
             if let (Some((_, bar_px)), Some(mut c)) = (p.t.scale_bar, shapes::canvas(frame)) {
-                let (bx, by, bh) = (r.x + halo, r.y + halo + t.height + 0.4 * u, (0.9 * u).max(2.0));
+                let (bx, by, bh) = (
+                    r.x + halo,
+                    r.y + halo + t.height + 0.4 * u,
+                    (0.9 * u).max(2.0),
+                );
                 // Two halves, white and grey, on a dark rim: readable on light and dark ground.
-                shapes::fill_round_rect(&mut c, bx - 1.5, by - 1.5, bar_px + 3.0, bh + 3.0, 1.0, HALO);
+                shapes::fill_round_rect(
+                    &mut c,
+                    bx - 1.5,
+                    by - 1.5,
+                    bar_px + 3.0,
+                    bh + 3.0,
+                    1.0,
+                    HALO,
+                );
                 shapes::fill_round_rect(&mut c, bx, by, bar_px / 2.0, bh, 0.0, WHITE);
-                shapes::fill_round_rect(&mut c, bx + bar_px / 2.0, by, bar_px / 2.0, bh, 0.0, [150, 155, 160, 255]);
+                shapes::fill_round_rect(
+                    &mut c,
+                    bx + bar_px / 2.0,
+                    by,
+                    bar_px / 2.0,
+                    bh,
+                    0.0,
+                    [150, 155, 160, 255],
+                );
             }
         }
         if let (Some(r), Some(a)) = (p.north, overlay.north_angle_rad) {
@@ -159,7 +194,10 @@ impl Annotator {
         if p.dropped.is_empty() && !p.too_small {
             return;
         }
-        let sig = format!("{}x{} {:?} {}", frame.width, frame.height, p.dropped, p.too_small);
+        let sig = format!(
+            "{}x{} {:?} {}",
+            frame.width, frame.height, p.dropped, p.too_small
+        );
         if self.last_warning.as_deref() == Some(sig.as_str()) {
             return;
         }
@@ -191,7 +229,15 @@ impl Annotator {
     }
 
     /// Draws fitted text with its top-left corner at (x, y), rounded to whole pixels.
-    fn text(&mut self, frame: &mut Frame, x: f32, y: f32, t: &FittedText, rgba: [u8; 4], halo: f32) {
+    fn text(
+        &mut self,
+        frame: &mut Frame,
+        x: f32,
+        y: f32,
+        t: &FittedText,
+        rgba: [u8; 4],
+        halo: f32,
+    ) {
         for (i, line) in t.lines.iter().enumerate() {
             let s = self.stamp(line, t.size_px, t.weight, halo);
             let ly = y + i as f32 * t.size_px * LINE_SPACING;
@@ -213,7 +259,14 @@ impl Annotator {
         }
         if let Some(t) = p.marker_label {
             let halo = p.t.halo_px;
-            self.text(frame, t.x + halo, t.y + halo, &p.t.marker.clone(), WHITE, halo);
+            self.text(
+                frame,
+                t.x + halo,
+                t.y + halo,
+                &p.t.marker.clone(),
+                WHITE,
+                halo,
+            );
         }
     }
 
@@ -288,7 +341,13 @@ impl Annotator {
         let (cx, _) = g.to_px(t, g.y0);
         let (cx, top, bottom) = (cx + ox, g.plot.y + oy, g.plot.bottom() + oy);
         if let Some(mut cv) = shapes::canvas(frame) {
-            shapes::stroke_polyline(&mut cv, &[(cx, top), (cx, bottom)], (0.25 * u).max(1.0), INTERP_BADGE, None);
+            shapes::stroke_polyline(
+                &mut cv,
+                &[(cx, top), (cx, bottom)],
+                (0.25 * u).max(1.0),
+                INTERP_BADGE,
+                None,
+            );
             if v.is_finite() {
                 let (_, vy) = g.to_px(t, v.clamp(g.y0, g.y1));
                 shapes::fill_circle(&mut cv, cx, vy + oy, (0.6 * u).max(2.0), [0, 0, 0, 200]);
@@ -299,7 +358,12 @@ impl Annotator {
 
     /// The chart's box, heading, value range and the surveys (dots joined by a dashed line: nothing
     /// was measured between them), drawn once.
-    fn chart_layer(&mut self, r: Rect, c: &InsetChart, p: &Plan) -> Option<(Pixmap, ChartGeometry)> {
+    fn chart_layer(
+        &mut self,
+        r: Rect,
+        c: &InsetChart,
+        p: &Plan,
+    ) -> Option<(Pixmap, ChartGeometry)> {
         let u = p.unit;
         let (w, h) = (r.w.ceil() as u32, r.h.ceil() as u32);
         let mut layer = shapes::layer(w, h)?;
@@ -353,10 +417,22 @@ impl Annotator {
         let ty = ((r.h - text_h) / 2.0).max(pad * 0.5);
         for (i, line) in head.lines.iter().enumerate() {
             let y = ty + i as f32 * head.size_px * LINE_SPACING;
-            stamp_onto(&mut layer, &stamp(line, head.size_px, Weight::Regular, 0.0), pad, y, SOFT_WHITE);
+            stamp_onto(
+                &mut layer,
+                &stamp(line, head.size_px, Weight::Regular, 0.0),
+                pad,
+                y,
+                SOFT_WHITE,
+            );
         }
         if let Some(line) = rng.lines.first() {
-            stamp_onto(&mut layer, &stamp(line, rng.size_px, Weight::Regular, 0.0), pad, ty + head.height, [200, 206, 214, 255]);
+            stamp_onto(
+                &mut layer,
+                &stamp(line, rng.size_px, Weight::Regular, 0.0),
+                pad,
+                ty + head.height,
+                [200, 206, 214, 255],
+            );
         }
         let dot = (0.45 * u).max(1.5);
         let left = pad + head.width.max(rng.width) + 1.2 * u + dot;
@@ -416,18 +492,38 @@ fn legend_layer(r: Rect, l: &Legend, p: &Plan) -> Option<Pixmap> {
     let mut layer = shapes::layer(r.w.ceil() as u32, r.h.ceil() as u32)?;
     let t = &p.t.legend_title;
     if let Some(line) = t.lines.first() {
-        stamp_onto_halo(&mut layer, &stamp(line, t.size_px, t.weight, halo), halo, halo, SOFT_WHITE);
+        stamp_onto_halo(
+            &mut layer,
+            &stamp(line, t.size_px, t.weight, halo),
+            halo,
+            halo,
+            SOFT_WHITE,
+        );
     }
     let y = halo + t.height;
     let lo_w = measure_text(small, &p.t.legend_lo).0;
     let hi_w = measure_text(small, &p.t.legend_hi).0;
-    stamp_onto_halo(&mut layer, &stamp(&p.t.legend_lo, small, Weight::Regular, halo), halo, y, WHITE);
+    stamp_onto_halo(
+        &mut layer,
+        &stamp(&p.t.legend_lo, small, Weight::Regular, halo),
+        halo,
+        y,
+        WHITE,
+    );
     let ramp_x = halo + lo_w + p.t.pad;
     let ramp_w = (r.w - 2.0 * halo - lo_w - hi_w - 2.0 * p.t.pad).max(1.0);
     let ramp_h = (1.5 * u).max(3.0);
     let ramp_y = y + (small - ramp_h) / 2.0 + 0.1 * small;
     let mut cv = layer.as_mut();
-    shapes::fill_round_rect(&mut cv, ramp_x - 1.5, ramp_y - 1.5, ramp_w + 3.0, ramp_h + 3.0, 1.0, HALO);
+    shapes::fill_round_rect(
+        &mut cv,
+        ramp_x - 1.5,
+        ramp_y - 1.5,
+        ramp_w + 3.0,
+        ramp_h + 3.0,
+        1.0,
+        HALO,
+    );
     shapes::fill_ramp(&mut cv, ramp_x, ramp_y, ramp_w, ramp_h, &l.stops);
     stamp_onto_halo(
         &mut layer,
@@ -452,7 +548,10 @@ fn stamp_onto_halo(layer: &mut Pixmap, s: &Stamp, x: f32, y: f32, rgba: [u8; 4])
 fn put_stamp(layer: &mut Pixmap, s: &Stamp, x: f32, y: f32, rgba: [u8; 4], halo: Option<[u8; 4]>) {
     // Draw through a scratch frame of the stamp's size: transparent, then blended by coverage.
     let (lw, lh) = (layer.width() as i64, layer.height() as i64);
-    let (ox, oy) = (x.round() as i64 - s.pad as i64, y.round() as i64 - s.pad as i64);
+    let (ox, oy) = (
+        x.round() as i64 - s.pad as i64,
+        y.round() as i64 - s.pad as i64,
+    );
     let cov = s.coverage();
     let data = layer.data_mut();
     for sy in 0..s.height {

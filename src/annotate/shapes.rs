@@ -212,7 +212,10 @@ mod tests {
         fill_round_rect(&mut c, 2.0, 2.0, 4.0, 4.0, 0.0, [200, 100, 0, 128]);
         // Check: analytic — alpha 128/255 over black gives 200·0.502 = 100 (±1 for rounding)
         let p = px(&f, 3, 3);
-        assert!((p[0] as i32 - 100).abs() <= 1 && (p[1] as i32 - 50).abs() <= 1, "{p:?}");
+        assert!(
+            (p[0] as i32 - 100).abs() <= 1 && (p[1] as i32 - 50).abs() <= 1,
+            "{p:?}"
+        );
         assert_eq!(p[3], 255);
         assert_eq!(px(&f, 7, 7), [0, 0, 0, 255]);
     }
@@ -250,8 +253,20 @@ mod tests {
     fn nonsense_input_does_not_panic() {
         let mut f = Frame::new(4, 3);
         let mut c = canvas(&mut f).unwrap();
-        stroke_polyline(&mut c, &[(-100.0, -100.0), (100.0, 100.0)], 3.0, [255; 4], None);
-        stroke_polyline(&mut c, &[(f32::NAN, 0.0), (1.0, 1.0)], 3.0, [255; 4], Some((2.0, 2.0)));
+        stroke_polyline(
+            &mut c,
+            &[(-100.0, -100.0), (100.0, 100.0)],
+            3.0,
+            [255; 4],
+            None,
+        );
+        stroke_polyline(
+            &mut c,
+            &[(f32::NAN, 0.0), (1.0, 1.0)],
+            3.0,
+            [255; 4],
+            Some((2.0, 2.0)),
+        );
         fill_circle(&mut c, 1e12, 1e12, 5.0, [255; 4]);
         fill_round_rect(&mut c, -5.0, -5.0, 100.0, 100.0, 8.0, [0, 0, 0, 100]);
         fill_polygon(&mut c, &[(0.0, 0.0), (1.0, 1.0), (2.0, 2.0)], [255; 4]);

@@ -146,10 +146,17 @@ impl Stamp {
 
 /// Rasterises `text` at `size_px` with a halo reaching `halo_px` beyond the glyphs.
 pub fn stamp(text: &str, size_px: f32, weight: Weight, halo_px: f32) -> Stamp {
-    let halo_px = if halo_px.is_finite() { halo_px.clamp(0.0, 8.0) } else { 0.0 };
+    let halo_px = if halo_px.is_finite() {
+        halo_px.clamp(0.0, 8.0)
+    } else {
+        0.0
+    };
     let (w, h) = measure_text_weighted(size_px, text, weight);
     let pad = halo_px.ceil() as usize + 1;
-    let (sw, sh) = (w.ceil() as usize + 2 * pad + 1, h.ceil() as usize + 2 * pad + 1);
+    let (sw, sh) = (
+        w.ceil() as usize + 2 * pad + 1,
+        h.ceil() as usize + 2 * pad + 1,
+    );
     let mut glyph = vec![0.0f32; sw * sh];
     if size_px.is_finite() && size_px > 0.0 {
         let f = font(weight);

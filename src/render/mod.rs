@@ -124,7 +124,11 @@ impl FrameView {
     /// distance_m), the orbit's turn included.
     pub fn view_values(&self) -> (f64, f64, f64) {
         let e = self.camera.eye;
-        let d = [self.target[0] - e[0], self.target[1] - e[1], self.target[2] - e[2]];
+        let d = [
+            self.target[0] - e[0],
+            self.target[1] - e[1],
+            self.target[2] - e[2],
+        ];
         let horizontal = d[0].hypot(d[1]);
         let facing = d[0].atan2(d[1]).to_degrees().rem_euclid(360.0);
         let elevation = (-d[2]).atan2(horizontal).to_degrees();
@@ -233,7 +237,7 @@ impl Renderer {
         })?;
         check((1..=4).contains(&v.supersample), || {
             format!(
-                "view.supersample: {} is outside 1..=4; use 1 (off), 2 or 3",
+                "view.supersample: {} is not one of 1 (off), 2, 3 or 4 samples a side; use 2 for smooth edges",
                 v.supersample
             )
         })?;

@@ -18,13 +18,13 @@ use crate::timeline::{self, FrameKind, FrameTime};
 
 use super::effective_method;
 
-/// The figures of one frame's surface, in metres, for the frame index.
-#[derive(Debug, Clone, Copy)]
-pub(super) struct FrameFigures {
-    /// Crest of the frame's surface (survey or in-between), when it has data.
-    pub(super) crest: Option<Crest>,
+/// The figures of one frame's surface, in metres, for the frame index (and a part's manifest).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub(crate) struct FrameFigures {
+    /// Crest elevation of the frame's surface (survey or in-between), when it has data.
+    pub(crate) crest_elevation_m: Option<f64>,
     /// Elevation of the single highest cell, when it has data.
-    pub(super) highest_cell_m: Option<f64>,
+    pub(crate) highest_cell_elevation_m: Option<f64>,
 }
 
 /// Per-job state for painting frames.
@@ -157,7 +157,9 @@ impl<'a> Painter<'a> {
                 to_date: date_of(to),
             },
         };
-        let shown = crest.map_or(f64::NAN, |c| shown_crest_m(job, c.elevation_m) / unit.metres());
+        let shown = crest.map_or(f64::NAN, |c| {
+            shown_crest_m(job, c.elevation_m) / unit.metres()
+        });
         let name = crest_name(job);
         let overlay = Overlay {
             title: job.title.clone(),
@@ -185,8 +187,8 @@ impl<'a> Painter<'a> {
         };
         self.annotator.draw(frame, &overlay, &job.labels);
         FrameFigures {
-            crest,
-            highest_cell_m,
+            crest_elevation_m: crest.map(|c: Crest| c.elevation_m),
+            highest_cell_elevation_m: highest_cell_m,
         }
     }
 }

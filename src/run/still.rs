@@ -98,9 +98,7 @@ pub fn parse_view(text: &str) -> std::result::Result<ViewOverride, String> {
         ));
     }
     if distance_m <= 0.0 {
-        return Err(format!(
-            "distance {distance_m} m must be above 0; {how}"
-        ));
+        return Err(format!("distance {distance_m} m must be above 0; {how}"));
     }
     Ok(ViewOverride {
         facing_deg: facing_deg.rem_euclid(360.0),
@@ -167,7 +165,8 @@ pub fn still(job: &Job, opts: &StillOptions) -> Result<StillReport> {
         shell_grid,
         drape,
     } = scene(job, &stack)?;
-    let record = change::record(&stack, &job.change).map_err(|e| super::in_job_file(e, &job.path))?;
+    let record =
+        change::record(&stack, &job.change).map_err(|e| super::in_job_file(e, &job.path))?;
     // Only the field of the frame's own interval, and only when that interval morphs.
     let mut fields: Vec<Option<FlowResult>> = (0..stack.len() - 1).map(|_| None).collect();
     if let FrameKind::Interpolated { from, .. } = t.kind {
@@ -302,8 +301,8 @@ fn frame_at(timeline: &Timeline, stack: &AlignedStack, date: NaiveDate) -> (Fram
     let to = from + 1;
     let d0 = surveys[from].date.and_time(chrono::NaiveTime::MIN);
     let d1 = surveys[to].date.and_time(chrono::NaiveTime::MIN);
-    let weight = ((when - d0).num_seconds() as f64 / (d1 - d0).num_seconds().max(1) as f64)
-        .clamp(0.0, 1.0);
+    let weight =
+        ((when - d0).num_seconds() as f64 / (d1 - d0).num_seconds().max(1) as f64).clamp(0.0, 1.0);
     let t = FrameTime {
         index: a.index,
         when,
@@ -339,7 +338,10 @@ mod tests {
             ("20,35,inf", "not a number"),
         ] {
             let e = parse_view(bad).unwrap_err();
-            assert!(e.contains(says) && e.contains("--view 20,35,900"), "{bad}: {e}");
+            assert!(
+                e.contains(says) && e.contains("--view 20,35,900"),
+                "{bad}: {e}"
+            );
         }
     }
 }

@@ -42,11 +42,16 @@ fn dune(cx: f64, cy: f64, h: f64) -> impl Fn(f64, f64) -> f64 {
 fn a_quadratic_cap_is_found_exactly_between_cells() {
     let g = geometry(40, 1.0);
     // Check: analytic — the top of z = 9 − 0.02((x−1.3)² + 2(y+0.6)²) is 9 m at (1.3, −0.6)
-    let z = surface(&g, |x, y| 9.0 - 0.02 * ((x - 1.3).powi(2) + 2.0 * (y + 0.6).powi(2)));
+    let z = surface(&g, |x, y| {
+        9.0 - 0.02 * ((x - 1.3).powi(2) + 2.0 * (y + 0.6).powi(2))
+    });
     let c = estimate(&z, &g, 0.05).unwrap();
     assert_eq!(c.method, CrestMethod::QuadraticFit);
     assert!((c.elevation_m - 9.0).abs() < 1e-4, "{c:?}");
-    assert!((c.x_crs - 1.3).abs() < 1e-3 && (c.y_crs + 0.6).abs() < 1e-3, "{c:?}");
+    assert!(
+        (c.x_crs - 1.3).abs() < 1e-3 && (c.y_crs + 0.6).abs() < 1e-3,
+        "{c:?}"
+    );
 }
 
 #[test]
@@ -60,7 +65,10 @@ fn noise_moves_the_highest_cell_but_not_the_crest() {
         let c = estimate(&z, &g, 0.1).unwrap();
         worst_crest = worst_crest.max((c.elevation_m - 32.0).abs());
         mean_cell_bias += (highest_cell(&z).unwrap().0 as f64 - 32.0) / 8.0;
-        assert!((c.x_crs - 3.0).abs() < 1.0 && (c.y_crs + 5.0).abs() < 1.0, "{c:?}");
+        assert!(
+            (c.x_crs - 3.0).abs() < 1.0 && (c.y_crs + 5.0).abs() < 1.0,
+            "{c:?}"
+        );
     }
     // Check: analytic Gaussian dune, crest 32.0 m; 0.10 m is the bound of issue #9 item 8
     assert!(worst_crest < 0.10, "crest off by {worst_crest} m");
@@ -75,7 +83,10 @@ fn the_neighbourhood_grows_with_sigma() {
     let clean = surface(&g, dune(0.0, 0.0, 30.0));
     let small = estimate(&with_noise(&clean, 0.02, 7), &g, 0.02).unwrap();
     let large = estimate(&with_noise(&clean, 0.2, 7), &g, 0.2).unwrap();
-    assert!(large.radius_cells > small.radius_cells, "{small:?} {large:?}");
+    assert!(
+        large.radius_cells > small.radius_cells,
+        "{small:?} {large:?}"
+    );
     assert!(small.standard_error_m <= TARGET_STANDARD_ERROR_M + 1e-12);
 }
 
@@ -151,16 +162,26 @@ fn blend_sigma_at_ends_and_middle() {
 fn sharp_and_broad_dunes_on_fine_and_coarse_grids() {
     // (Gaussian standard deviation m, height m, cell m): from a narrow 10 m-wide hummock to a broad
     // 30 m dune on 2 m cells.
-    for &(s, h, cell) in &[(10.0, 10.0, 1.0), (25.0, 30.0, 1.0), (60.0, 30.0, 1.0), (40.0, 30.0, 2.0)] {
+    for &(s, h, cell) in &[
+        (10.0, 10.0, 1.0),
+        (25.0, 30.0, 1.0),
+        (60.0, 30.0, 1.0),
+        (40.0, 30.0, 2.0),
+    ] {
         let g = geometry(240, cell);
-        let clean = surface(&g, move |x, y| 2.0 + h * (-((x * x + y * y) / (2.0 * s * s))).exp());
+        let clean = surface(&g, move |x, y| {
+            2.0 + h * (-((x * x + y * y) / (2.0 * s * s))).exp()
+        });
         // Check: analytic crest 2 + h at (0, 0); noise-free data: abs diff < 0.005 m
         let c0 = estimate(&clean, &g, 0.1).unwrap();
         assert!((c0.elevation_m - 2.0 - h).abs() < 0.005, "s={s}: {c0:?}");
         for seed in 0..4 {
             let c = estimate(&with_noise(&clean, 0.1, 50 + seed), &g, 0.1).unwrap();
             // Check: analytic crest; 0.10 m is the bound of issue #9 item 8, met with margin
-            assert!((c.elevation_m - 2.0 - h).abs() < 0.07, "s={s} seed {seed}: {c:?}");
+            assert!(
+                (c.elevation_m - 2.0 - h).abs() < 0.07,
+                "s={s} seed {seed}: {c:?}"
+            );
         }
     }
 }

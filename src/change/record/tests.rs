@@ -154,7 +154,11 @@ fn peak_position_height_and_shift() {
     assert!(h <= 6.0 && h > 5.88, "{h}");
     // Check: analytic — the crest (quadratic fit) of the noise-free mound: 8 m elevation, 6 m above
     // the 2 m reference, at (3.3, -2.2); abs diff < 0.02 m (the fit's own bias on a Gaussian top)
-    assert!((s0.crest_elevation_m - 8.0).abs() < 0.02, "{}", s0.crest_elevation_m);
+    assert!(
+        (s0.crest_elevation_m - 8.0).abs() < 0.02,
+        "{}",
+        s0.crest_elevation_m
+    );
     assert!((s0.crest_height_above_reference_m - 6.0).abs() < 0.02);
     assert!((s0.crest_x_crs - 3.3).abs() < 0.02 && (s0.crest_y_crs + 2.2).abs() < 0.02);
     let p = &rec.pairs[0];
