@@ -310,7 +310,7 @@ fn fits(p: &Plan, w: f32, h: f32) -> bool {
     b.iter()
         .enumerate()
         .all(|(i, a)| a.inside(w, h) && a.w > 0.0 && !b[i + 1..].iter().any(|o| a.overlaps(o)))
-        && p.date.is_some() == !p.t.date.lines.is_empty()
+        && p.date.is_some() != p.t.date.lines.is_empty()
 }
 
 /// A text's box with room for its halo.

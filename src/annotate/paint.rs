@@ -55,7 +55,7 @@ struct ChartGeometry {
 }
 
 impl ChartGeometry {
-    fn to_px(&self, x: f64, y: f64) -> (f32, f32) {
+    fn to_px(self, x: f64, y: f64) -> (f32, f32) {
         let p = self.plot;
         (
             p.x + ((x - self.x0) / (self.x1 - self.x0)) as f32 * p.w,

@@ -318,9 +318,11 @@ fn fit_at(z: &Array2<f32>, r: usize, c: usize, radius: usize, sigma: f64) -> Opt
     if n < 2 * NT || n * 4 < full * 3 {
         return None;
     }
-    for i in 0..NT {
-        for j in 0..i {
-            ata[i][j] = ata[j][i];
+    // Mirror the upper triangle into the lower one.
+    for i in 1..NT {
+        let (upper, lower) = ata.split_at_mut(i);
+        for (j, row) in upper.iter().enumerate() {
+            lower[0][j] = row[i];
         }
     }
     let inv = invert(ata)?;
