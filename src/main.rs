@@ -81,6 +81,27 @@ enum Command {
         #[arg(long)]
         overwrite: bool,
     },
+    /// Render one labelled frame of a job for one date (or a contact sheet of viewpoints).
+    Still {
+        /// The job file (YAML).
+        job: PathBuf,
+        /// The date of the frame, YYYY-MM-DD, within the surveys' span.
+        #[arg(long, value_name = "DATE", value_parser = parse_date)]
+        at: chrono::NaiveDate,
+        /// The PNG file to write.
+        #[arg(short, long, value_name = "FILE")]
+        output: PathBuf,
+        /// Look from FACING,ELEVATION,DISTANCE (degrees from north, degrees below the horizon,
+        /// metres) instead of the job's view.
+        #[arg(long, value_name = "F,E,D", value_parser = dunereel::run::parse_view, allow_hyphen_values = true)]
+        view: Option<dunereel::run::ViewOverride>,
+        /// Write a contact sheet of N viewpoints around the site, each captioned with its view keys.
+        #[arg(long, value_name = "N")]
+        sheet: Option<usize>,
+        /// Replace FILE if it exists.
+        #[arg(long)]
+        overwrite: bool,
+    },
     /// Check an output folder against its SHA-256 manifests: missing, extra or altered files.
     Verify {
         /// The output (archive) folder of a run.
@@ -130,6 +151,23 @@ fn main() -> ExitCode {
             output,
             overwrite,
         } => check(&job, output, overwrite, cli.quiet),
+        Command::Still {
+            job,
+            at,
+            output,
+            view,
+            sheet,
+            overwrite,
+        } => still(
+            &job,
+            &dunereel::run::StillOptions {
+                at,
+                output,
+                view,
+                sheet,
+                overwrite,
+            },
+        ),
         Command::Verify { folder } => verify(&folder),
         Command::New {
             grids,
@@ -371,6 +409,26 @@ fn new_job(
         grids.len(),
         job.display()
     );
+    Ok(())
+}
+
+fn parse_date(s: &str) -> Result<chrono::NaiveDate, String> {
+    chrono::NaiveDate::parse_from_str(s.trim(), "%Y-%m-%d")
+        .map_err(|_| format!("\"{s}\" is not a calendar date; write YYYY-MM-DD, e.g. 2031-03-27"))
+}
+
+fn still(path: &std::path::Path, opts: &dunereel::run::StillOptions) -> dunereel::Result<()> {
+    let job = job::load(path)?;
+    let report = dunereel::run::still(&job, opts)?;
+    let which = match (report.frame_index, report.surveyed) {
+        (_, true) => "survey frame".to_string(),
+        (Some(i), false) => format!("interpolated frame {i}"),
+        (None, false) => "interpolated, between two animation frames".to_string(),
+    };
+    println!("{}: {which}", report.path.display());
+    for v in &report.views {
+        println!("  view: {{ {v} }}");
+    }
     Ok(())
 }
 

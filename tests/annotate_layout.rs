@@ -1,8 +1,10 @@
 //! Overlay layout on whole frames: marker placement, text inside the frame, measured vs interpolated,
 //! tiny frames. Also writes preview PNGs to target/annotate-preview/ for a person to look at.
 
+use dunereel::annotate::layout::{BOTTOM_BAND, SMALLEST_TEXT, TOP_BAND};
 use dunereel::annotate::{
-    draw_overlay, plan, FrameStatus, InsetChart, LabelOptions, Legend, Optional, Overlay,
+    draw_overlay, plan, CrestLabel, FrameStatus, InsetChart, LabelOptions, Legend, Optional,
+    Overlay, Plan, Rect,
 };
 use dunereel::render::Frame;
 
@@ -53,9 +55,13 @@ fn full_overlay(interpolated: bool, peak_px: (f32, f32)) -> Overlay {
                 label: Some("spring lidar flight".into()),
             }
         },
-        peak_height: 21.37,
-        peak_unit: "m".into(),
-        peak_px: Some(peak_px),
+        crest: CrestLabel {
+            name: "Crest elevation".into(),
+            value: 21.37,
+            unit: "m".into(),
+        },
+        crest_px: Some(peak_px),
+        vertical_exaggeration: 2.0,
         legend: Some(Legend {
             title: "Elevation".into(),
             stops: vec![
@@ -72,14 +78,34 @@ fn full_overlay(interpolated: bool, peak_px: (f32, f32)) -> Overlay {
         metres_per_px: Some(0.8),
         scale_unit: (1.0, "m".into()),
         inset: Some(InsetChart {
-            title: "Peak height".into(),
+            title: "Crest elevation".into(),
             unit: "m".into(),
-            series,
             survey_points,
-            current_year: 2027.6,
+            current: (2027.6, series[18].1),
         }),
         credit: Some("Survey data: invented coastal agency, airborne lidar; demo only".into()),
     }
+}
+
+/// Every box the plan placed, the marker's word included.
+fn rects(p: &Plan) -> Vec<Rect> {
+    [
+        p.date,
+        p.badge,
+        p.detail,
+        p.title,
+        p.crest,
+        p.chart,
+        p.credit,
+        p.legend,
+        p.scale,
+        p.north,
+        p.marker_label,
+    ]
+    .iter()
+    .flatten()
+    .copied()
+    .collect()
 }
 
 fn out_dir() -> std::path::PathBuf {
@@ -108,12 +134,7 @@ fn previews_at_three_sizes_and_text_stays_inside() {
             let p = plan(w, h, &ov, &opts);
             // Nothing is dropped from 640x360 upwards.
             assert!(p.dropped.is_empty(), "{w}x{h}: dropped {:?}", p.dropped);
-            for r in [
-                p.head, p.peak, p.north, p.scale, p.legend, p.chart, p.credit, p.peak_tag,
-            ]
-            .iter()
-            .flatten()
-            {
+            for r in &rects(&p) {
                 assert!(
                     r.inside(w as f32, h as f32),
                     "{w}x{h}: {r:?} leaves the frame"
@@ -133,8 +154,8 @@ fn previews_at_three_sizes_and_text_stays_inside() {
 }
 
 #[test]
-fn peak_marker_lands_on_the_given_pixel() {
-    // Check: common practice, no source — the marker dot is centred on the projected peak; tolerance 2 px.
+fn crest_marker_lands_on_the_given_pixel() {
+    // Check: common practice, no source — the marker dot is centred on the projected crest; tolerance 2 px.
     for (w, h, x, y) in [
         (640u32, 360u32, 300.5f32, 200.25f32),
         (1280, 720, 901.0, 377.0),
@@ -142,12 +163,11 @@ fn peak_marker_lands_on_the_given_pixel() {
     ] {
         let mut f = Frame::new(w, h);
         let ov = Overlay {
-            peak_px: Some((x, y)),
-            peak_height: 12.0,
+            crest_px: Some((x, y)),
             ..Default::default()
         };
         let opts = LabelOptions {
-            peak_marker: true,
+            crest_marker: true,
             ..LabelOptions::none()
         };
         draw_overlay(&mut f, &ov, &opts);
@@ -211,12 +231,7 @@ fn tiny_frames_drop_in_order_and_never_panic() {
         let ov = full_overlay(true, (w as f32 / 2.0, h as f32 / 2.0));
         let opts = LabelOptions::default();
         let p = plan(w, h, &ov, &opts);
-        for r in [
-            p.head, p.peak, p.north, p.scale, p.legend, p.chart, p.credit, p.peak_tag,
-        ]
-        .iter()
-        .flatten()
-        {
+        for r in &rects(&p) {
             assert!(
                 r.inside(w as f32, h as f32),
                 "{w}x{h}: {r:?} leaves the frame"
@@ -263,7 +278,63 @@ fn every_element_can_be_turned_off() {
         &LabelOptions::none(),
     );
     assert_eq!(f, bg);
+    // In a job the status mark (and with it the exaggeration) cannot be turned off: the job check
+    // refuses `labels.status: false`; `LabelOptions::none()` is for the library's own bare frames.
     let opts: LabelOptions = serde_yaml::from_str("legend: false\ninset_chart: false\n").unwrap();
     assert!(!opts.legend && !opts.inset_chart && opts.title);
     assert!(serde_yaml::from_str::<LabelOptions>("legnd: false\n").is_err());
+}
+
+#[test]
+fn panels_cover_at_most_a_tenth_stay_in_their_bands_and_read_from_the_back() {
+    for (w, h) in [(1280u32, 720u32), (960, 540)] {
+        for interp in [false, true] {
+            // The crest in the middle of the landform's rectangle, as the renderer frames it.
+            let ov = full_overlay(interp, (w as f32 * 0.5, h as f32 * 0.45));
+            let opts = LabelOptions::default();
+            let p = plan(w, h, &ov, &opts);
+            assert!(p.dropped.is_empty(), "{w}x{h}: dropped {:?}", p.dropped);
+            let (fw, fh) = (w as f32, h as f32);
+            // Layout contract with the renderer: panels only in the top 11 % or the bottom 9 %;
+            // the landform keeps the rectangle from 12 % to 90 % of the height.
+            for r in rects(&p) {
+                if Some(r) == p.marker_label {
+                    continue;
+                }
+                let in_top = r.y >= 0.0 && r.bottom() <= TOP_BAND * fh + 0.01;
+                let in_bottom = r.y >= fh - BOTTOM_BAND * fh - 0.01 && r.bottom() <= fh + 0.01;
+                assert!(in_top || in_bottom, "{w}x{h}: {r:?} outside both bands");
+                assert!(r.x >= 0.0 && r.right() <= fw, "{w}x{h}: {r:?}");
+            }
+            // Measured as the issue asks: render with and without the panels, count changed pixels.
+            let bare = background(w, h);
+            let mut f = bare.clone();
+            draw_overlay(&mut f, &ov, &opts);
+            let changed = f
+                .rgba
+                .chunks_exact(4)
+                .zip(bare.rgba.chunks_exact(4))
+                .filter(|(a, b)| a != b)
+                .count();
+            let share = changed as f64 / (w as f64 * h as f64);
+            eprintln!(
+                "{w}x{h} {}: panels change {:.1} % of the frame; smallest text {:.1} px = {:.2} % of the height",
+                if interp { "interpolated" } else { "surveyed" },
+                share * 100.0,
+                p.smallest_text_px,
+                p.smallest_text_px / fh * 100.0
+            );
+            // Check: issue #9 item 6 — all panels together at most 10 % of the frame
+            assert!(share <= 0.10, "{w}x{h}: panels change {share}");
+            // Check: common practice, no source — text of about 1/40 of the screen height reads
+            // from the back of a meeting room; nothing smaller is drawn
+            assert!(
+                p.smallest_text_px >= SMALLEST_TEXT * fh - 0.01,
+                "{}",
+                p.smallest_text_px
+            );
+            // The frame states the vertical exaggeration, and the status mark is there.
+            assert!(p.scale.is_some() && p.badge.is_some());
+        }
+    }
 }

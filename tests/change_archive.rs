@@ -98,7 +98,8 @@ fn archive_is_identical_on_one_or_many_threads_and_verifies() {
     let surveys = std::fs::read_to_string(a.join("data/tables/surveys.csv")).unwrap();
     let header = surveys.lines().next().unwrap();
     assert!(
-        header.contains("volume_above_reference_ft3") && header.contains("peak_height_ft"),
+        header.contains("volume_above_reference_ft3")
+            && header.contains("crest_height_above_reference_ft"),
         "{header}"
     );
     // The survey without a stated uncertainty is flagged in its row and in the README.

@@ -34,8 +34,10 @@ fn row(i: usize) -> IndexRow {
         } else {
             "2028-01-01, spring".into()
         },
-        peak_height: 12.5 + i as f64,
-        peak_unit: "m".into(),
+        crest_elevation: 12.5 + i as f64,
+        crest_height_above_reference: 10.5 + i as f64,
+        highest_cell_elevation: 12.625 + i as f64,
+        unit: "m".into(),
     }
 }
 
@@ -63,9 +65,9 @@ fn sequence_round_trips_and_index_lists_every_frame() {
     assert_eq!(lines.len(), 4);
     assert_eq!(
         lines[1],
-        "0,frame_0000.png,2027-01-01T00:00:00,surveyed,survey,2027-01-01,2027-01-01,12.500,m"
+        "0,frame_0000.png,2027-01-01T00:00:00,surveyed,survey,2027-01-01,2027-01-01,12.500,10.500,12.625,m"
     );
-    assert_eq!(lines[2], "1,frame_0001.png,2027-02-01T00:00:00,interpolated,linear blend,2027-01-01,\"2028-01-01, spring\",13.500,m");
+    assert_eq!(lines[2], "1,frame_0001.png,2027-02-01T00:00:00,interpolated,linear blend,2027-01-01,\"2028-01-01, spring\",13.500,11.500,13.625,m");
     // Only the frames and the index, no temporary files.
     assert_eq!(std::fs::read_dir(&out).unwrap().count(), 4);
 }
@@ -93,11 +95,11 @@ fn poster_places_tiles_side_by_side_with_captions() {
     let tiles = [
         PosterTile {
             frame: &a,
-            caption: "2027-01-01 · surveyed · peak 12.5 m",
+            caption: "2027-01-01 · surveyed · crest elevation 12.5 m",
         },
         PosterTile {
             frame: &b,
-            caption: "2028-01-01 · surveyed · peak 14.0 m",
+            caption: "2028-01-01 · surveyed · crest elevation 14.0 m",
         },
     ];
     let opts = PosterOptions {

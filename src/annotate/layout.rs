@@ -1,59 +1,72 @@
 //! Placement of the per-frame overlay: [`plan`] decides where each element of an `Overlay` goes,
-//! and what is left out on a small frame; `paint::draw_overlay` draws it.
+//! and what is left out on a small frame; `paint` draws it.
 //!
-//! Placement (all sizes scale with the frame height, 360 px = 1 unit, so 640x360 and 1920x1080 look
-//! alike):
-//! - top left: title, the date (large), a status badge (measured or interpolated) and a detail line
-//!   naming the survey, or the method and the two bracketing survey dates;
-//! - top right: the peak height with units, and under it the north arrow;
-//! - bottom right: the approximate scale bar above the colour legend;
-//! - bottom left: the inset chart above the credit line;
-//! - on the terrain: a ring and dot on the peak pixel, with a leader line to a small tag.
+//! Everything sits in two bands so the landform keeps the middle of the picture: a top band (the
+//! top [`TOP_BAND`] of the frame height) and a bottom band (the bottom [`BOTTOM_BAND`]); the
+//! renderer frames the landform in the rectangle between. Sizes scale with the unit
+//! `u = min(height, width·9/16) / 100`, so 960x540 and 1280x720 look alike.
 //!
-//! Every block sits on a translucent dark panel with white text, for a projector.
+//! - top band, left: the date (large), the status badge beside it (measured or interpolated; it
+//!   cannot be turned off) and under them a detail line naming the survey, or the method and the
+//!   two surveys an in-between frame was made from;
+//! - top band, middle: the title; top band, right: the crest figure, its name saying which figure
+//!   it is (crest elevation, or crest height above the reference);
+//! - bottom band, left: the inset chart of the crest, the only box; middle: the credit;
+//!   right: the colour legend, the scale bar with the vertical exaggeration ("heights ×2", never
+//!   dropped), the north arrow;
+//! - on the terrain: a ring on the crest and the word "crest" beside it.
 //!
-//! When the frame is too small for everything, optional elements are dropped in this order until
-//! the rest fit inside the frame without overlapping (see [`DROP_ORDER`]): inset chart, scale bar,
-//! north arrow, colour legend, credit, title, status detail line, peak tag. The date, the status
-//! badge and the peak height are never dropped; they shrink instead. A `log::warn!` names what was
-//! dropped, once per change of frame size or drop set.
+//! Text is light with a dark halo rather than on boxes, so the panels together cover a few per cent
+//! of the frame. The smallest text is [`SMALLEST_TEXT`] of the frame height (2.5 %, 18 px on a 720-row
+//! frame, 13.5 px on 540): about the least a back row reads on a projected slide (common practice,
+//! no source). Below 6 px nothing is legible, so small frames drop optional elements in
+//! [`DROP_ORDER`] until the rest fit without overlaps; the date, the status badge, the crest figure
+//! and the exaggeration are never dropped.
 
 use super::fit::{fit_text, FittedText, LINE_SPACING};
 use super::overlay::{FrameStatus, LabelOptions, Overlay};
-use super::paint::{format_value, MIN_OPTIONAL_TEXT_PX, MIN_TEXT_PX};
-use super::text::Weight;
+use super::text::{measure_text, Weight};
+
+/// Share of the frame height, from the top, that panels may use.
+pub const TOP_BAND: f32 = 0.11;
+/// Share of the frame height, from the bottom, that panels may use.
+pub const BOTTOM_BAND: f32 = 0.09;
+/// Smallest text size as a share of the frame height (in units of `u`, 2.5).
+pub const SMALLEST_TEXT: f32 = 0.025;
+/// Below this many pixels no text is legible at all.
+pub const MIN_TEXT_PX: f32 = 6.0;
 
 /// An overlay element that can be dropped when the frame is too small.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Optional {
     /// The inset chart.
     InsetChart,
-    /// The scale bar.
+    /// The credit line.
+    Credit,
+    /// The scale bar (the exaggeration beside it stays).
     ScaleBar,
     /// The north arrow.
     NorthArrow,
     /// The colour legend.
     Legend,
-    /// The credit line.
-    Credit,
     /// The title.
     Title,
     /// The status detail line (method and dates; the badge stays).
     StatusDetail,
-    /// The tag at the end of the peak leader line (the ring and dot stay).
-    PeakTag,
+    /// The word "crest" beside the marker (the ring stays).
+    MarkerLabel,
 }
 
 /// The order in which optional elements are dropped from a frame too small for all of them.
 pub const DROP_ORDER: [Optional; 8] = [
     Optional::InsetChart,
+    Optional::Credit,
     Optional::ScaleBar,
     Optional::NorthArrow,
     Optional::Legend,
-    Optional::Credit,
     Optional::Title,
     Optional::StatusDetail,
-    Optional::PeakTag,
+    Optional::MarkerLabel,
 ];
 
 /// An axis-aligned box in pixels.
@@ -70,10 +83,12 @@ pub struct Rect {
 }
 
 impl Rect {
-    pub(super) fn right(&self) -> f32 {
+    /// Right edge.
+    pub fn right(&self) -> f32 {
         self.x + self.w
     }
-    pub(super) fn bottom(&self) -> f32 {
+    /// Bottom edge.
+    pub fn bottom(&self) -> f32 {
         self.y + self.h
     }
     /// Whether the two boxes share any area.
@@ -86,53 +101,72 @@ impl Rect {
     }
 }
 
-/// Where each block of the overlay goes on a frame; see [`plan`].
+/// Where each element of the overlay goes on a frame; see [`plan`].
 #[derive(Debug, Clone)]
 pub struct Plan {
-    /// Size unit in pixels (frame height / 360, bounded by width / 640).
+    /// Size unit in pixels: min(height, width·9/16) / 100.
     pub unit: f32,
-    /// Title, date, badge, detail panel.
-    pub head: Option<Rect>,
-    /// The status badge inside the head panel.
+    /// Date text.
+    pub date: Option<Rect>,
+    /// Status badge (filled box).
     pub badge: Option<Rect>,
-    /// Peak height panel.
-    pub peak: Option<Rect>,
-    /// North arrow panel.
-    pub north: Option<Rect>,
-    /// Scale bar panel.
-    pub scale: Option<Rect>,
-    /// Legend panel.
-    pub legend: Option<Rect>,
-    /// Inset chart panel.
+    /// Status detail line.
+    pub detail: Option<Rect>,
+    /// Title text.
+    pub title: Option<Rect>,
+    /// Crest figure (name and value).
+    pub crest: Option<Rect>,
+    /// Inset chart box.
     pub chart: Option<Rect>,
-    /// Credit panel.
+    /// Credit text.
     pub credit: Option<Rect>,
-    /// Tag at the end of the peak leader line.
-    pub peak_tag: Option<Rect>,
+    /// Colour legend (title, ramp and end values).
+    pub legend: Option<Rect>,
+    /// Scale bar and the exaggeration text (the text is always there).
+    pub scale: Option<Rect>,
+    /// North arrow.
+    pub north: Option<Rect>,
+    /// The word beside the crest marker.
+    pub marker_label: Option<Rect>,
     /// Optional elements left out because the frame is too small.
     pub dropped: Vec<Optional>,
-    /// The frame cannot hold even the date, status and peak height at the smallest text size, so
-    /// no panel is drawn at all.
+    /// The frame cannot hold even the date, status and crest figure: no text is drawn at all.
     pub too_small: bool,
-    pub(super) head_text: HeadText,
-    pub(super) peak_text: (FittedText, FittedText),
-    pub(super) scale_bar: Option<(f64, f32, FittedText)>,
-    pub(super) credit_text: FittedText,
-    pub(super) tag_text: FittedText,
+    /// Size of the smallest text drawn, pixels.
+    pub smallest_text_px: f32,
+    pub(super) t: Texts,
 }
 
+/// The text of every element, set to its size.
 #[derive(Debug, Clone)]
-pub(super) struct HeadText {
-    pub(super) title: FittedText,
+pub(super) struct Texts {
     pub(super) date: FittedText,
     pub(super) badge: FittedText,
     pub(super) detail: FittedText,
+    pub(super) title: FittedText,
+    pub(super) crest_name: FittedText,
+    pub(super) crest_value: FittedText,
+    pub(super) credit: FittedText,
+    pub(super) legend_title: FittedText,
+    pub(super) legend_lo: String,
+    pub(super) legend_hi: String,
+    /// Scale text ("100 m · heights ×2" or just "heights ×2") and the bar: (length, pixels).
+    pub(super) scale_text: FittedText,
+    pub(super) scale_bar: Option<(f64, f32)>,
+    pub(super) marker: FittedText,
+    /// Text size of the small labels (chart, legend values), pixels.
+    pub(super) small_px: f32,
+    /// Halo width, pixels.
+    pub(super) halo_px: f32,
+    /// Inner padding of boxes (badge, chart), pixels.
+    pub(super) pad: f32,
 }
 
-fn status_texts(status: &FrameStatus) -> (String, String) {
+fn status_texts(status: &FrameStatus) -> (&'static str, &'static str, String) {
     match status {
         FrameStatus::Surveyed { label } => (
-            "SURVEYED — measured".to_string(),
+            "SURVEYED — measured",
+            "SURVEYED",
             match label {
                 Some(l) if !l.trim().is_empty() => format!("survey: {}", l.trim()),
                 _ => "survey data on this date".to_string(),
@@ -143,7 +177,8 @@ fn status_texts(status: &FrameStatus) -> (String, String) {
             from_date,
             to_date,
         } => (
-            "INTERPOLATED — not a measurement".to_string(),
+            "INTERPOLATED — not a measurement",
+            "INTERPOLATED",
             format!(
                 "{} between surveys of {} and {}",
                 method.trim(),
@@ -154,32 +189,51 @@ fn status_texts(status: &FrameStatus) -> (String, String) {
     }
 }
 
-fn short_status(status: &FrameStatus) -> &'static str {
-    match status {
-        FrameStatus::Surveyed { .. } => "SURVEYED",
-        FrameStatus::Interpolated { .. } => "INTERPOLATED",
-    }
-}
-
-/// A "nice" scale-bar length in metres (1, 2 or 5 times a power of ten) no longer than `max_m`.
-pub fn nice_length_m(max_m: f64) -> Option<f64> {
-    if !(max_m.is_finite() && max_m > 0.0) {
+/// A "nice" scale-bar length (1, 2 or 5 times a power of ten) no longer than `max`.
+pub fn nice_length_m(max: f64) -> Option<f64> {
+    if !(max.is_finite() && max > 0.0) {
         return None;
     }
-    let p = 10f64.powf(max_m.log10().floor());
+    let p = 10f64.powf(max.log10().floor());
     [5.0, 2.0, 1.0]
         .iter()
         .map(|k| k * p)
-        .find(|&l| l <= max_m * (1.0 + 1e-9))
+        .find(|&l| l <= max * (1.0 + 1e-9))
 }
 
-fn scale_label(len_m: f64) -> String {
-    if len_m >= 1000.0 {
-        format!("{} km", len_m / 1000.0)
-    } else if len_m >= 1.0 {
-        format!("{len_m:.0} m")
+fn length_label(len: f64, symbol: &str) -> String {
+    if symbol == "m" && len >= 1000.0 {
+        format!("{} km", len / 1000.0)
     } else {
-        format!("{len_m} m")
+        format!("{len} {symbol}")
+    }
+}
+
+/// The exaggeration in words, e.g. "heights ×2" or "heights ×2.5"; "true heights" at 1.
+pub fn exaggeration_text(k: f64) -> String {
+    if !(k.is_finite() && k > 0.0) {
+        return "heights ×?".into();
+    }
+    if (k - 1.0).abs() < 1e-9 {
+        return "true heights (×1)".into();
+    }
+    let s = format!("{k:.2}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    format!("heights ×{s}")
+}
+
+/// Formats a figure with a precision fit for a slide: 3 significant digits, at most 2 decimals.
+pub fn format_value(v: f64) -> String {
+    if !v.is_finite() {
+        return "—".to_string();
+    }
+    let a = v.abs();
+    if a >= 100.0 {
+        format!("{v:.0}")
+    } else if a >= 10.0 || a == 0.0 {
+        format!("{v:.1}")
+    } else {
+        format!("{v:.2}")
     }
 }
 
@@ -192,20 +246,34 @@ pub fn plan(width: u32, height: u32, overlay: &Overlay, opts: &LabelOptions) -> 
         if fits(&p, width as f32, height as f32) {
             return p;
         }
-        // Drop the next element that is actually present.
+        // Strictly in order: an element that found no room so far counts as dropped too, so it
+        // cannot reappear once later ones make room.
         let next = DROP_ORDER
             .iter()
-            .find(|e| !dropped.contains(*e) && present(&p, **e));
+            .position(|e| !dropped.contains(e) && present(&p, *e));
         match next {
-            Some(e) => dropped.push(*e),
+            Some(k) => {
+                for e in &DROP_ORDER[..=k] {
+                    if !dropped.contains(e) {
+                        dropped.push(*e);
+                    }
+                }
+            }
             None => {
-                // Even the date, badge and peak height cannot fit: draw no panels at all rather
-                // than cut text at the frame edge. The peak marker (no text) is still drawn.
+                // Even the essentials cannot fit: draw no text rather than cut it at the frame
+                // edge. The crest ring (no text) is still drawn.
                 let mut p = p;
-                p.head = None;
-                p.badge = None;
-                p.peak = None;
-                p.peak_tag = None;
+                for r in [
+                    &mut p.date,
+                    &mut p.badge,
+                    &mut p.detail,
+                    &mut p.title,
+                    &mut p.crest,
+                    &mut p.scale,
+                    &mut p.marker_label,
+                ] {
+                    *r = None;
+                }
                 p.too_small = true;
                 return p;
             }
@@ -216,34 +284,43 @@ pub fn plan(width: u32, height: u32, overlay: &Overlay, opts: &LabelOptions) -> 
 fn present(p: &Plan, e: Optional) -> bool {
     match e {
         Optional::InsetChart => p.chart.is_some(),
-        Optional::ScaleBar => p.scale.is_some(),
+        Optional::Credit => p.credit.is_some(),
+        Optional::ScaleBar => p.t.scale_bar.is_some(),
         Optional::NorthArrow => p.north.is_some(),
         Optional::Legend => p.legend.is_some(),
-        Optional::Credit => p.credit.is_some(),
-        Optional::Title => !p.head_text.title.lines.is_empty(),
-        Optional::StatusDetail => !p.head_text.detail.lines.is_empty(),
-        Optional::PeakTag => p.peak_tag.is_some(),
+        Optional::Title => p.title.is_some(),
+        Optional::StatusDetail => p.detail.is_some(),
+        Optional::MarkerLabel => p.marker_label.is_some(),
     }
 }
 
-fn fits(p: &Plan, w: f32, h: f32) -> bool {
-    let boxes: Vec<Rect> = [
-        p.head, p.peak, p.north, p.scale, p.legend, p.chart, p.credit,
+/// The boxes that must neither overlap nor leave the frame (the marker label only avoids them).
+pub(super) fn boxes(p: &Plan) -> Vec<Rect> {
+    [
+        p.date, p.badge, p.detail, p.title, p.crest, p.chart, p.credit, p.legend, p.scale, p.north,
     ]
     .iter()
     .flatten()
     .copied()
-    .collect();
-    for (i, a) in boxes.iter().enumerate() {
-        if !a.inside(w, h) {
-            return false;
-        }
-        if boxes[i + 1..].iter().any(|b| a.overlaps(b)) {
-            return false;
-        }
+    .collect()
+}
+
+fn fits(p: &Plan, w: f32, h: f32) -> bool {
+    let b = boxes(p);
+    b.iter()
+        .enumerate()
+        .all(|(i, a)| a.inside(w, h) && a.w > 0.0 && !b[i + 1..].iter().any(|o| a.overlaps(o)))
+        && p.date.is_some() != p.t.date.lines.is_empty()
+}
+
+/// A text's box with room for its halo.
+fn text_rect(x: f32, y: f32, t: &FittedText, halo: f32) -> Rect {
+    Rect {
+        x: x - halo,
+        y: y - halo,
+        w: t.width + 2.0 * halo,
+        h: t.height + 2.0 * halo,
     }
-    // The peak tag may not be placeable; that alone never blocks the plan.
-    true
 }
 
 fn plan_with(
@@ -254,370 +331,342 @@ fn plan_with(
     dropped: &[Optional],
 ) -> Plan {
     let (fw, fh) = (width as f32, height as f32);
-    let u = (fh / 360.0).min(fw / 640.0).max(0.05);
-    let m = (8.0 * u).max(2.0);
-    let pad = (6.0 * u).max(2.0);
-    let gap = (6.0 * u).max(2.0);
-    let px = |s: f32| (s * u).max(MIN_TEXT_PX);
-    let opx = |s: f32| (s * u).max(MIN_OPTIONAL_TEXT_PX);
+    let u = (fh.min(fw * 9.0 / 16.0) / 100.0).max(0.01);
     let on = |e: Optional| !dropped.contains(&e);
-    // Graphic elements (arrow, legend, scale, chart) stop shrinking at the size they have on a
-    // 320x162 frame; below that they would be unreadable, so they are dropped instead.
-    let gu = u.max(0.45);
+    let px = |s: f32| (s * u).max(MIN_TEXT_PX);
+    let small = px(SMALLEST_TEXT * 100.0);
+    let halo = (0.28 * u).clamp(1.0, 4.0);
+    let m = (0.8 * u).max(2.0);
+    let pad = (0.5 * u).max(1.5);
+    let gap = (1.2 * u).max(3.0);
+    let empty = |w| FittedText::empty(w);
+    let top_h = TOP_BAND * fh;
+    let bottom_y = fh - BOTTOM_BAND * fh;
 
-    // Head panel: title, date, badge, detail.
-    // Small frames stack the peak panel under the head panel, so the head may use the full width.
-    let head_max_w = if fw < 400.0 {
-        fw - 2.0 * m - 2.0 * pad
+    // ---- Top band, right: the crest figure (never dropped).
+    let crest_value = if opts.crest {
+        let v = format!("{} {}", format_value(ov.crest.value), ov.crest.unit.trim());
+        fit_text(&v, Weight::Bold, px(4.6), MIN_TEXT_PX, fw * 0.3, 1)
     } else {
-        (fw - 2.0 * m) * 0.58 - 2.0 * pad
-    }
-    .max(1.0);
-    let title = if opts.title && on(Optional::Title) {
-        fit_text(
-            &ov.title,
-            Weight::Bold,
-            opx(15.0),
-            MIN_OPTIONAL_TEXT_PX,
-            head_max_w,
-            2,
-        )
-    } else {
-        FittedText::empty(Weight::Bold)
+        empty(Weight::Bold)
     };
-    let date = if opts.date {
+    let crest_name = if opts.crest {
         fit_text(
-            &ov.date_text,
-            Weight::Bold,
-            px(30.0),
+            &ov.crest.name,
+            Weight::Regular,
+            small,
             MIN_TEXT_PX,
-            head_max_w,
+            fw * 0.3,
             1,
         )
     } else {
-        FittedText::empty(Weight::Bold)
+        empty(Weight::Regular)
     };
-    let (badge_s, detail_s) = status_texts(&ov.status);
-    let badge_pad = (3.0 * u).max(1.0);
-    let (badge, detail) = if opts.status {
-        let badge_w = head_max_w - 2.0 * badge_pad;
-        let mut b = fit_text(&badge_s, Weight::Bold, px(12.0), MIN_TEXT_PX, badge_w, 1);
-        if b.size_px < px(12.0) * 0.8 || b.lines.first().is_some_and(|l| l.ends_with('…')) {
-            // Too narrow for the full wording: the one word that matters, at a readable size.
-            b = fit_text(
-                short_status(&ov.status),
-                Weight::Bold,
-                px(12.0),
-                MIN_TEXT_PX,
-                badge_w,
-                1,
-            );
-        }
-        let d = if on(Optional::StatusDetail) {
-            fit_text(
-                &detail_s,
-                Weight::Regular,
-                opx(11.5),
-                MIN_OPTIONAL_TEXT_PX,
-                head_max_w,
-                2,
-            )
-        } else {
-            FittedText::empty(Weight::Regular)
-        };
-        (b, d)
-    } else {
-        (
-            FittedText::empty(Weight::Bold),
-            FittedText::empty(Weight::Regular),
-        )
-    };
-    let mut head_h = 0.0f32;
-    let mut head_w = 0.0f32;
-    let mut badge_rect = None;
-    {
-        let mut y = pad;
-        for t in [&title, &date] {
-            if !t.lines.is_empty() {
-                head_w = head_w.max(t.width);
-                y += t.height + gap * 0.6;
-            }
-        }
-        if !badge.lines.is_empty() {
-            let bw = badge.width + 2.0 * badge_pad;
-            badge_rect = Some(Rect {
-                x: m + pad,
-                y: m + y,
-                w: bw,
-                h: badge.height + 2.0 * badge_pad,
-            });
-            head_w = head_w.max(bw);
-            y += badge.height + 2.0 * badge_pad + gap * 0.6;
-        }
-        if !detail.lines.is_empty() {
-            head_w = head_w.max(detail.width);
-            y += detail.height + gap * 0.6;
-        }
-        if head_w > 0.0 {
-            head_h = y - gap * 0.6 + pad;
-        }
-    }
-    let head = (head_w > 0.0).then_some(Rect {
-        x: m,
-        y: m,
-        w: head_w + 2.0 * pad,
-        h: head_h,
-    });
-
-    // Peak panel.
-    let (peak_label, peak_value) = if opts.peak_height {
-        let max_w = (fw - 2.0 * m - 2.0 * pad).max(1.0);
-        (
-            if u >= 0.5 {
-                fit_text(
-                    "Peak height",
-                    Weight::Regular,
-                    px(11.0),
-                    MIN_TEXT_PX,
-                    max_w,
-                    1,
-                )
-            } else {
-                FittedText::empty(Weight::Regular)
-            },
-            fit_text(
-                &format!(
-                    "{}{} {}",
-                    if u >= 0.5 { "" } else { "peak " },
-                    format_value(ov.peak_height),
-                    ov.peak_unit.trim()
-                ),
-                Weight::Bold,
-                px(24.0),
-                MIN_TEXT_PX,
-                max_w,
-                1,
-            ),
-        )
-    } else {
-        (
-            FittedText::empty(Weight::Regular),
-            FittedText::empty(Weight::Bold),
-        )
-    };
-    let mut peak = None;
-    if !peak_value.lines.is_empty() {
-        let w = peak_label.width.max(peak_value.width) + 2.0 * pad;
-        let label_gap = if peak_label.lines.is_empty() {
-            0.0
-        } else {
-            gap * 0.4
-        };
-        let h = peak_label.height + label_gap + peak_value.height + 2.0 * pad;
-        let mut r = Rect {
+    let crest = (!crest_value.lines.is_empty()).then(|| {
+        let w = crest_name.width.max(crest_value.width) + 2.0 * halo;
+        let h = crest_name.height + crest_value.height + 2.0 * halo;
+        Rect {
             x: fw - m - w,
             y: m,
             w,
             h,
-        };
-        if let Some(hd) = head {
-            if r.overlaps(&hd) {
-                // Not enough width: stack it under the head panel.
-                r = Rect {
-                    x: m,
-                    y: hd.bottom() + gap,
-                    w,
-                    h,
-                };
-            }
         }
-        peak = Some(r);
-    }
+    });
+    let right_limit = crest.map_or(fw - m, |c| c.x - gap);
 
-    // North arrow, right side under the peak panel (or top right).
+    // ---- Top band, left: date, badge beside it, detail under both.
+    let date = if opts.date {
+        fit_text(
+            &ov.date_text,
+            Weight::Bold,
+            px(4.6),
+            MIN_TEXT_PX,
+            fw * 0.4,
+            1,
+        )
+    } else {
+        empty(Weight::Bold)
+    };
+    let (long_badge, short_badge, detail_s) = status_texts(&ov.status);
+    let date_rect = (!date.lines.is_empty()).then(|| text_rect(m + halo, m + halo, &date, halo));
+    let row1_right = date_rect.map_or(m, |r| r.right() + gap * 0.6);
+    let badge_room = (right_limit - row1_right - 2.0 * pad).max(1.0);
+    let mut badge = fit_text(
+        long_badge,
+        Weight::Bold,
+        px(2.6),
+        MIN_TEXT_PX,
+        badge_room,
+        1,
+    );
+    if badge.lines.first().is_none_or(|l| l.ends_with('…')) || badge.size_px < px(2.6) * 0.85 {
+        badge = fit_text(
+            short_badge,
+            Weight::Bold,
+            px(2.6),
+            MIN_TEXT_PX,
+            badge_room,
+            1,
+        );
+    }
+    // The badge cannot be turned off in a job (the job check refuses `labels.status: false`); the
+    // library still allows a bare frame.
+    if !opts.status {
+        badge = empty(Weight::Bold);
+    }
+    let row1_h = date_rect.map_or(badge.height + 2.0 * pad, |r| r.h);
+    let badge_rect = (!badge.lines.is_empty()).then(|| Rect {
+        x: row1_right,
+        y: m + (row1_h - badge.height - 2.0 * pad) / 2.0,
+        w: badge.width + 2.0 * pad,
+        h: badge.height + 2.0 * pad,
+    });
+    let row2_y = m + row1_h + 0.2 * u;
+    let detail = if opts.status && on(Optional::StatusDetail) {
+        fit_text(
+            &detail_s,
+            Weight::Regular,
+            small,
+            MIN_TEXT_PX,
+            right_limit - m - 2.0 * halo,
+            1,
+        )
+    } else {
+        empty(Weight::Regular)
+    };
+    let detail_rect =
+        (!detail.lines.is_empty()).then(|| text_rect(m + halo, row2_y + halo, &detail, halo));
+
+    // ---- Top band, middle: the title, between the head and the crest figure.
+    let head_right = [date_rect, badge_rect, detail_rect]
+        .iter()
+        .flatten()
+        .map(|r| r.right())
+        .fold(m, f32::max);
+    let title_room = right_limit - head_right - 2.0 * gap;
+    let title = if opts.title && on(Optional::Title) && title_room > 12.0 * u {
+        fit_text(
+            &ov.title,
+            Weight::Bold,
+            px(2.7),
+            small.min(px(2.7)),
+            title_room,
+            2,
+        )
+    } else {
+        empty(Weight::Bold)
+    };
+    let title_rect = (!title.lines.is_empty()).then(|| {
+        let x = head_right + gap + (title_room - title.width) / 2.0;
+        let y = ((top_h - title.height) / 2.0).max(m);
+        text_rect(x + halo, y, &title, halo)
+    });
+
+    // ---- Bottom band, right to left: north arrow, scale with exaggeration, legend.
+    let band_h = (BOTTOM_BAND * fh - 1.2 * u).max(1.0);
+    let band_y = bottom_y + 0.6 * u;
     let north = (opts.north_arrow
         && on(Optional::NorthArrow)
         && ov.north_angle_rad.is_some_and(f32::is_finite))
     .then(|| {
-        let s = 50.0 * gu;
-        let y = match peak {
-            Some(p) if p.x > fw / 2.0 => p.bottom() + gap,
-            _ => m,
-        };
+        let s = band_h.min(9.0 * u);
         Rect {
             x: fw - m - s,
-            y,
+            y: band_y + (band_h - s) / 2.0,
             w: s,
             h: s,
         }
     });
-
-    // Bottom right: legend, and the scale bar above it.
-    let legend = match (&ov.legend, opts.legend && on(Optional::Legend)) {
-        (Some(l), true) if !l.stops.is_empty() => {
-            let w = 170.0 * gu + 2.0 * pad;
-            let small = (10.0 * gu).max(MIN_OPTIONAL_TEXT_PX);
-            let h = 2.0 * pad + small * LINE_SPACING + 11.0 * gu + 3.0 * gu + small;
-            Some(Rect {
-                x: fw - m - w,
-                y: fh - m - h,
-                w,
-                h,
-            })
-        }
-        _ => None,
-    };
+    let scale_right = north.map_or(fw - m, |n| n.x - gap);
+    let exag = exaggeration_text(ov.vertical_exaggeration);
     let mut scale_bar = None;
-    let scale = match (ov.metres_per_px, opts.scale_bar && on(Optional::ScaleBar)) {
-        (Some(mpp), true) if mpp.is_finite() && mpp > 0.0 && ov.scale_unit.0 > 0.0 => {
-            // Lengths below are in the scale's unit (metres unless the job asks for feet).
-            let (unit_m, symbol) = (ov.scale_unit.0, ov.scale_unit.1.as_str());
-            let upp = mpp / unit_m;
-            let scale_label = |len: f64| {
-                if symbol == "m" {
-                    scale_label(len)
-                } else {
-                    format!("{len} {symbol}")
-                }
-            };
-            nice_length_m(upp * (120.0 * gu) as f64).map(|len_m| {
-                let bar_px = (len_m / upp) as f32;
-                let size = (10.0 * gu).max(MIN_OPTIONAL_TEXT_PX);
-                let long = format!("{} (approx., foreground)", scale_label(len_m));
-                let text = if super::text::measure_text(size, &long).0 <= 170.0 * gu {
-                    long
-                } else {
-                    format!("{} (approx.)", scale_label(len_m))
-                };
-                let label = fit_text(
-                    &text,
-                    Weight::Regular,
-                    size,
-                    MIN_OPTIONAL_TEXT_PX,
-                    170.0 * gu,
-                    1,
+    let mut scale_words = exag.clone();
+    if let (Some(mpp), true) = (ov.metres_per_px, opts.scale_bar && on(Optional::ScaleBar)) {
+        if mpp.is_finite() && mpp > 0.0 && ov.scale_unit.0 > 0.0 {
+            let upp = mpp / ov.scale_unit.0;
+            if let Some(len) = nice_length_m(upp * (16.0 * u) as f64) {
+                scale_bar = Some((len, (len / upp) as f32));
+                scale_words = format!(
+                    "{} (foreground) · {exag}",
+                    length_label(len, ov.scale_unit.1.trim())
                 );
-                let w = bar_px.max(label.width) + 2.0 * pad;
-                let h = 2.0 * pad + label.height + 3.0 * gu + 6.0 * gu;
-                let bottom = legend.map_or(fh - m, |l| l.y - gap);
-                scale_bar = Some((len_m, bar_px, label));
-                Rect {
-                    x: fw - m - w,
-                    y: bottom - h,
-                    w,
-                    h,
-                }
-            })
-        }
-        _ => None,
-    };
-
-    // Bottom left: credit, and the chart above it.
-    let credit_text = match (&ov.credit, opts.credit && on(Optional::Credit)) {
-        (Some(c), true) => fit_text(
-            c,
-            Weight::Regular,
-            opx(10.0),
-            MIN_OPTIONAL_TEXT_PX,
-            (fw * 0.5 - m - 2.0 * pad).max(1.0),
-            2,
-        ),
-        _ => FittedText::empty(Weight::Regular),
-    };
-    let credit = (!credit_text.lines.is_empty()).then(|| {
-        let h = credit_text.height + 2.0 * pad * 0.6;
-        Rect {
-            x: m,
-            y: fh - m - h,
-            w: credit_text.width + 2.0 * pad,
-            h,
-        }
-    });
-    let chart = match (&ov.inset, opts.inset_chart && on(Optional::InsetChart)) {
-        (Some(c), true) if c.series.len() >= 2 => {
-            let (w, h) = (220.0 * gu, 112.0 * gu);
-            let bottom = credit.map_or(fh - m, |c| c.y - gap);
-            Some(Rect {
-                x: m,
-                y: bottom - h,
-                w,
-                h,
-            })
-        }
-        _ => None,
-    };
-
-    // Peak tag: try four diagonal directions, keep the first inside the frame clear of the panels.
-    let tag_text = if opts.peak_marker && on(Optional::PeakTag) {
-        fit_text(
-            &format!(
-                "peak {} {}",
-                format_value(ov.peak_height),
-                ov.peak_unit.trim()
-            ),
-            Weight::Bold,
-            opx(11.0),
-            MIN_OPTIONAL_TEXT_PX,
-            fw,
-            1,
-        )
-    } else {
-        FittedText::empty(Weight::Bold)
-    };
-    let mut peak_tag = None;
-    if let (Some((x, y)), false, true) = (ov.peak_px, tag_text.lines.is_empty(), opts.peak_marker) {
-        if x.is_finite() && y.is_finite() && x >= 0.0 && y >= 0.0 && x < fw && y < fh {
-            let (tw, th) = (
-                tag_text.width + 2.0 * pad * 0.7,
-                tag_text.height + 2.0 * pad * 0.5,
-            );
-            let reach = 34.0 * u;
-            let panels: Vec<Rect> = [head, peak, north, scale, legend, chart, credit]
-                .iter()
-                .flatten()
-                .copied()
-                .collect();
-            for (dx, dy) in [(1.0, -1.0), (-1.0, -1.0), (1.0, 1.0), (-1.0, 1.0)] {
-                let ex = x + dx * reach;
-                let ey = y + dy * reach * 0.8;
-                let r = Rect {
-                    x: if dx > 0.0 { ex } else { ex - tw },
-                    y: if dy < 0.0 { ey - th } else { ey },
-                    w: tw,
-                    h: th,
-                };
-                if r.inside(fw, fh) && !panels.iter().any(|p| p.overlaps(&r)) {
-                    peak_tag = Some(r);
-                    break;
+                if measure_text(small, &scale_words).0 > 34.0 * u {
+                    scale_words = format!("{} · {exag}", length_label(len, ov.scale_unit.1.trim()));
                 }
             }
         }
     }
+    // The exaggeration goes with the status mark: on every frame of a run.
+    if !opts.status && scale_bar.is_none() {
+        scale_words.clear();
+    }
+    let scale_text = fit_text(
+        &scale_words,
+        Weight::Regular,
+        small,
+        MIN_TEXT_PX,
+        fw * 0.45,
+        1,
+    );
+    let bar_h = (0.9 * u).max(2.0);
+    let scale = (!scale_text.lines.is_empty()).then(|| {
+        let bar_w = scale_bar.map_or(0.0, |(_, p)| p);
+        let w = scale_text.width.max(bar_w) + 2.0 * halo;
+        let h = scale_text.height
+            + 2.0 * halo
+            + if scale_bar.is_some() {
+                bar_h + 0.4 * u
+            } else {
+                0.0
+            };
+        Rect {
+            x: scale_right - w,
+            y: band_y + (band_h - h) / 2.0,
+            w,
+            h,
+        }
+    });
+    let legend_right = scale.map_or(scale_right, |s| s.x - gap);
+    let (legend, legend_title, legend_lo, legend_hi) =
+        match (&ov.legend, opts.legend && on(Optional::Legend)) {
+            (Some(l), true) if !l.stops.is_empty() => {
+                let t = fit_text(
+                    &format!("{} ({})", l.title.trim(), l.unit.trim()),
+                    Weight::Regular,
+                    small,
+                    MIN_TEXT_PX,
+                    40.0 * u,
+                    1,
+                );
+                let (lo, hi) = (format_value(l.min), format_value(l.max));
+                let ends = measure_text(small, &lo).0 + measure_text(small, &hi).0;
+                let ramp_w = 20.0 * u;
+                let w = t.width.max(ends + ramp_w + 2.0 * pad) + 2.0 * halo;
+                let h = t.height + small * LINE_SPACING + 2.0 * halo;
+                (
+                    Some(Rect {
+                        x: legend_right - w,
+                        y: band_y + (band_h - h) / 2.0,
+                        w,
+                        h,
+                    }),
+                    t,
+                    lo,
+                    hi,
+                )
+            }
+            _ => (None, empty(Weight::Regular), String::new(), String::new()),
+        };
 
-    Plan {
+    // ---- Bottom band, left: the chart; then the credit up to the legend.
+    let chart = match (&ov.inset, opts.inset_chart && on(Optional::InsetChart)) {
+        (Some(c), true) if !c.survey_points.is_empty() => Some(Rect {
+            x: m,
+            y: band_y,
+            w: 46.0 * u,
+            h: band_h,
+        }),
+        _ => None,
+    };
+    let credit_left = chart.map_or(m, |c| c.right() + gap);
+    let credit_right = legend.or(scale).map_or(fw - m, |r| r.x - gap);
+    let credit = match (&ov.credit, opts.credit && on(Optional::Credit)) {
+        (Some(c), true) if credit_right - credit_left > 10.0 * u => fit_text(
+            c,
+            Weight::Regular,
+            small,
+            MIN_TEXT_PX.max(small * 0.8),
+            credit_right - credit_left - 2.0 * halo,
+            2,
+        ),
+        _ => empty(Weight::Regular),
+    };
+    let credit_rect = (!credit.lines.is_empty()).then(|| {
+        let y = band_y + (band_h - credit.height) / 2.0;
+        text_rect(credit_left + halo, y, &credit, halo)
+    });
+
+    // ---- On the terrain: "crest" beside the marker, right of it or left, clear of the panels.
+    let marker = if opts.crest_marker && on(Optional::MarkerLabel) {
+        fit_text("crest", Weight::Bold, small, MIN_TEXT_PX, fw, 1)
+    } else {
+        empty(Weight::Bold)
+    };
+    let mut plan = Plan {
         unit: u,
-        head,
+        date: date_rect,
         badge: badge_rect,
-        peak,
-        north,
-        scale,
-        legend,
+        detail: detail_rect,
+        title: title_rect,
+        crest,
         chart,
-        credit,
-        peak_tag,
+        credit: credit_rect,
+        legend,
+        scale,
+        north,
+        marker_label: None,
         dropped: dropped.to_vec(),
         too_small: false,
-        head_text: HeadText {
-            title,
+        smallest_text_px: 0.0,
+        t: Texts {
             date,
             badge,
             detail,
+            title,
+            crest_name,
+            crest_value,
+            credit,
+            legend_title,
+            legend_lo,
+            legend_hi,
+            scale_text,
+            scale_bar,
+            marker,
+            small_px: small,
+            halo_px: halo,
+            pad,
         },
-        peak_text: (peak_label, peak_value),
-        scale_bar,
-        credit_text,
-        tag_text,
+    };
+    if let (Some((x, y)), false) = (ov.crest_px, plan.t.marker.lines.is_empty()) {
+        let ring = marker_radius(u);
+        let panels = boxes(&plan);
+        let t = &plan.t.marker;
+        for side in [1.0f32, -1.0] {
+            let tx = if side > 0.0 {
+                x + ring + 0.6 * u
+            } else {
+                x - ring - 0.6 * u - t.width
+            };
+            let r = text_rect(tx, y - t.height / 2.0, t, halo);
+            if r.inside(fw, fh) && !panels.iter().any(|p| p.overlaps(&r)) {
+                plan.marker_label = Some(r);
+                break;
+            }
+        }
     }
+    plan.smallest_text_px = [
+        &plan.t.date,
+        &plan.t.badge,
+        &plan.t.detail,
+        &plan.t.title,
+        &plan.t.crest_name,
+        &plan.t.crest_value,
+        &plan.t.credit,
+        &plan.t.legend_title,
+        &plan.t.scale_text,
+    ]
+    .iter()
+    .filter(|t| !t.lines.is_empty())
+    .map(|t| t.size_px)
+    .chain(plan.legend.map(|_| small))
+    .chain(plan.chart.map(|_| small))
+    .fold(f32::MAX, f32::min);
+    plan
+}
+
+/// Radius of the ring on the crest, pixels.
+pub(super) fn marker_radius(u: f32) -> f32 {
+    (1.1 * u).max(3.0)
 }
 
 #[cfg(test)]
@@ -625,29 +674,44 @@ mod tests {
     use super::*;
 
     #[test]
-    fn scale_bar_follows_the_display_unit() {
+    fn scale_bar_follows_the_display_unit_and_states_the_exaggeration() {
         let mut ov = Overlay {
             metres_per_px: Some(0.5),
+            vertical_exaggeration: 2.5,
             ..Overlay::default()
         };
         let metres = plan(1280, 720, &ov, &LabelOptions::default());
-        let (len_m, px_m, label_m) = metres.scale_bar.expect("room for a scale bar");
+        let (len_m, px_m) = metres.t.scale_bar.expect("room for a scale bar");
+        let words = metres.t.scale_text.lines.join(" ");
         assert!(
-            label_m.lines.join(" ").contains(" m"),
-            "{:?}",
-            label_m.lines
+            words.contains(" m") && words.contains("heights ×2.5"),
+            "{words}"
         );
         assert!(((px_m as f64) * 0.5 - len_m).abs() < 1e-3);
         // Check: international foot = 0.3048 m exactly (from memory, 1959 agreement); the bar's
         // length in pixels times metres per pixel equals the labelled feet times 0.3048
         ov.scale_unit = (0.3048, "ft".into());
         let feet = plan(1280, 720, &ov, &LabelOptions::default());
-        let (len_ft, px_ft, label_ft) = feet.scale_bar.expect("room for a scale bar");
-        assert!(
-            label_ft.lines.join(" ").contains(" ft"),
-            "{:?}",
-            label_ft.lines
-        );
+        let (len_ft, px_ft) = feet.t.scale_bar.expect("room for a scale bar");
+        assert!(feet.t.scale_text.lines.join(" ").contains(" ft"));
         assert!(((px_ft as f64) * 0.5 - len_ft * 0.3048).abs() < 1e-3);
+        // With the scale bar off, the exaggeration is still stated.
+        let off = plan(
+            1280,
+            720,
+            &ov,
+            &LabelOptions {
+                scale_bar: false,
+                ..LabelOptions::default()
+            },
+        );
+        assert_eq!(off.t.scale_text.lines.join(" "), "heights ×2.5");
+    }
+
+    #[test]
+    fn exaggeration_words() {
+        assert_eq!(exaggeration_text(2.0), "heights ×2");
+        assert_eq!(exaggeration_text(3.25), "heights ×3.25");
+        assert_eq!(exaggeration_text(1.0), "true heights (×1)");
     }
 }

@@ -35,19 +35,43 @@ pub struct Legend {
     pub unit: String,
 }
 
-/// A small chart of a value (peak height, volume) against time.
+/// A small chart of a value (the crest) against time: the surveys as dots joined by a dashed line
+/// (nothing was measured between them), and this frame's own value as a marker.
+///
+/// Everything but `current` is the same on every frame of a job, so it is drawn once and reused.
 #[derive(Debug, Clone, PartialEq)]
 pub struct InsetChart {
-    /// Chart heading (e.g. "Peak height").
+    /// Chart heading (e.g. "Crest elevation").
     pub title: String,
     /// Unit symbol of the values.
     pub unit: String,
-    /// The line: (decimal year, value), in time order.
-    pub series: Vec<(f64, f64)>,
-    /// Survey points drawn as dots: (decimal year, value).
+    /// Survey values: (decimal year, value), in time order.
     pub survey_points: Vec<(f64, f64)>,
-    /// The time of this frame, decimal year.
-    pub current_year: f64,
+    /// This frame: (decimal year, value); the value may be NaN (no data).
+    pub current: (f64, f64),
+}
+
+/// Which crest figure a frame shows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum CrestFigure {
+    /// The crest's elevation on the grids' vertical datum.
+    #[default]
+    Elevation,
+    /// The crest's height above `change.reference_elevation_m`.
+    HeightAboveReference,
+}
+
+/// The crest figure of one frame, as drawn.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CrestLabel {
+    /// What the figure is, in words that say which (e.g. "Crest elevation",
+    /// "Crest above 5 m reference").
+    pub name: String,
+    /// The value, already in the display unit.
+    pub value: f64,
+    /// Unit symbol (e.g. "m", "ft").
+    pub unit: String,
 }
 
 /// Everything the overlay of one frame says. Plain data, filled by the pipeline per frame.
@@ -59,12 +83,12 @@ pub struct Overlay {
     pub date_text: String,
     /// Measured or interpolated.
     pub status: FrameStatus,
-    /// Peak height, already converted to the display unit.
-    pub peak_height: f64,
-    /// Unit symbol of `peak_height` (e.g. "m", "ft").
-    pub peak_unit: String,
-    /// Pixel (column, row) of the peak on the terrain, from the renderer's projection.
-    pub peak_px: Option<(f32, f32)>,
+    /// The crest figure (never dropped).
+    pub crest: CrestLabel,
+    /// Pixel (column, row) of the crest on the terrain, from the renderer's projection.
+    pub crest_px: Option<(f32, f32)>,
+    /// The vertical exaggeration the frame was rendered with (stated on every frame).
+    pub vertical_exaggeration: f64,
     /// Colour legend.
     pub legend: Option<Legend>,
     /// Screen direction of north in radians, clockwise from straight up (0 = north is up).
@@ -85,9 +109,13 @@ impl Default for Overlay {
             title: String::new(),
             date_text: String::new(),
             status: FrameStatus::Surveyed { label: None },
-            peak_height: f64::NAN,
-            peak_unit: "m".into(),
-            peak_px: None,
+            crest: CrestLabel {
+                name: "Crest elevation".into(),
+                value: f64::NAN,
+                unit: "m".into(),
+            },
+            crest_px: None,
+            vertical_exaggeration: 1.0,
             legend: None,
             north_angle_rad: None,
             metres_per_px: None,
@@ -106,12 +134,17 @@ pub struct LabelOptions {
     pub title: bool,
     /// Draw the date. Default: true.
     pub date: bool,
-    /// Draw the measured/interpolated badge and its detail line. Default: true.
+    /// Draw the measured/interpolated badge and its detail line; the job cannot turn it off.
+    /// Default: true.
     pub status: bool,
-    /// Draw the peak height panel. Default: true.
-    pub peak_height: bool,
-    /// Draw the marker and leader line on the peak. Default: true.
-    pub peak_marker: bool,
+    /// Which crest figure the frames show, its name saying which: `elevation` (on the grids'
+    /// vertical datum) or `height-above-reference` (above `change.reference_elevation_m`).
+    /// Default: elevation.
+    pub crest_shows: CrestFigure,
+    /// Draw the crest figure (top right). Default: true.
+    pub crest: bool,
+    /// Draw the marker on the crest. Default: true.
+    pub crest_marker: bool,
     /// Draw the colour legend. Default: true.
     pub legend: bool,
     /// Draw the north arrow. Default: true.
@@ -130,8 +163,9 @@ impl Default for LabelOptions {
             title: true,
             date: true,
             status: true,
-            peak_height: true,
-            peak_marker: true,
+            crest_shows: CrestFigure::Elevation,
+            crest: true,
+            crest_marker: true,
             legend: true,
             north_arrow: true,
             scale_bar: true,
@@ -148,8 +182,9 @@ impl LabelOptions {
             title: false,
             date: false,
             status: false,
-            peak_height: false,
-            peak_marker: false,
+            crest_shows: CrestFigure::Elevation,
+            crest: false,
+            crest_marker: false,
             legend: false,
             north_arrow: false,
             scale_bar: false,

@@ -15,7 +15,7 @@ static REGULAR_TTF: &[u8] = include_bytes!("font/DejaVuSans.ttf");
 static BOLD_TTF: &[u8] = include_bytes!("font/DejaVuSans-Bold.ttf");
 
 /// Weight of the typeface.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum Weight {
     /// DejaVu Sans.
     Regular,
@@ -116,6 +116,135 @@ pub fn draw_text_weighted(
             let a = coverage.clamp(0.0, 1.0) * alpha;
             blend_pixel(frame, px as usize, py as usize, rgba, a);
         });
+    }
+}
+
+/// One line of text rasterised once, with a halo around its glyphs, to be put on any number of
+/// frames ([`draw_stamp`]): light text with a dark halo reads on sky, sand and water alike without
+/// a box hiding what lies behind it.
+#[derive(Debug, Clone)]
+pub struct Stamp {
+    /// Width in pixels, halo included.
+    pub width: usize,
+    /// Height in pixels, halo included.
+    pub height: usize,
+    /// Halo margin on each side, pixels: the line box starts this far inside the stamp.
+    pub pad: usize,
+    glyph: Vec<f32>,
+    halo: Vec<f32>,
+}
+
+impl Stamp {
+    /// Coverage of the glyphs and of the halo at stamp pixel (x, y), each in [0, 1].
+    pub(crate) fn coverage(&self) -> impl Fn(usize, usize) -> (f32, f32) + '_ {
+        move |x, y| {
+            let k = y * self.width + x;
+            (self.glyph[k], self.halo[k])
+        }
+    }
+}
+
+/// Rasterises `text` at `size_px` with a halo reaching `halo_px` beyond the glyphs.
+pub fn stamp(text: &str, size_px: f32, weight: Weight, halo_px: f32) -> Stamp {
+    let halo_px = if halo_px.is_finite() {
+        halo_px.clamp(0.0, 8.0)
+    } else {
+        0.0
+    };
+    let (w, h) = measure_text_weighted(size_px, text, weight);
+    let pad = halo_px.ceil() as usize + 1;
+    let (sw, sh) = (
+        w.ceil() as usize + 2 * pad + 1,
+        h.ceil() as usize + 2 * pad + 1,
+    );
+    let mut glyph = vec![0.0f32; sw * sh];
+    if size_px.is_finite() && size_px > 0.0 {
+        let f = font(weight);
+        let scaled = f.as_scaled(PxScale::from(size_px));
+        let baseline = pad as f32 + scaled.ascent();
+        let mut caret = pad as f32;
+        let mut prev = None;
+        for c in text.chars() {
+            let id = scaled.glyph_id(c);
+            if let Some(p) = prev {
+                caret += scaled.kern(p, id);
+            }
+            let g = id.with_scale_and_position(PxScale::from(size_px), point(caret, baseline));
+            caret += scaled.h_advance(id);
+            prev = Some(id);
+            let Some(outline) = f.outline_glyph(g) else {
+                continue;
+            };
+            let b = outline.px_bounds();
+            let (left, top) = (b.min.x as i64, b.min.y as i64);
+            outline.draw(|gx, gy, cov| {
+                let (px, py) = (left + gx as i64, top + gy as i64);
+                if px >= 0 && py >= 0 && (px as usize) < sw && (py as usize) < sh {
+                    let k = py as usize * sw + px as usize;
+                    glyph[k] = (glyph[k] + cov).min(1.0);
+                }
+            });
+        }
+    }
+    // Halo: the glyph coverage spread over a disc of radius halo_px, with a one-pixel soft edge.
+    let mut halo = glyph.clone();
+    if halo_px > 0.0 {
+        let r = halo_px.ceil() as isize;
+        let offsets: Vec<(isize, isize, f32)> = (-r..=r)
+            .flat_map(|dy| (-r..=r).map(move |dx| (dx, dy)))
+            .filter_map(|(dx, dy)| {
+                let d = ((dx * dx + dy * dy) as f32).sqrt();
+                let wgt = (halo_px + 0.5 - d).clamp(0.0, 1.0);
+                (wgt > 0.0).then_some((dx, dy, wgt))
+            })
+            .collect();
+        for y in 0..sh as isize {
+            for x in 0..sw as isize {
+                let mut m = 0.0f32;
+                for &(dx, dy, wgt) in &offsets {
+                    let (xx, yy) = (x + dx, y + dy);
+                    if xx >= 0 && yy >= 0 && (xx as usize) < sw && (yy as usize) < sh {
+                        m = m.max(glyph[yy as usize * sw + xx as usize] * wgt);
+                    }
+                }
+                halo[y as usize * sw + x as usize] = m;
+            }
+        }
+    }
+    Stamp {
+        width: sw,
+        height: sh,
+        pad,
+        glyph,
+        halo,
+    }
+}
+
+/// Blends a [`Stamp`] onto `frame` with its line box's top-left corner at (x, y): the halo in
+/// `halo_rgba`, then the glyphs in `rgba`. Pixels outside the frame are skipped.
+pub fn draw_stamp(frame: &mut Frame, s: &Stamp, x: i32, y: i32, rgba: [u8; 4], halo_rgba: [u8; 4]) {
+    let (fw, fh) = (frame.width as i64, frame.height as i64);
+    let (ox, oy) = (x as i64 - s.pad as i64, y as i64 - s.pad as i64);
+    let (fa, ha) = (rgba[3] as f32 / 255.0, halo_rgba[3] as f32 / 255.0);
+    for sy in 0..s.height {
+        let py = oy + sy as i64;
+        if py < 0 || py >= fh {
+            continue;
+        }
+        for sx in 0..s.width {
+            let px = ox + sx as i64;
+            if px < 0 || px >= fw {
+                continue;
+            }
+            let k = sy * s.width + sx;
+            let (h, g) = (s.halo[k], s.glyph[k]);
+            if h > 0.0 {
+                blend_pixel(frame, px as usize, py as usize, halo_rgba, h * ha);
+            }
+            if g > 0.0 {
+                blend_pixel(frame, px as usize, py as usize, rgba, g * fa);
+            }
+        }
     }
 }
 

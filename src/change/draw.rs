@@ -1,7 +1,9 @@
-//! Small drawing helpers on a `Frame` for maps and charts: rectangles, lines, triangles, text, ticks.
+//! Small drawing helpers on a `Frame` for maps and charts: rectangles, lines, triangles (through the
+//! tiny-skia rasteriser, `annotate::shapes`), text, ticks.
 //!
 //! All coordinates are pixels with the origin at the top-left; everything clips to the frame.
 
+use crate::annotate::shapes;
 use crate::annotate::text::{draw_text, measure_text};
 use crate::render::Frame;
 
@@ -15,27 +17,10 @@ pub fn blank(width: u32, height: u32) -> Frame {
     f
 }
 
-/// Blends `rgba` over pixel (x, y) by its alpha; outside the frame does nothing.
-pub fn blend(frame: &mut Frame, x: i64, y: i64, rgba: [u8; 4]) {
-    if x < 0 || y < 0 || x >= frame.width as i64 || y >= frame.height as i64 {
-        return;
-    }
-    let i = (y as usize * frame.width as usize + x as usize) * 4;
-    let a = rgba[3] as u32;
-    for (dst, &src) in frame.rgba[i..i + 3].iter_mut().zip(&rgba[..3]) {
-        *dst = ((src as u32 * a + *dst as u32 * (255 - a) + 127) / 255) as u8;
-    }
-    frame.rgba[i + 3] = frame.rgba[i + 3].max(rgba[3]);
-}
-
-/// Fills the rectangle with top-left (x, y) and size (w, h).
+/// Fills the rectangle with top-left (x, y) and size (w, h) (tiny-skia, anti-aliased edges).
 pub fn fill_rect(frame: &mut Frame, x: f32, y: f32, w: f32, h: f32, rgba: [u8; 4]) {
-    let (x0, y0) = (x.round() as i64, y.round() as i64);
-    let (x1, y1) = ((x + w).round() as i64, (y + h).round() as i64);
-    for yy in y0.max(0)..y1.min(frame.height as i64) {
-        for xx in x0.max(0)..x1.min(frame.width as i64) {
-            blend(frame, xx, yy, rgba);
-        }
+    if let Some(mut c) = shapes::canvas(frame) {
+        shapes::fill_round_rect(&mut c, x, y, w, h, 0.0, rgba);
     }
 }
 
@@ -47,46 +32,14 @@ pub fn stroke_rect(frame: &mut Frame, x: f32, y: f32, w: f32, h: f32, rgba: [u8;
     fill_rect(frame, x + w - 1.0, y, 1.0, h, rgba);
 }
 
-/// Draws a line `width` pixels wide from (x0, y0) to (x1, y1) by stamping squares every half pixel.
+/// Draws a line `width` pixels wide from (x0, y0) to (x1, y1), round ends.
 pub fn line(frame: &mut Frame, x0: f32, y0: f32, x1: f32, y1: f32, width: f32, rgba: [u8; 4]) {
-    if !(x0.is_finite() && y0.is_finite() && x1.is_finite() && y1.is_finite()) {
-        return;
-    }
-    let len = (x1 - x0).hypot(y1 - y0);
-    // Limit the work for a line far outside the frame.
-    let steps = ((len * 2.0).ceil() as usize).clamp(1, 20_000);
-    let half = (width / 2.0).max(0.5);
-    let mut last = (i64::MIN, i64::MIN);
-    for k in 0..=steps {
-        let t = k as f32 / steps as f32;
-        let (x, y) = (x0 + (x1 - x0) * t, y0 + (y1 - y0) * t);
-        let (xa, ya) = (
-            (x - half + 0.5).floor() as i64,
-            (y - half + 0.5).floor() as i64,
-        );
-        if (xa, ya) == last {
-            continue;
-        }
-        last = (xa, ya);
-        let n = (width.round() as i64).max(1);
-        for yy in ya..ya + n {
-            for xx in xa..xa + n {
-                set(frame, xx, yy, rgba);
-            }
-        }
+    if let Some(mut c) = shapes::canvas(frame) {
+        shapes::stroke_polyline(&mut c, &[(x0, y0), (x1, y1)], width, rgba, None);
     }
 }
 
-/// Sets a pixel without blending (lines overdraw their own stamps).
-fn set(frame: &mut Frame, x: i64, y: i64, rgba: [u8; 4]) {
-    if x < 0 || y < 0 || x >= frame.width as i64 || y >= frame.height as i64 {
-        return;
-    }
-    let i = (y as usize * frame.width as usize + x as usize) * 4;
-    frame.rgba[i..i + 4].copy_from_slice(&rgba);
-}
-
-/// Fills the triangle (a, b, c), pixel centres inside count.
+/// Fills the triangle (a, b, c).
 pub fn fill_triangle(
     frame: &mut Frame,
     a: (f32, f32),
@@ -94,21 +47,8 @@ pub fn fill_triangle(
     c: (f32, f32),
     rgba: [u8; 4],
 ) {
-    let x0 = a.0.min(b.0).min(c.0).floor().max(0.0) as i64;
-    let x1 = a.0.max(b.0).max(c.0).ceil().min(frame.width as f32) as i64;
-    let y0 = a.1.min(b.1).min(c.1).floor().max(0.0) as i64;
-    let y1 = a.1.max(b.1).max(c.1).ceil().min(frame.height as f32) as i64;
-    let edge = |p: (f32, f32), q: (f32, f32), x: f32, y: f32| {
-        (q.0 - p.0) * (y - p.1) - (q.1 - p.1) * (x - p.0)
-    };
-    for y in y0..y1 {
-        for x in x0..x1 {
-            let (px, py) = (x as f32 + 0.5, y as f32 + 0.5);
-            let (e0, e1, e2) = (edge(a, b, px, py), edge(b, c, px, py), edge(c, a, px, py));
-            if (e0 >= 0.0 && e1 >= 0.0 && e2 >= 0.0) || (e0 <= 0.0 && e1 <= 0.0 && e2 <= 0.0) {
-                blend(frame, x, y, rgba);
-            }
-        }
+    if let Some(mut cv) = shapes::canvas(frame) {
+        shapes::fill_polygon(&mut cv, &[a, b, c], rgba);
     }
 }
 
@@ -215,7 +155,8 @@ mod tests {
         let mut f = blank(20, 10);
         fill_rect(&mut f, -5.0, -5.0, 8.0, 8.0, BLACK);
         assert_eq!(&f.rgba[0..4], &BLACK);
-        line(&mut f, 0.0, 9.0, 19.0, 9.0, 1.0, [255, 0, 0, 255]);
+        // Continuous coordinates: row 9 spans y 9.0 to 10.0, so a 1-pixel line on y = 9.5 fills it.
+        line(&mut f, 0.0, 9.5, 19.0, 9.5, 1.0, [255, 0, 0, 255]);
         let i = (9 * 20 + 10) * 4;
         assert_eq!(&f.rgba[i..i + 4], &[255, 0, 0, 255]);
         fill_triangle(

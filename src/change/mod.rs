@@ -19,6 +19,7 @@
 //! - Only survey dates are measurements. Rates assume steady change between two surveys and every
 //!   record says so.
 
+pub mod crest;
 mod draw;
 pub mod landform;
 mod map;

@@ -86,14 +86,28 @@ pub struct SurveyRecord {
     pub max_elevation_m: f64,
     /// Mean elevation over cells with data.
     pub mean_elevation_m: f64,
-    /// Map x of the highest point (parabolic sub-cell fit), CRS units.
-    pub peak_x_crs: f64,
-    /// Map y of the highest point, CRS units.
-    pub peak_y_crs: f64,
+    /// Map x of the highest cell (parabolic sub-cell fit), CRS units.
+    pub highest_cell_x_crs: f64,
+    /// Map y of the highest cell, CRS units.
+    pub highest_cell_y_crs: f64,
     /// The reference elevation heights and volumes are measured from.
     pub reference_elevation_m: f64,
-    /// Highest elevation minus the reference elevation.
-    pub peak_height_m: f64,
+    /// Highest cell's elevation minus the reference elevation.
+    pub highest_cell_height_above_reference_m: f64,
+    /// Elevation of the crest (top of a local quadratic fit scaled to the survey's σ, see
+    /// `change::crest`) on the grids' vertical datum.
+    pub crest_elevation_m: f64,
+    /// Crest elevation minus the reference elevation.
+    pub crest_height_above_reference_m: f64,
+    /// Standard error of the crest elevation from the fit.
+    pub crest_standard_error_m: f64,
+    /// Side of the square neighbourhood the crest was fitted over (0 when it fell back to the
+    /// highest cell).
+    pub crest_window_m: f64,
+    /// Map x of the crest, CRS units.
+    pub crest_x_crs: f64,
+    /// Map y of the crest, CRS units.
+    pub crest_y_crs: f64,
     /// Volume of the surface above the reference elevation (cell sum).
     pub volume_above_reference_m3: f64,
     /// Area of the cells above the reference elevation.
@@ -212,16 +226,18 @@ pub struct PairRecord {
     pub volume_sigma_independent_m3: f64,
     /// `A * LoD * n_detected`: a conservative bound, fully correlated errors at the LoD.
     pub volume_bound_lod_m3: f64,
-    /// Later peak height minus earlier peak height.
-    pub peak_height_change_m: f64,
-    /// Eastward move of the highest point.
-    pub peak_shift_east_m: f64,
-    /// Northward move of the highest point.
-    pub peak_shift_north_m: f64,
-    /// Distance the highest point moved.
-    pub peak_shift_distance_m: f64,
-    /// Compass direction the highest point moved to, degrees clockwise from north.
-    pub peak_shift_azimuth_deg: f64,
+    /// Later crest elevation minus earlier crest elevation.
+    pub crest_elevation_change_m: f64,
+    /// Later highest cell's elevation minus the earlier one's (rides on survey noise).
+    pub highest_cell_elevation_change_m: f64,
+    /// Eastward move of the crest.
+    pub crest_shift_east_m: f64,
+    /// Northward move of the crest.
+    pub crest_shift_north_m: f64,
+    /// Distance the crest moved.
+    pub crest_shift_distance_m: f64,
+    /// Compass direction the crest moved to, degrees clockwise from north.
+    pub crest_shift_azimuth_deg: f64,
     /// Eastward migration from the displacement field, when available.
     pub migration_east_m: Option<f64>,
     /// Northward migration from the displacement field, when available.
@@ -460,6 +476,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             }
             None => (f64::NAN, f64::NAN),
         };
+        let crest = super::crest::estimate(&s.grid.z, geometry, sigma);
         let (west, south, east, north) = geometry.extent();
         for n in &notes {
             log::warn!("survey {}: {n}", s.id);
@@ -495,10 +512,22 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             } else {
                 f64::NAN
             },
-            peak_x_crs: peak_x,
-            peak_y_crs: peak_y,
+            highest_cell_x_crs: peak_x,
+            highest_cell_y_crs: peak_y,
             reference_elevation_m: reference,
-            peak_height_m: st.max_m - reference,
+            highest_cell_height_above_reference_m: st.max_m - reference,
+            crest_elevation_m: crest.map_or(f64::NAN, |c| c.elevation_m),
+            crest_height_above_reference_m: crest.map_or(f64::NAN, |c| c.elevation_m - reference),
+            crest_standard_error_m: crest.map_or(f64::NAN, |c| c.standard_error_m),
+            crest_window_m: crest.map_or(f64::NAN, |c| {
+                if c.radius_cells == 0 {
+                    0.0
+                } else {
+                    (2 * c.radius_cells + 1) as f64 * geometry.cell_x_m()
+                }
+            }),
+            crest_x_crs: crest.map_or(f64::NAN, |c| c.x_crs),
+            crest_y_crs: crest.map_or(f64::NAN, |c| c.y_crs),
             volume_above_reference_m3: st.excess_sum_m * cell_area,
             area_above_reference_m2: st.cells_above as f64 * cell_area,
             sigma_z_m: sigma,
@@ -558,8 +587,8 @@ fn pair_record(
     let lod = t * sigma_dod;
     let st = metrics::pair_stats(stack.z(a), stack.z(b), lod);
     let detected = st.erosion_cells + st.deposition_cells;
-    let east = (rb.peak_x_crs - ra.peak_x_crs) * unit_m;
-    let north = (rb.peak_y_crs - ra.peak_y_crs) * unit_m;
+    let east = (rb.crest_x_crs - ra.crest_x_crs) * unit_m;
+    let north = (rb.crest_y_crs - ra.crest_y_crs) * unit_m;
     let mut warnings = Vec::new();
     for (r, which) in [(ra, "earlier"), (rb, "later")] {
         if r.sigma_z_source == "default" {
@@ -605,11 +634,12 @@ fn pair_record(
         detected_cells: detected,
         volume_sigma_independent_m3: cell_area * sigma_dod * (detected as f64).sqrt(),
         volume_bound_lod_m3: cell_area * lod * detected as f64,
-        peak_height_change_m: rb.peak_height_m - ra.peak_height_m,
-        peak_shift_east_m: east,
-        peak_shift_north_m: north,
-        peak_shift_distance_m: east.hypot(north),
-        peak_shift_azimuth_deg: azimuth_deg(east, north),
+        crest_elevation_change_m: rb.crest_elevation_m - ra.crest_elevation_m,
+        highest_cell_elevation_change_m: rb.max_elevation_m - ra.max_elevation_m,
+        crest_shift_east_m: east,
+        crest_shift_north_m: north,
+        crest_shift_distance_m: east.hypot(north),
+        crest_shift_azimuth_deg: azimuth_deg(east, north),
         migration_east_m: None,
         migration_north_m: None,
         migration_distance_m: None,

@@ -1,6 +1,6 @@
 //! Frames -> a numbered PNG sequence (`frame_0000.png`, …) in a folder, with an index CSV that says
 //! for every frame its time, whether it is surveyed or interpolated, the bracketing surveys and the
-//! peak height; and a poster: one PNG with several frames side by side, captioned.
+//! crest figures; and a poster: one PNG with several frames side by side, captioned.
 //!
 //! Every file is written atomically (temporary name, then rename). Nothing already in the folder is
 //! replaced unless overwrite is asked; the check covers the whole sequence before the first frame is
@@ -47,10 +47,15 @@ pub struct IndexRow {
     pub from_survey: String,
     /// The later bracketing survey (equal to `from_survey` on a survey frame).
     pub to_survey: String,
-    /// Peak height in `peak_unit`.
-    pub peak_height: f64,
-    /// Unit symbol of the peak height.
-    pub peak_unit: String,
+    /// Crest elevation (on the grids' vertical datum) of the frame's surface, in `unit`; NaN when
+    /// the surface has no data.
+    pub crest_elevation: f64,
+    /// Crest height above the reference elevation, in `unit`.
+    pub crest_height_above_reference: f64,
+    /// Elevation of the single highest cell of the frame's surface, in `unit` (rides on noise).
+    pub highest_cell_elevation: f64,
+    /// Unit symbol of the three figures.
+    pub unit: String,
 }
 
 /// Name of the index file written beside the frames.
@@ -58,7 +63,7 @@ pub const INDEX_FILE: &str = "index.csv";
 
 /// Header line of the index CSV.
 pub const INDEX_HEADER: &str =
-    "frame,file,time,status,method,from_survey,to_survey,peak_height,peak_unit";
+    "frame,file,time,status,method,from_survey,to_survey,crest_elevation,crest_height_above_reference,highest_cell_elevation,unit";
 
 /// Writes the frames of one animation as numbered PNGs; see the module doc.
 #[derive(Debug)]
@@ -216,10 +221,12 @@ impl PngSequence {
         text.push_str(INDEX_HEADER);
         text.push('\n');
         for (i, (file, r)) in self.rows.iter().enumerate() {
-            let peak = if r.peak_height.is_finite() {
-                format!("{:.3}", r.peak_height)
-            } else {
-                String::new()
+            let fig = |v: f64| {
+                if v.is_finite() {
+                    format!("{v:.3}")
+                } else {
+                    String::new()
+                }
             };
             let fields = [
                 i.to_string(),
@@ -229,8 +236,10 @@ impl PngSequence {
                 csv_field(&r.method),
                 csv_field(&r.from_survey),
                 csv_field(&r.to_survey),
-                peak,
-                csv_field(&r.peak_unit),
+                fig(r.crest_elevation),
+                fig(r.crest_height_above_reference),
+                fig(r.highest_cell_elevation),
+                csv_field(&r.unit),
             ];
             text.push_str(&fields.join(","));
             text.push('\n');

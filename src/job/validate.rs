@@ -767,6 +767,17 @@ mod tests {
         assert!(parse(&d.path().join("job.yaml"), text).is_ok());
         let e = err(&format!("{MINIMAL}labels: {{ status: false }}\n"));
         assert!(e.contains("labels.status"), "{e}");
+        let e = err(&format!("{MINIMAL}labels: {{ crest_shows: height }}\n"));
+        assert!(
+            e.contains("labels.crest_shows") && e.contains("height-above-reference"),
+            "{e}"
+        );
+        let text = format!("{MINIMAL}labels: {{ crest_shows: height-above-reference }}\n");
+        let job = parse(&d.path().join("job.yaml"), text).unwrap();
+        assert_eq!(
+            job.labels.crest_shows,
+            crate::annotate::CrestFigure::HeightAboveReference
+        );
     }
 
     #[test]

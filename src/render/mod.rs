@@ -120,6 +120,26 @@ impl FrameView {
         d / self.camera.focal_px
     }
 
+    /// The viewpoint of this frame as the job's view keys state it: (facing_deg, elevation_deg,
+    /// distance_m), the orbit's turn included.
+    pub fn view_values(&self) -> (f64, f64, f64) {
+        let e = self.camera.eye;
+        let d = [
+            self.target[0] - e[0],
+            self.target[1] - e[1],
+            self.target[2] - e[2],
+        ];
+        let horizontal = d[0].hypot(d[1]);
+        let facing = d[0].atan2(d[1]).to_degrees().rem_euclid(360.0);
+        let elevation = (-d[2]).atan2(horizontal).to_degrees();
+        (facing, elevation, horizontal.hypot(d[2]))
+    }
+
+    /// The vertical exaggeration this frame was rendered with.
+    pub fn vertical_exaggeration(&self) -> f64 {
+        self.exaggeration
+    }
+
     /// The camera of this frame (local metres about the grid centre; exaggerated heights).
     pub fn camera(&self) -> &Camera {
         &self.camera
@@ -520,7 +540,8 @@ impl Renderer {
     }
 
     /// The camera for a point of the orbit, on the output frame.
-    fn frame_view(&self, orbit_fraction: f64) -> FrameView {
+    /// The camera of the frame at `orbit_fraction` (0 to 1 along the orbit), without rendering.
+    pub fn frame_view(&self, orbit_fraction: f64) -> FrameView {
         let v = &self.view;
         let f = if v.orbit_easing {
             camera::ease(orbit_fraction)

@@ -1,17 +1,31 @@
-//! One frame of a run: its surface (survey, blend or morph), the translucent shell, the colouring,
-//! the render and the labels. `Painter` holds what is made once per job (buffers, the legend, the
-//! peak series of the inset chart) and paints frame after frame into the caller's `Frame`.
+//! One frame of a run: its surface (survey, blend or morph), its crest, the translucent shell, the
+//! colouring, the render and the labels. `Painter` holds what is made once per job (buffers, the
+//! legend, the surveys' crests for the inset chart, the label caches) and paints frame after frame
+//! into the caller's `Frame`. Nothing in it depends on other frames, so any one frame can be made
+//! alone (`dunereel still`) and comes out identical.
 
 use crate::align::AlignedStack;
-use crate::annotate::{self, FrameStatus, InsetChart, Legend, Overlay};
+use crate::annotate::{
+    self, Annotator, CrestFigure, CrestLabel, FrameStatus, InsetChart, Legend, Overlay,
+};
+use crate::change::crest::{self, Crest};
 use crate::change::ChangeRecord;
 use crate::interp::flow::FlowResult;
 use crate::interp::{self, morph, Surface};
 use crate::job::{ColourBy, Job, Method, ShellSurvey};
 use crate::render::{ramp, Colouring, Drape, Frame, Renderer};
-use crate::timeline::{self, FrameKind, FrameTime, Timeline};
+use crate::timeline::{self, FrameKind, FrameTime};
 
 use super::effective_method;
+
+/// The figures of one frame's surface, in metres, for the frame index (and a part's manifest).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub(crate) struct FrameFigures {
+    /// Crest elevation of the frame's surface (survey or in-between), when it has data.
+    pub(crate) crest_elevation_m: Option<f64>,
+    /// Elevation of the single highest cell, when it has data.
+    pub(crate) highest_cell_elevation_m: Option<f64>,
+}
 
 /// Per-job state for painting frames.
 pub(super) struct Painter<'a> {
@@ -24,50 +38,35 @@ pub(super) struct Painter<'a> {
     shell_grid: Option<&'a ndarray::Array2<f32>>,
     surface: Surface,
     shell: Surface,
-    /// Highest cell of every frame's surface: (elevation m, row, col).
-    peaks: Vec<Option<(f32, usize, usize)>>,
-    years: Vec<f64>,
-    series: Vec<(f64, f64)>,
+    /// The crest of every survey as the frames show it (display unit): (decimal year, value).
     survey_points: Vec<(f64, f64)>,
     legend: Legend,
     /// For colouring by change: the ramp's limit in metres (fixed for the animation) and t of the LoD.
     change_colour: Option<(f64, f64)>,
+    annotator: Annotator,
 }
 
 impl<'a> Painter<'a> {
-    /// Makes the buffers and, in a first pass over the surfaces, the peak of every frame.
+    /// Makes the buffers, the legend and the crest of every survey for the inset chart. Needs no
+    /// in-between surface: a single frame (`dunereel still`) costs one surface.
     pub(super) fn new(
         job: &'a Job,
         stack: &'a AlignedStack,
-        timeline: &Timeline,
         record: &'a ChangeRecord,
         fields: &'a [Option<FlowResult>],
         drape: Option<&'a Drape>,
         shell_grid: Option<&'a ndarray::Array2<f32>>,
     ) -> Self {
-        let unit = job.change.display_unit;
-        let to_unit = |m: f64| m / unit.metres();
-        let mut surface = Surface::for_stack(stack);
-        let mut peaks = Vec::with_capacity(timeline.frames.len());
-        for t in &timeline.frames {
-            make_surface(&mut surface, stack, fields, job, t);
-            peaks.push(surface.peak());
-        }
-        let years: Vec<f64> = timeline
-            .frames
+        let survey_points = record
+            .surveys
             .iter()
-            .map(|t| timeline::decimal_year(t.when))
-            .collect();
-        let point = |(p, y): (&Option<(f32, usize, usize)>, &f64)| {
-            p.map(|(z, _, _)| (*y, to_unit(z as f64)))
-        };
-        let series = peaks.iter().zip(&years).filter_map(point).collect();
-        let survey_points = timeline
-            .frames
-            .iter()
-            .zip(peaks.iter().zip(&years))
-            .filter(|(t, _)| t.kind.is_measured())
-            .filter_map(|(_, py)| point(py))
+            .filter(|s| s.crest_elevation_m.is_finite())
+            .map(|s| {
+                (
+                    s.decimal_year,
+                    shown_crest_m(job, s.crest_elevation_m) / job.change.display_unit.metres(),
+                )
+            })
             .collect();
         let change_colour = match &job.colour {
             ColourBy::Change { since, limit_m } => {
@@ -87,28 +86,36 @@ impl<'a> Painter<'a> {
             drape,
             shell_grid,
             shell: Surface::for_stack(stack),
-            surface,
-            peaks,
-            years,
-            series,
+            surface: Surface::for_stack(stack),
             survey_points,
             legend,
             change_colour,
+            annotator: Annotator::new(),
         }
     }
 
     /// Renders and labels frame `t`, seen from `orbit` (0 to 1 along the orbit), into `frame`.
-    /// Returns the peak elevation shown on it, in the display unit.
+    /// Returns the figures of the frame's surface.
     pub(super) fn paint(
         &mut self,
         renderer: &mut Renderer,
         t: &FrameTime,
         orbit: f64,
         frame: &mut Frame,
-    ) -> f64 {
+    ) -> FrameFigures {
         let (job, stack) = (self.job, self.stack);
         let unit = job.change.display_unit;
         make_surface(&mut self.surface, stack, self.fields, job, t);
+        // The crest of this very surface; between surveys the blend's σ (see `change::crest`).
+        let sigma = |i: usize| self.record.surveys[i].sigma_z_m;
+        let sigma_t = match t.kind {
+            FrameKind::Measured { survey } => sigma(survey),
+            FrameKind::Interpolated { from, to } => {
+                crest::blend_sigma_m(sigma(from), sigma(to), t.weight)
+            }
+        };
+        let crest = crest::estimate(&self.surface.z, stack.geometry(), sigma_t);
+        let highest_cell_m = crest::highest_cell(&self.surface.z).map(|(z, _, _)| z as f64);
         // The shell: a grid from the job, or an earlier survey (none on the survey itself).
         let shell_z = match self.shell_grid {
             Some(z) => Some(z),
@@ -128,7 +135,6 @@ impl<'a> Painter<'a> {
         let colouring = match (self.change_colour, &job.colour) {
             (Some((limit_m, t_lod)), ColourBy::Change { since, .. }) => {
                 let r = earlier_survey(*since, t.kind).unwrap_or(t.from);
-                let sigma = |i: usize| self.record.surveys[i].sigma_z_m;
                 let lod_m = t_lod * sigma(r).hypot(sigma(t.from).max(sigma(t.to)));
                 Colouring::Change {
                     reference: stack.z(r),
@@ -139,11 +145,7 @@ impl<'a> Painter<'a> {
             _ => self.drape.map_or(Colouring::Elevation, Colouring::Drape),
         };
         let view = renderer.render_scene_into(&self.surface, shell, colouring, orbit, frame);
-        let peak = self.peaks[t.index];
-        let peak_px = peak.and_then(|(z, r, c)| {
-            let (x, y) = stack.geometry().cell_center(r, c);
-            view.project(x, y, z as f64)
-        });
+        let crest_px = crest.and_then(|c| view.project(c.x_crs, c.y_crs, c.elevation_m));
         let date_of = |i: usize| stack.surveys()[i].date.to_string();
         let status = match t.kind {
             FrameKind::Measured { survey } => FrameStatus::Surveyed {
@@ -155,30 +157,61 @@ impl<'a> Painter<'a> {
                 to_date: date_of(to),
             },
         };
-        let peak_height = peak.map_or(f64::NAN, |(z, _, _)| z as f64 / unit.metres());
+        let shown = crest.map_or(f64::NAN, |c| {
+            shown_crest_m(job, c.elevation_m) / unit.metres()
+        });
+        let name = crest_name(job);
         let overlay = Overlay {
             title: job.title.clone(),
             date_text: t.when.date().to_string(),
             status,
-            peak_height,
-            peak_unit: unit.symbol().into(),
-            peak_px,
+            crest: CrestLabel {
+                name: name.clone(),
+                value: shown,
+                unit: unit.symbol().into(),
+            },
+            crest_px,
+            vertical_exaggeration: view.vertical_exaggeration(),
             // A draped image has no scale to explain.
             legend: self.drape.is_none().then(|| self.legend.clone()),
             north_angle_rad: view.north_px().map(|(dx, dy)| dx.atan2(-dy)),
             metres_per_px: Some(view.metres_per_px()),
             scale_unit: (unit.metres(), unit.symbol().into()),
             inset: Some(InsetChart {
-                title: "Peak elevation".into(),
+                title: name,
                 unit: unit.symbol().into(),
-                series: self.series.clone(),
                 survey_points: self.survey_points.clone(),
-                current_year: self.years[t.index],
+                current: (timeline::decimal_year(t.when), shown),
             }),
             credit: job.credit.clone(),
         };
-        annotate::draw_overlay(frame, &overlay, &job.labels);
-        peak_height
+        self.annotator.draw(frame, &overlay, &job.labels);
+        FrameFigures {
+            crest_elevation_m: crest.map(|c: Crest| c.elevation_m),
+            highest_cell_elevation_m: highest_cell_m,
+        }
+    }
+}
+
+/// The crest figure the job's frames show, in metres: the elevation, or the height above the
+/// reference elevation (`labels.crest_shows`).
+pub(super) fn shown_crest_m(job: &Job, elevation_m: f64) -> f64 {
+    match job.labels.crest_shows {
+        CrestFigure::Elevation => elevation_m,
+        CrestFigure::HeightAboveReference => elevation_m - job.change.reference_elevation_m,
+    }
+}
+
+/// The name of the shown crest figure, saying which it is.
+pub(super) fn crest_name(job: &Job) -> String {
+    let unit = job.change.display_unit;
+    match job.labels.crest_shows {
+        CrestFigure::Elevation => "Crest elevation".into(),
+        CrestFigure::HeightAboveReference => format!(
+            "Crest height above {} {}",
+            annotate::paint::format_value(job.change.reference_elevation_m / unit.metres()),
+            unit.symbol()
+        ),
     }
 }
 

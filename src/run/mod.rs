@@ -16,6 +16,9 @@ mod outputs;
 pub mod parts;
 mod scratch;
 mod series;
+mod still;
+
+pub use still::{parse_view, still, StillOptions, StillReport, ViewOverride};
 
 use std::path::{Path, PathBuf};
 
@@ -186,25 +189,11 @@ fn prepare(job: &Job) -> Result<Prepared> {
     clock.lap("co-register");
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
     let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
-    let range = stack
-        .elevation_range()
-        .expect("align refuses all-nodata grids");
-    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
-        .map_err(|m| keyed_job_error(&job.path, "view", m))?;
-    renderer
-        .set_water(&job.water)
-        .map_err(|m| keyed_job_error(&job.path, "water", m))?;
-    renderer
-        .set_shell(&job.shell)
-        .map_err(|m| keyed_job_error(&job.path, "shell", m))?;
-    let shell_grid = match &job.shell_grid {
-        Some(path) => Some(read_shell_grid(path, stack.geometry())?),
-        None => None,
-    };
-    let drape = match &job.colour {
-        ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
-        _ => None,
-    };
+    let Scene {
+        renderer,
+        shell_grid,
+        drape,
+    } = scene(job, &stack)?;
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
     if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
         return Err(Error::job(
@@ -240,12 +229,9 @@ fn prepare(job: &Job) -> Result<Prepared> {
     // The displacement field of every consecutive pair, for the morph.
     // Pairs are independent, so they are estimated side by side (each also uses rayon inside);
     // results come back in pair order, so the output does not depend on the thread count.
-    let cell_m = stack.geometry().cell_x_m();
     let estimated: Vec<FlowResult> = (0..stack.len() - 1)
         .into_par_iter()
-        .map(|i| {
-            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE)
-        })
+        .map(|i| pair_field(job, &stack, i))
         .collect();
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for (i, result) in estimated.into_iter().enumerate() {
@@ -278,6 +264,46 @@ fn prepare(job: &Job) -> Result<Prepared> {
         warnings,
         timings: clock.laps,
     })
+}
+
+/// The renderer and what it draws besides the surveys, checked against the stack.
+pub(super) struct Scene {
+    pub(super) renderer: Renderer,
+    pub(super) shell_grid: Option<ndarray::Array2<f32>>,
+    pub(super) drape: Option<Drape>,
+}
+
+pub(super) fn scene(job: &Job, stack: &AlignedStack) -> Result<Scene> {
+    let range = stack
+        .elevation_range()
+        .expect("align refuses all-nodata grids");
+    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
+        .map_err(|m| keyed_job_error(&job.path, "view", m))?;
+    renderer
+        .set_water(&job.water)
+        .map_err(|m| keyed_job_error(&job.path, "water", m))?;
+    renderer
+        .set_shell(&job.shell)
+        .map_err(|m| keyed_job_error(&job.path, "shell", m))?;
+    let shell_grid = match &job.shell_grid {
+        Some(path) => Some(read_shell_grid(path, stack.geometry())?),
+        None => None,
+    };
+    let drape = match &job.colour {
+        ColourBy::Drape { path } => Some(read_drape(job, path, stack.geometry())?),
+        _ => None,
+    };
+    Ok(Scene {
+        renderer,
+        shell_grid,
+        drape,
+    })
+}
+
+/// The displacement field of the pair (survey `i`, survey `i + 1`).
+pub(super) fn pair_field(job: &Job, stack: &AlignedStack, i: usize) -> FlowResult {
+    let cell_m = stack.geometry().cell_x_m();
+    flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE)
 }
 
 /// Wall-clock time of each stage of a run, for `-v` and the benchmarks. Kept out of the record on

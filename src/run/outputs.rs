@@ -57,7 +57,6 @@ pub(super) fn write_outputs(
     let mut painter = Painter::new(
         job,
         &stack,
-        &timeline,
         &record,
         &fields,
         drape.as_ref(),
@@ -95,13 +94,15 @@ pub(super) fn write_outputs(
         None => None,
     };
     for t in &timeline.frames {
-        let peak_height = match &source {
+        let figures = match &source {
             FrameSource::Render => {
                 painter.paint(&mut renderer, t, orbit_share(t.index, n), &mut frame)
             }
             FrameSource::Parts(gathered) => gathered.load(t.index, &mut frame)?,
         };
         if let Some((seq, _)) = png.as_mut() {
+            let in_unit = |m: f64| m / unit.metres();
+            let crest_m = figures.crest_elevation_m.unwrap_or(f64::NAN);
             let row = png_seq::IndexRow {
                 time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
                 status: if t.kind.is_measured() {
@@ -116,8 +117,12 @@ pub(super) fn write_outputs(
                 },
                 from_survey: stack.surveys()[t.from].id.clone(),
                 to_survey: stack.surveys()[t.to].id.clone(),
-                peak_height,
-                peak_unit: unit.symbol().into(),
+                crest_elevation: in_unit(crest_m),
+                crest_height_above_reference: in_unit(crest_m - job.change.reference_elevation_m),
+                highest_cell_elevation: in_unit(
+                    figures.highest_cell_elevation_m.unwrap_or(f64::NAN),
+                ),
+                unit: unit.symbol().into(),
             };
             seq.write_frame(&frame, row)?;
         }
@@ -185,12 +190,16 @@ pub(super) fn write_outputs(
         let mut tiles_frames = Vec::new();
         for t in timeline.frames.iter().filter(|t| t.kind.is_measured()) {
             let mut f = Frame::new(job.view.width, job.view.height);
-            let peak = painter.paint(&mut renderer, t, 0.0, &mut f);
+            let figures = painter.paint(&mut renderer, t, 0.0, &mut f);
             let caption = format!(
-                "{} — peak {:.2} {}",
+                "{} — {} {}",
                 stack.surveys()[t.from].date,
-                peak,
-                unit.symbol()
+                super::frames::crest_name(job).to_lowercase(),
+                figures.crest_elevation_m.map_or("—".into(), |z| format!(
+                    "{:.2} {}",
+                    super::frames::shown_crest_m(job, z) / unit.metres(),
+                    unit.symbol()
+                ))
             );
             tiles_frames.push((f, caption));
         }

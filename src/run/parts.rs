@@ -23,7 +23,7 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use super::frames::Painter;
+use super::frames::{FrameFigures, Painter};
 use super::{output_folder, prepare, protected, scratch, FrameSource, Prepared};
 use super::{RunOptions, RunReport};
 use crate::archive::{self, bagit::sha256_hex};
@@ -132,8 +132,8 @@ struct PartManifest {
     frames_in_job: usize,
     first_frame: usize,
     end_frame: usize,
-    /// The figure `paint` returned for each frame of the part (the crest label's value).
-    frame_figures: Vec<f64>,
+    /// The figures `paint` returned for each frame of the part (crest and highest cell, metres).
+    frame_figures: Vec<FrameFigures>,
 }
 
 fn program() -> String {
@@ -214,7 +214,6 @@ pub fn render_part(job: &Job, opts: &RunOptions, spec: PartSpec) -> Result<PartR
         let mut painter = Painter::new(
             job,
             &stack,
-            &timeline,
             &record,
             &fields,
             drape.as_ref(),
@@ -269,7 +268,7 @@ pub fn render_part(job: &Job, opts: &RunOptions, spec: PartSpec) -> Result<PartR
 /// The frames of a job, gathered from its part folders.
 pub(crate) struct Gathered {
     /// Per frame: its PNG file and the figure `paint` returned for it.
-    frames: Vec<(PathBuf, f64)>,
+    frames: Vec<(PathBuf, FrameFigures)>,
 }
 
 impl Gathered {
@@ -277,7 +276,7 @@ impl Gathered {
     ///
     /// # Errors
     /// `Error::Input` when the PNG cannot be read or has another size than the job's frames.
-    pub(crate) fn load(&self, i: usize, frame: &mut Frame) -> Result<f64> {
+    pub(crate) fn load(&self, i: usize, frame: &mut Frame) -> Result<FrameFigures> {
         let (path, figure) = &self.frames[i];
         let img = image::open(path)
             .map_err(|e| {

@@ -45,9 +45,12 @@ fn terrain(w: u32, h: u32, shift_px: f32, date: &str) -> Frame {
             from_date: "2026-01-01".into(),
             to_date: "2028-01-01".into(),
         },
-        peak_height: 17.3,
-        peak_unit: "m".into(),
-        peak_px: Some((640.0, 300.0)),
+        crest: dunereel::annotate::CrestLabel {
+            name: "Crest elevation".into(),
+            value: 17.3,
+            unit: "m".into(),
+        },
+        crest_px: Some((640.0, 300.0)),
         ..Default::default()
     };
     draw_overlay(&mut f, &ov, &LabelOptions::default());
