@@ -79,6 +79,7 @@ fn full_overlay(interpolated: bool, peak_px: (f32, f32)) -> Overlay {
             current_year: 2027.6,
         }),
         credit: Some("Survey data: invented coastal agency, airborne lidar; demo only".into()),
+        vertical_exaggeration: Some(3.0),
     }
 }
 

@@ -67,6 +67,7 @@ fn run(threads: usize, out: &std::path::Path, inputs: &std::path::Path) {
         let aopts = ArchiveOptions {
             overwrite: false,
             bagging_date: chrono::NaiveDate::from_ymd_opt(2044, 1, 1),
+            view: None,
         };
         write_archive(out, &rec, &figs, &extra, &aopts).unwrap();
     });

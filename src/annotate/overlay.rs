@@ -77,6 +77,9 @@ pub struct Overlay {
     pub inset: Option<InsetChart>,
     /// Credit line (agency, survey source).
     pub credit: Option<String>,
+    /// The vertical exaggeration the terrain is drawn with (the job's, or the automatic choice),
+    /// for a "heights ×N" note; None when not known.
+    pub vertical_exaggeration: Option<f64>,
 }
 
 impl Default for Overlay {
@@ -94,6 +97,7 @@ impl Default for Overlay {
             scale_unit: (1.0, "m".into()),
             inset: None,
             credit: None,
+            vertical_exaggeration: None,
         }
     }
 }

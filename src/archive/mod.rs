@@ -37,6 +37,9 @@ pub struct ArchiveOptions {
     pub overwrite: bool,
     /// `Bagging-Date` to write (YYYY-MM-DD); absent = today's date in UTC. Default: today.
     pub bagging_date: Option<chrono::NaiveDate>,
+    /// How the frames were drawn (view as resolved: vertical exaggeration used, framing, sun),
+    /// written under `view` in `run.json`. Default: none.
+    pub view: Option<serde_json::Value>,
 }
 
 /// Where the bytes of an extra payload file come from.
@@ -86,7 +89,7 @@ pub fn write_archive(
     extra: &[ExtraFile],
     opts: &ArchiveOptions,
 ) -> Result<ArchiveReport> {
-    let payload = plan_payload(record, figures, extra)?;
+    let payload = plan_payload(record, figures, extra, opts)?;
     if dir.exists() && !opts.overwrite {
         return Err(Error::output(
             dir,
@@ -150,6 +153,7 @@ fn plan_payload<'a>(
     record: &ChangeRecord,
     figures: &'a [Figure],
     extra: &'a [ExtraFile],
+    opts: &ArchiveOptions,
 ) -> Result<Vec<(String, Source<'a>)>> {
     let unit = record.options.display_unit;
     let bug = |e: table::RowError| {
@@ -165,7 +169,7 @@ fn plan_payload<'a>(
             "README.txt".into(),
             Source::Text(readme(record, figures, extra)),
         ),
-        ("run.json".into(), Source::Text(run_json(record))),
+        ("run.json".into(), Source::Text(run_json(record, opts.view.as_ref()))),
         ("tables/surveys.csv".into(), Source::Text(surveys.to_csv())),
         (
             "tables/surveys.json".into(),
@@ -301,10 +305,11 @@ fn swap_into_place(tmp: &Path, dir: &Path, parent: &Path, name: &str) -> Result<
     Ok(())
 }
 
-fn run_json(record: &ChangeRecord) -> String {
+fn run_json(record: &ChangeRecord, view: Option<&serde_json::Value>) -> String {
     let value = serde_json::json!({
         "display_unit": record.options.display_unit,
         "options": record.options,
+        "view": view,
         "warnings": record.warnings,
         "decimal_year_convention": "year + (t - Jan 1) / (length of that year); leap years have 366 days",
         "dod_sign": "later minus earlier; positive = deposition (surface raised), negative = erosion (lowered)",

@@ -32,6 +32,7 @@ fn opts() -> ArchiveOptions {
     ArchiveOptions {
         overwrite: false,
         bagging_date: chrono::NaiveDate::from_ymd_opt(2032, 10, 1),
+        view: None,
     }
 }
 

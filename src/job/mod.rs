@@ -17,6 +17,7 @@ use crate::encode::gif::GifOptions;
 use crate::encode::png_seq::PosterOptions;
 use crate::error::{Error, Result};
 use crate::interp::flow::FlowOptions;
+use crate::render::ramp::ElevationRamp;
 use crate::render::{LightOptions, ShellOptions, ViewOptions, WaterOptions};
 use crate::timeline::FramePlan;
 
@@ -132,6 +133,8 @@ pub struct Job {
     pub sun: LightOptions,
     /// Terrain colouring.
     pub colour: ColourBy,
+    /// The ramp of colouring by elevation (also under a drape's gaps).
+    pub elevation_ramp: ElevationRamp,
     /// Water plane.
     pub water: WaterOptions,
     /// Which surface to draw as a translucent shell, if any.

@@ -110,6 +110,8 @@ pub(super) struct ColourEntry {
     pub limit_m: Option<f64>,
     /// For `drape`: an RGB GeoTIFF, relative to the job file.
     pub drape: Option<String>,
+    /// For `elevation` (and drape cells outside the image): `sand-coast` or `viridis`.
+    pub ramp: String,
 }
 
 impl Default for ColourEntry {
@@ -119,6 +121,7 @@ impl Default for ColourEntry {
             since: "first".into(),
             limit_m: None,
             drape: None,
+            ramp: "sand-coast".into(),
         }
     }
 }

@@ -8,6 +8,7 @@ use super::schema::{JobFile, OutputEntry};
 use super::{ColourBy, Job, Method, OutputSpec, ShellSurvey, SurveySpec, FORMAT_VERSION};
 use crate::align::AreaOfInterest;
 use crate::error::{Error, Result};
+use crate::render::ramp::ElevationRamp;
 use crate::render::ShellOptions;
 use crate::timeline::FramePlan;
 
@@ -242,7 +243,9 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
     };
     let default_method = match &f.in_between.method {
         Some(m) => parse_method("in_between.method", m)?,
-        None => Method::Linear,
+        // The morph keeps a moving dune whole; pairs it cannot follow fall back to the linear
+        // blend with a warning (see `run::prepare`).
+        None => Method::Morph,
     };
     let intervals = surveys.len() - 1;
     let methods = match &f.in_between.per_interval {
@@ -271,14 +274,13 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         ));
     }
     let s = &f.sun;
-    if !(s.azimuth_deg >= 0.0 && s.azimuth_deg < 360.0) {
-        return Err(bad(
-            "sun.azimuth_deg",
-            format!(
-                "{} is out of range; use compass degrees in [0, 360)",
-                s.azimuth_deg
-            ),
-        ));
+    if let Some(az) = s.azimuth_deg {
+        if !(az >= 0.0 && az < 360.0) {
+            return Err(bad(
+                "sun.azimuth_deg",
+                format!("{az} is out of range; use compass degrees in [0, 360), or leave it out for light from the viewer's front left"),
+            ));
+        }
     }
     if !(s.altitude_deg > 0.0 && s.altitude_deg <= 90.0) {
         return Err(bad(
@@ -390,6 +392,15 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             ));
         }
     };
+    let Some(elevation_ramp) = ElevationRamp::from_name(&f.colour.ramp) else {
+        return Err(bad(
+            "colour.ramp",
+            format!(
+                "\"{}\" is not a ramp; use `sand-coast` (natural sand colours) or `viridis`",
+                f.colour.ramp
+            ),
+        ));
+    };
     if !(f.shell.min_gap_m >= 0.0 && f.shell.min_gap_m < 100.0) {
         return Err(bad(
             "shell.min_gap_m",
@@ -426,6 +437,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         view: f.view,
         sun: f.sun,
         colour,
+        elevation_ramp,
         water: f.water,
         shell_survey,
         shell_grid,
@@ -515,7 +527,8 @@ mod tests {
         assert_eq!(job.surveys[0].id, "2030-05-01");
         assert_eq!(job.surveys[1].grid, d.path().join("b.tif"));
         assert_eq!(job.frame_plan, FramePlan::PerYear(12.0));
-        assert_eq!(job.methods, vec![Method::Linear]);
+        // The morph is the default in-between method.
+        assert_eq!(job.methods, vec![Method::Morph]);
         assert_eq!(job.output.gif.as_deref(), Some("animation.gif"));
         assert!(!job.output.overwrite);
     }

@@ -4,6 +4,12 @@
 //! "Default: …"; unknown keys are refused. Ranges are checked in `Renderer::new` / `set_water` /
 //! `set_shell`, which name the offending key.
 
+/// Bearing of the default sun relative to the camera's line of sight, degrees (negative = to the
+/// left): light from the upper left of the picture, which keeps hills reading as hills (Imhof 1982,
+/// REFERENCES.md §17). 45° is the cartographic upper-left; the sun is put a little more to the side
+/// (60°) so slopes facing the viewer are not all in shade.
+pub const SUN_FROM_VIEW_DEG: f64 = -60.0;
+
 /// Largest frame side accepted, in pixels.
 pub const MAX_FRAME_PX: u32 = 8192;
 
@@ -34,8 +40,10 @@ pub struct ViewOptions {
     pub orbit_deg: f64,
     /// Ease the orbit in and out (zero turning speed at the first and last frame). Default: true.
     pub orbit_easing: bool,
-    /// Heights are multiplied by this for display (geometry, normals and shadows alike). Default: 2.
-    pub vertical_exaggeration: f64,
+    /// Heights are multiplied by this for display (geometry, normals and shadows alike), above 0
+    /// and at most 100; absent = chosen from the framed area's relief and size by the rule of
+    /// [`crate::render::framing::auto_exaggeration`] (1 to 5). Default: automatic.
+    pub vertical_exaggeration: Option<f64>,
     /// Anti-aliasing: each pixel is the mean of supersample × supersample samples, 1 to 4. Default: 2.
     pub supersample: u32,
     /// Level of detail: grids are reduced until a cell spans at least this many output pixels at
@@ -67,7 +75,7 @@ impl Default for ViewOptions {
             fov_deg: 40.0,
             orbit_deg: 0.0,
             orbit_easing: true,
-            vertical_exaggeration: 2.0,
+            vertical_exaggeration: None,
             supersample: 2,
             lod_min_cell_px: 2.0,
             block_sides: true,
@@ -95,8 +103,10 @@ impl ViewOptions {
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct LightOptions {
-    /// Sun azimuth, compass degrees clockwise from north, in [0, 360). Default: 315.
-    pub azimuth_deg: f64,
+    /// Sun azimuth, compass degrees clockwise from north, in [0, 360); absent = from the viewer's
+    /// front left ([`SUN_FROM_VIEW_DEG`] from the line of sight), turning with the camera through
+    /// an orbit so relief never inverts. Default: from the viewer's front left.
+    pub azimuth_deg: Option<f64>,
     /// Sun altitude above the horizon in degrees, in (0, 90]. Default: 40.
     pub altitude_deg: f64,
     /// Share of light that reaches every surface regardless of orientation, in [0, 1]. Default: 0.25.
@@ -121,7 +131,7 @@ pub struct LightOptions {
 impl Default for LightOptions {
     fn default() -> Self {
         LightOptions {
-            azimuth_deg: 315.0,
+            azimuth_deg: None,
             altitude_deg: 40.0,
             ambient: 0.25,
             diffuse: 0.85,

@@ -114,6 +114,13 @@ impl Buffers {
     }
 }
 
+impl Buffers {
+    /// Tabulates the elevation ramp `ramp`.
+    pub(super) fn set_elevation_ramp(&mut self, ramp: super::ramp::ElevationRamp) {
+        self.elevation_ramp = Ramp::elevation_on(ramp);
+    }
+}
+
 /// Camera in f32 for the per-vertex loop.
 #[derive(Debug, Clone, Copy)]
 pub(super) struct CamF {
@@ -167,9 +174,10 @@ pub(super) struct Light {
 }
 
 impl Light {
-    fn new(l: &super::LightOptions) -> Light {
+    /// The light of one frame, the sun at compass azimuth `azimuth_deg`.
+    fn new(l: &super::LightOptions, azimuth_deg: f64) -> Light {
         Light {
-            sun: sun_vector(l.azimuth_deg, l.altitude_deg),
+            sun: sun_vector(azimuth_deg, l.altitude_deg),
             ambient: l.ambient as f32,
             diffuse: l.diffuse as f32,
             specular: l.specular as f32,
@@ -340,8 +348,9 @@ pub(super) fn render(
         *frame = Frame::new(v.width, v.height);
     }
     let g = &r.geometry;
-    let k = v.vertical_exaggeration as f32;
-    let light = Light::new(&r.light);
+    let k = r.exaggeration as f32;
+    let sun_az = fv.sun_azimuth_deg;
+    let light = Light::new(&r.light, sun_az);
     let b = &mut r.buffers;
     let cam_int = fv.camera.scaled(b.ss as f64);
     let cam = CamF::new(&cam_int);
@@ -366,7 +375,7 @@ pub(super) fn render(
                 lc,
                 b.dx,
                 b.dy,
-                r.light.azimuth_deg,
+                sun_az,
                 r.light.altitude_deg,
                 r.light.shadow_softness_cells as f32,
                 &mut b.shadow,

@@ -55,7 +55,7 @@ fn flat_plane_shades_to_sine_of_altitude_from_any_azimuth() {
     let mut seen = Vec::new();
     for az in [0.0, 90.0, 200.0, 315.0] {
         let light = LightOptions {
-            azimuth_deg: az,
+            azimuth_deg: Some(az),
             altitude_deg: 30.0,
             ambient: 0.0,
             diffuse: 1.0,
@@ -97,7 +97,7 @@ fn tall_block_hides_what_is_behind_it() {
     let view = ViewOptions {
         facing_deg: 0.0,
         elevation_deg: 30.0,
-        vertical_exaggeration: 1.0,
+        vertical_exaggeration: Some(1.0),
         ..plain_view()
     };
     let light = LightOptions::default();
@@ -213,7 +213,7 @@ fn bad_options_are_refused_with_the_option_named() {
         ),
         (
             ViewOptions {
-                vertical_exaggeration: 0.0,
+                vertical_exaggeration: Some(0.0),
                 ..v.clone()
             },
             l.clone(),
@@ -221,7 +221,7 @@ fn bad_options_are_refused_with_the_option_named() {
         ),
         (
             ViewOptions {
-                vertical_exaggeration: -1.0,
+                vertical_exaggeration: Some(-1.0),
                 ..v.clone()
             },
             l.clone(),
@@ -286,7 +286,7 @@ fn bad_options_are_refused_with_the_option_named() {
         (
             v.clone(),
             LightOptions {
-                azimuth_deg: 360.0,
+                azimuth_deg: Some(360.0),
                 ..l.clone()
             },
             "light.azimuth_deg",
@@ -378,7 +378,7 @@ fn hollows_are_darkened_only_when_asked() {
     let s = surface(z, 1.0);
     let view = ViewOptions {
         elevation_deg: 90.0,
-        vertical_exaggeration: 1.0,
+        vertical_exaggeration: Some(1.0),
         ..plain_view()
     };
     let ambient_only = LightOptions {

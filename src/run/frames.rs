@@ -176,6 +176,7 @@ impl<'a> Painter<'a> {
                 current_year: self.years[t.index],
             }),
             credit: job.credit.clone(),
+            vertical_exaggeration: Some(view.vertical_exaggeration()),
         };
         annotate::draw_overlay(frame, &overlay, &job.labels);
         peak_height
@@ -211,7 +212,7 @@ fn legend(job: &Job, stack: &AlignedStack, change_limit_m: Option<f64>) -> Legen
             Legend {
                 title: "Elevation".into(),
                 stops: (0..16)
-                    .map(|i| bytes(ramp::viridis_srgb(i as f32 / 15.0)))
+                    .map(|i| bytes(job.elevation_ramp.srgb(i as f32 / 15.0)))
                     .collect(),
                 min: lo as f64 / unit.metres(),
                 max: hi as f64 / unit.metres(),

@@ -21,7 +21,7 @@ use crate::geotiff;
 use crate::grid::GridGeometry;
 use crate::interp::flow::{self, FlowResult};
 use crate::job::{ColourBy, Job, Method};
-use crate::render::{Drape, Renderer};
+use crate::render::{framing, Drape, Focus, Renderer, FREE_AREA};
 use crate::survey;
 use crate::timeline::{self, Timeline};
 
@@ -84,6 +84,8 @@ pub(super) struct Prepared {
     pub(super) stack: AlignedStack,
     pub(super) timeline: Timeline,
     pub(super) renderer: Renderer,
+    /// The area framed when the job sets no distance.
+    pub(super) focus: Focus,
     pub(super) record: ChangeRecord,
     /// Per interval: the displacement field when the morph may use it (trusted), else None.
     pub(super) fields: Vec<Option<FlowResult>>,
@@ -106,8 +108,32 @@ fn prepare(job: &Job) -> Result<Prepared> {
     let range = stack
         .elevation_range()
         .expect("align refuses all-nodata grids");
-    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
-        .map_err(|m| keyed_job_error(&job.path, "view", m))?;
+    let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    let focus = focus_of(&stack, &record);
+    let mut renderer = Renderer::framed(
+        stack.geometry(),
+        &job.view,
+        &job.sun,
+        range,
+        &focus,
+        &FREE_AREA,
+    )
+    .map_err(|m| keyed_job_error(&job.path, "view", m))?;
+    renderer.set_elevation_ramp(job.elevation_ramp);
+    log::info!(
+        "view: vertical exaggeration {}{}, framing rows {}..{} and columns {}..{} (relief {:.1} m)",
+        renderer.vertical_exaggeration(),
+        if job.view.vertical_exaggeration.is_none() {
+            " (automatic)"
+        } else {
+            ""
+        },
+        focus.row0,
+        focus.row1,
+        focus.col0,
+        focus.col1,
+        focus.relief_m
+    );
     renderer
         .set_water(&job.water)
         .map_err(|m| keyed_job_error(&job.path, "water", m))?;
@@ -137,7 +163,6 @@ fn prepare(job: &Job) -> Result<Prepared> {
             ),
         ));
     }
-    let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
     let mut warnings = record.warnings.clone();
     record.warnings.clear();
 
@@ -180,12 +205,58 @@ fn prepare(job: &Job) -> Result<Prepared> {
         stack,
         timeline,
         renderer,
+        focus,
         record,
         fields,
         shell_grid,
         drape,
         warnings,
     })
+}
+
+/// How the frames were drawn, for `run.json`: the exaggeration used and whether it was chosen, the
+/// framed area and the camera's target and distance, the sun and the ramp.
+pub(super) fn view_as_run(job: &Job, stack: &AlignedStack, renderer: &Renderer, focus: &Focus) -> serde_json::Value {
+    let g = stack.geometry();
+    let (west, south, east, north) = focus.extent(g);
+    let f = renderer.framing();
+    let (gw, gs, ge, gn) = g.extent();
+    let unit = g.horizontal_unit.metres();
+    let k = renderer.vertical_exaggeration();
+    serde_json::json!({
+        "vertical_exaggeration": k,
+        "vertical_exaggeration_source": if job.view.vertical_exaggeration.is_some() { "job" } else { "automatic" },
+        "vertical_exaggeration_rule": format!(
+            "exaggerated relief = {} x the framed area's longer side, rounded to 0.5, kept in {}..{}",
+            framing::AUTO_RELIEF_SHARE, framing::AUTO_EXAGGERATION_RANGE.0, framing::AUTO_EXAGGERATION_RANGE.1
+        ),
+        "framed_area_crs": { "west": west, "south": south, "east": east, "north": north },
+        "framed_area_relief_m": focus.relief_m,
+        "framed_area_is_whole_grid": focus.is_whole(g),
+        "camera_target_crs": [(gw + ge) / 2.0 + f.target[0] / unit, (gs + gn) / 2.0 + f.target[1] / unit, f.target[2] / k],
+        "camera_distance_m": f.distance_m,
+        "facing_deg": job.view.facing_deg,
+        "elevation_deg": job.view.elevation_deg,
+        "orbit_deg": job.view.orbit_deg,
+        "sun_azimuth_deg": job.sun.azimuth_deg.map_or_else(
+            || serde_json::json!(format!("follows the view: {} deg from the line of sight", crate::render::SUN_FROM_VIEW_DEG)),
+            |a| serde_json::json!(a),
+        ),
+        "sun_altitude_deg": job.sun.altitude_deg,
+        "elevation_ramp": job.elevation_ramp.name(),
+    })
+}
+
+/// The area the camera frames when the job sets no distance: where the surveys change beyond the
+/// level of detection of the record's pairs (see `render::framing::focus_of_change`).
+pub fn focus_of(stack: &AlignedStack, record: &ChangeRecord) -> Focus {
+    let surfaces: Vec<_> = (0..stack.len()).map(|i| stack.z(i)).collect();
+    let pairs: Vec<_> = record
+        .pairs
+        .iter()
+        .map(|p| (p.from_index, p.to_index, p.lod_m))
+        .collect();
+    framing::focus_of_change(stack.geometry(), &surfaces, &pairs)
 }
 
 /// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that

@@ -27,6 +27,7 @@ pub(super) fn write_outputs(
         stack,
         timeline,
         mut renderer,
+        focus,
         record,
         fields,
         shell_grid,
@@ -191,6 +192,7 @@ pub(super) fn write_outputs(
         &ArchiveOptions {
             overwrite,
             bagging_date: None,
+            view: Some(super::view_as_run(job, &stack, &renderer, &focus)),
         },
     )?;
     warnings.dedup();
