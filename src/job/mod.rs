@@ -141,11 +141,8 @@ pub struct Job {
     pub shell_survey: ShellSurvey,
     /// With `ShellSurvey::Grid`: the grid file drawn as the shell (absolute path).
     pub shell_grid: Option<PathBuf>,
-    /// How the shell looks.
+    /// How the shell looks, and from which height gap it shows.
     pub shell: ShellOptions,
-    /// The shell is drawn only where it stands at least this far above the frame's surface, in
-    /// metres (where the two nearly agree, drawing both would only flicker).
-    pub shell_min_gap_m: f64,
     /// Displacement field settings (used by the morph and the migration figures).
     pub flow: FlowOptions,
     /// Which labels to draw.

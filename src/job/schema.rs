@@ -138,6 +138,7 @@ pub(super) struct ShellEntry {
     pub rgb: [u8; 3],
     pub opacity: f64,
     pub min_gap_m: f64,
+    pub full_gap_m: f64,
 }
 
 impl Default for ShellEntry {
@@ -148,7 +149,8 @@ impl Default for ShellEntry {
             grid: None,
             rgb: d.rgb,
             opacity: d.opacity,
-            min_gap_m: 0.3,
+            min_gap_m: d.min_gap_m,
+            full_gap_m: d.full_gap_m,
         }
     }
 }

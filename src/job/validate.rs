@@ -401,15 +401,6 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             ),
         ));
     };
-    if !(f.shell.min_gap_m >= 0.0 && f.shell.min_gap_m < 100.0) {
-        return Err(bad(
-            "shell.min_gap_m",
-            format!(
-                "{} m is out of range; use 0 to 100 m, e.g. 0.3",
-                f.shell.min_gap_m
-            ),
-        ));
-    }
     f.flow.validate().map_err(|m| bad("flow", m))?;
     if !f.labels.status {
         return Err(bad(
@@ -444,8 +435,9 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         shell: ShellOptions {
             rgb: f.shell.rgb,
             opacity: f.shell.opacity,
+            min_gap_m: f.shell.min_gap_m,
+            full_gap_m: f.shell.full_gap_m,
         },
-        shell_min_gap_m: f.shell.min_gap_m,
         flow: f.flow,
         labels: f.labels,
         credit: f.credit,

@@ -21,8 +21,60 @@ use super::sides::Side;
 /// Output rows per band: 45 bands on a 720-row frame, a few per thread and cheap to bin into.
 pub(super) const BAND_OUT_ROWS: usize = 16;
 
+/// A drawn point this far (scene metres) below the smoothed terrain is on the block's side, not on
+/// the surface: its water is decided by depth alone.
+const SIDE_DEPTH: f32 = 2.0;
+
 /// A water plane in scene units: height (exaggerated), half extents, linear colour, opacity.
 pub(super) type Water = (f32, f32, f32, [f32; 3], f32);
+
+/// The terrain smoothed over a few cells, on the reduced grid, for deciding the waterline: a
+/// pixel is under water when the smoothed terrain at the point it shows lies below the water, so
+/// survey noise cannot fray the shoreline.
+#[derive(Clone, Copy)]
+pub(super) struct Ground<'a> {
+    /// Smoothed exaggerated heights, row-major `lr` × `lc` (NaN = nodata).
+    pub(super) z: &'a [f32],
+    pub(super) lr: usize,
+    pub(super) lc: usize,
+    /// Scene position of vertex (0, 0) and the spacing (rows run south: y falls by `dy` a row).
+    pub(super) x0: f32,
+    pub(super) y0: f32,
+    pub(super) dx: f32,
+    pub(super) dy: f32,
+}
+
+impl Ground<'_> {
+    /// Bilinear smoothed height and its gradient magnitude at scene point (x, y), or None off the
+    /// grid or over nodata.
+    #[inline]
+    fn at(&self, x: f32, y: f32) -> Option<(f32, f32)> {
+        let fc = (x - self.x0) / self.dx;
+        let fr = (self.y0 - y) / self.dy;
+        let (maxc, maxr) = ((self.lc - 1) as f32, (self.lr - 1) as f32);
+        if !(fc >= 0.0 && fr >= 0.0 && fc <= maxc && fr <= maxr) {
+            return None;
+        }
+        let (c0, r0) = ((fc as usize).min(self.lc - 2), (fr as usize).min(self.lr - 2));
+        let (tc, tr) = (fc - c0 as f32, fr - r0 as f32);
+        let i = r0 * self.lc + c0;
+        let (a, b, c, d) = (
+            self.z[i],
+            self.z[i + 1],
+            self.z[i + self.lc],
+            self.z[i + self.lc + 1],
+        );
+        let top = a + (b - a) * tc;
+        let bottom = c + (d - c) * tc;
+        let h = top + (bottom - top) * tr;
+        if !h.is_finite() {
+            return None;
+        }
+        let gx = ((b - a) * (1.0 - tr) + (d - c) * tr) / self.dx;
+        let gy = (bottom - top) / self.dy;
+        Some((h, (gx * gx + gy * gy).sqrt()))
+    }
+}
 
 /// Everything a band reads.
 #[derive(Clone, Copy)]
@@ -39,8 +91,9 @@ pub(super) struct BandScene<'a> {
     pub(super) sides: &'a [Side],
     pub(super) shell_verts: &'a [Vert],
     pub(super) shell_bins: &'a [Vec<Vec<u32>>],
-    pub(super) shell_alpha: f32,
     pub(super) water: Option<Water>,
+    /// The smoothed terrain the waterline is decided against (see [`Ground`]); None without water.
+    pub(super) ground: Option<Ground<'a>>,
     pub(super) cam: CamF,
     pub(super) light: Light,
     pub(super) enc: &'a Encoder,
@@ -98,11 +151,11 @@ pub(super) fn draw_all(scene: &BandScene, depth: &mut [f32], has_shell: bool, rg
                 rgb.resize(n * 3, 0.0);
             }
             let layer = if has_shell {
-                if lrgb.len() < n * 3 {
-                    lrgb.resize(n * 3, 0.0);
+                if lrgb.len() < n * 4 {
+                    lrgb.resize(n * 4, 0.0);
                     ldepth.resize(n, 0.0);
                 }
-                Some((&mut lrgb[..n * 3], &mut ldepth[..n]))
+                Some((&mut lrgb[..n * 4], &mut ldepth[..n]))
             } else {
                 None
             };
@@ -133,8 +186,8 @@ fn draw_band(
         sides,
         shell_verts,
         shell_bins,
-        shell_alpha,
         water,
+        ground,
         cam,
         light,
         enc,
@@ -179,9 +232,10 @@ fn draw_band(
         draw_binned(&mut lband, shell_bins, bi, shell_verts, lc, Some(under));
         for i in 0..rows * iw {
             if lband.depth[i] > 0.0 {
+                let alpha = lband.rgb[i * 4 + 3];
                 for k in 0..3 {
                     let o = &mut band.rgb[i * 3 + k];
-                    *o += (lband.rgb[i * 3 + k] - *o) * shell_alpha;
+                    *o += (lband.rgb[i * 4 + k] - *o) * alpha;
                 }
             }
         }
@@ -203,7 +257,30 @@ fn draw_band(
                 }
                 let (hx, hy) = (cam.eye[0] + t * d[0], cam.eye[1] + t * d[1]);
                 let i = y * iw + x;
-                if hx.abs() > hw || hy.abs() > hh || 1.0 / t <= band.depth[i] {
+                if hx.abs() > hw || hy.abs() > hh {
+                    continue;
+                }
+                let iz = band.depth[i];
+                // Share of this sample under water: decided against the smoothed terrain at the
+                // point the sample shows, with a ramp one sample wide (anti-aliasing); the block's
+                // sides and samples off the smoothed grid keep the plain depth test.
+                let cover = match (iz > 0.0, ground) {
+                    (true, Some(g)) => {
+                        let zc = 1.0 / iz;
+                        let p = [0, 1, 2].map(|k| cam.eye[k] + zc * d[k]);
+                        match g.at(p[0], p[1]) {
+                            Some((h, slope)) if p[2] > h - SIDE_DEPTH => {
+                                let width = slope * zc / cam.focal + 1e-4;
+                                (0.5 - (h - wz) / width).clamp(0.0, 1.0)
+                            }
+                            _ => f32::from(u8::from(1.0 / t > iz)),
+                        }
+                    }
+                    // Nothing drawn here: a gap in the data shows as a gap, not as a pond.
+                    (false, Some(g)) => f32::from(u8::from(g.at(hx, hy).is_some())),
+                    _ => f32::from(u8::from(1.0 / t > iz)),
+                };
+                if cover <= 0.0 {
                     continue;
                 }
                 let len = dot3(d, d).sqrt();
@@ -211,7 +288,7 @@ fn draw_band(
                 let spec = light.specular
                     * blinn_phong([0.0, 0.0, 1.0], light.sun, vdir, light.shininess * 4.0);
                 for (o, l) in band.rgb[i * 3..i * 3 + 3].iter_mut().zip(lit) {
-                    *o += (l + spec * light.intensity - *o) * alpha;
+                    *o += (l + spec * light.intensity - *o) * alpha * cover;
                 }
             }
         }

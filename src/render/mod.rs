@@ -537,8 +537,28 @@ impl Renderer {
             shell.opacity.is_finite() && (0.0..=1.0).contains(&shell.opacity),
             || {
                 format!(
-                    "shell.opacity: {} is outside 0..=1; e.g. 0.35",
+                    "shell.opacity: {} is outside 0..=1; e.g. 0.5",
                     shell.opacity
+                )
+            },
+        )?;
+        check(
+            shell.min_gap_m.is_finite() && (0.0..100.0).contains(&shell.min_gap_m),
+            || {
+                format!(
+                    "shell.min_gap_m: {} m is out of range; use 0 to 100 m, e.g. 0.3",
+                    shell.min_gap_m
+                )
+            },
+        )?;
+        check(
+            shell.full_gap_m.is_finite()
+                && shell.full_gap_m > shell.min_gap_m
+                && shell.full_gap_m <= 1000.0,
+            || {
+                format!(
+                    "shell.full_gap_m: {} m must be above shell.min_gap_m ({} m) and at most 1000; e.g. 2",
+                    shell.full_gap_m, shell.min_gap_m
                 )
             },
         )?;

@@ -8,7 +8,7 @@
 /// left): light from the upper left of the picture, which keeps hills reading as hills (Imhof 1982,
 /// REFERENCES.md §17). 45° is the cartographic upper-left; the sun is put a little more to the side
 /// (60°) so slopes facing the viewer are not all in shade.
-pub const SUN_FROM_VIEW_DEG: f64 = -60.0;
+pub const SUN_FROM_VIEW_DEG: f64 = -120.0;
 
 /// Largest frame side accepted, in pixels.
 pub const MAX_FRAME_PX: u32 = 8192;
@@ -167,21 +167,32 @@ impl Default for WaterOptions {
     }
 }
 
-/// A second surface (an earlier survey, a bedrock grid) drawn as a translucent shell.
+/// A second surface (an earlier survey, a design grid) drawn as a smooth translucent shell where it
+/// stands above the terrain. Both surfaces are smoothed over a few cells first (so survey noise
+/// neither speckles the shell nor punches holes in it), and the shell's opacity grows smoothly with
+/// its height above the terrain, from nothing at `min_gap_m` to `opacity` at `full_gap_m`.
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct ShellOptions {
-    /// Shell colour, sRGB. Default: [235, 235, 240].
+    /// Shell colour, sRGB. Default: [236, 240, 248].
     pub rgb: [u8; 3],
-    /// Opacity of the shell, 0 to 1. Default: 0.35.
+    /// Largest opacity of the shell, 0 to 1. Default: 0.5.
     pub opacity: f64,
+    /// Height gap above the terrain, metres, at which the shell starts to show, 0 to 100.
+    /// Default: 0.3.
+    pub min_gap_m: f64,
+    /// Height gap, metres, from which the shell has its full opacity; above `min_gap_m`.
+    /// Default: 2.
+    pub full_gap_m: f64,
 }
 
 impl Default for ShellOptions {
     fn default() -> Self {
         ShellOptions {
-            rgb: [235, 235, 240],
-            opacity: 0.35,
+            rgb: [236, 240, 248],
+            opacity: 0.5,
+            min_gap_m: 0.3,
+            full_gap_m: 2.0,
         }
     }
 }
