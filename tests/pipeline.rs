@@ -267,4 +267,13 @@ fn morph_is_the_default_and_a_pair_it_cannot_follow_falls_back_to_the_linear_ble
         between.iter().all(|l| l.contains(",interpolated,linear blend,")),
         "{index}"
     );
+    // The exaggeration chosen for a job that sets none is recorded with its source.
+    let run: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(d.path().join("out/data/run.json")).unwrap(),
+    )
+    .unwrap();
+    let view = &run["view"];
+    assert_eq!(view["vertical_exaggeration_source"], "automatic", "{view}");
+    // Check: analytic — a flat pair has no relief, so the rule gives its upper bound, 5.
+    assert_eq!(view["vertical_exaggeration"], 5.0, "{view}");
 }

@@ -278,7 +278,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         if !(az >= 0.0 && az < 360.0) {
             return Err(bad(
                 "sun.azimuth_deg",
-                format!("{az} is out of range; use compass degrees in [0, 360), or leave it out for light from the viewer's front left"),
+                format!("{az} is out of range; use compass degrees in [0, 360), or leave it out for light from behind the viewer's left shoulder"),
             ));
         }
     }

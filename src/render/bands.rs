@@ -15,7 +15,7 @@ use super::camera::NEAR_M;
 use super::ramp::Encoder;
 use super::raster::{draw_triangle, draw_triangle_layer, Band, Vert};
 use super::scene::{CamF, Light};
-use super::shade::{blinn_phong, dot3};
+use super::shade::dot3;
 use super::sides::Side;
 
 /// Output rows per band: 45 bands on a 720-row frame, a few per thread and cheap to bin into.
@@ -24,6 +24,10 @@ pub(super) const BAND_OUT_ROWS: usize = 16;
 /// A drawn point this far (scene metres) below the smoothed terrain is on the block's side, not on
 /// the surface: its water is decided by depth alone.
 const SIDE_DEPTH: f32 = 2.0;
+
+/// A drawn point this far (scene metres) above the water is dry: the smoothed terrain differs from
+/// the drawn one by survey noise and rounded crests, far less than this.
+const CLEAR_ABOVE: f32 = 2.0;
 
 /// A water plane in scene units: height (exaggerated), half extents, linear colour, opacity.
 pub(super) type Water = (f32, f32, f32, [f32; 3], f32);
@@ -37,20 +41,34 @@ pub(super) struct Ground<'a> {
     pub(super) z: &'a [f32],
     pub(super) lr: usize,
     pub(super) lc: usize,
-    /// Scene position of vertex (0, 0) and the spacing (rows run south: y falls by `dy` a row).
+    /// Scene position of vertex (0, 0) and the inverse spacing (rows run south: y falls by
+    /// `1 / inv_dy` a row).
     pub(super) x0: f32,
     pub(super) y0: f32,
-    pub(super) dx: f32,
-    pub(super) dy: f32,
+    pub(super) inv_dx: f32,
+    pub(super) inv_dy: f32,
+}
+
+/// Steepest smoothed slope (rise over run, scene units) the waterline's anti-aliasing ramp allows
+/// for: beyond half a ramp of this slope from the water a sample is plainly wet or dry, and the
+/// gradient is not needed.
+const MAX_RAMP_SLOPE: f32 = 8.0;
+
+/// A bilinear sample of the smoothed terrain: its height and what its gradient needs.
+#[derive(Clone, Copy)]
+struct GroundSample {
+    h: f32,
+    corners: [f32; 4],
+    tc: f32,
+    tr: f32,
 }
 
 impl Ground<'_> {
-    /// Bilinear smoothed height and its gradient magnitude at scene point (x, y), or None off the
-    /// grid or over nodata.
+    /// The smoothed terrain at scene point (x, y); None off the grid or over nodata.
     #[inline]
-    fn at(&self, x: f32, y: f32) -> Option<(f32, f32)> {
-        let fc = (x - self.x0) / self.dx;
-        let fr = (self.y0 - y) / self.dy;
+    fn sample(&self, x: f32, y: f32) -> Option<GroundSample> {
+        let fc = (x - self.x0) * self.inv_dx;
+        let fr = (self.y0 - y) * self.inv_dy;
         let (maxc, maxr) = ((self.lc - 1) as f32, (self.lr - 1) as f32);
         if !(fc >= 0.0 && fr >= 0.0 && fc <= maxc && fr <= maxr) {
             return None;
@@ -58,21 +76,32 @@ impl Ground<'_> {
         let (c0, r0) = ((fc as usize).min(self.lc - 2), (fr as usize).min(self.lr - 2));
         let (tc, tr) = (fc - c0 as f32, fr - r0 as f32);
         let i = r0 * self.lc + c0;
-        let (a, b, c, d) = (
+        let corners = [
             self.z[i],
             self.z[i + 1],
             self.z[i + self.lc],
             self.z[i + self.lc + 1],
-        );
+        ];
+        let [a, b, c, d] = corners;
         let top = a + (b - a) * tc;
         let bottom = c + (d - c) * tc;
         let h = top + (bottom - top) * tr;
-        if !h.is_finite() {
-            return None;
+        h.is_finite().then_some(GroundSample { h, corners, tc, tr })
+    }
+
+    /// Share of a sample under water level `wz`, given the sample's footprint on the ground
+    /// (scene metres): a ramp one footprint wide across the smoothed contour.
+    #[inline]
+    fn cover(&self, s: &GroundSample, wz: f32, footprint: f32) -> f32 {
+        let dh = s.h - wz;
+        if dh.abs() >= 0.5 * MAX_RAMP_SLOPE * footprint {
+            return f32::from(u8::from(dh < 0.0));
         }
-        let gx = ((b - a) * (1.0 - tr) + (d - c) * tr) / self.dx;
-        let gy = (bottom - top) / self.dy;
-        Some((h, (gx * gx + gy * gy).sqrt()))
+        let [a, b, c, d] = s.corners;
+        let gx = ((b - a) * (1.0 - s.tr) + (d - c) * s.tr) * self.inv_dx;
+        let gy = ((c - a) * (1.0 - s.tc) + (d - b) * s.tc) * self.inv_dy;
+        let width = (gx * gx + gy * gy).sqrt().min(MAX_RAMP_SLOPE) * footprint + 1e-4;
+        (0.5 - dh / width).clamp(0.0, 1.0)
     }
 }
 
@@ -267,26 +296,35 @@ fn draw_band(
                 let cover = match (iz > 0.0, ground) {
                     (true, Some(g)) => {
                         let zc = 1.0 / iz;
-                        let p = [0, 1, 2].map(|k| cam.eye[k] + zc * d[k]);
-                        match g.at(p[0], p[1]) {
-                            Some((h, slope)) if p[2] > h - SIDE_DEPTH => {
-                                let width = slope * zc / cam.focal + 1e-4;
-                                (0.5 - (h - wz) / width).clamp(0.0, 1.0)
-                            }
+                        let pz = cam.eye[2] + zc * d[2];
+                        if pz > wz + CLEAR_ABOVE {
+                            // Far above the water: dry whatever the smoothing (saves the lookup).
+                            continue;
+                        }
+                        let (px, py) = (cam.eye[0] + zc * d[0], cam.eye[1] + zc * d[1]);
+                        match g.sample(px, py) {
+                            // On the surface (the block's side lies well below it).
+                            Some(s) if pz > s.h - SIDE_DEPTH => g.cover(&s, wz, zc / cam.focal),
                             _ => f32::from(u8::from(1.0 / t > iz)),
                         }
                     }
                     // Nothing drawn here: a gap in the data shows as a gap, not as a pond.
-                    (false, Some(g)) => f32::from(u8::from(g.at(hx, hy).is_some())),
+                    (false, Some(g)) => f32::from(u8::from(g.sample(hx, hy).is_some())),
                     _ => f32::from(u8::from(1.0 / t > iz)),
                 };
                 if cover <= 0.0 {
                     continue;
                 }
+                // Blinn (1977) highlight of the flat water (normal up), 4× as tight as on sand;
+                // below n·h = 0.95 it is under 1e-3 of full light and skipped.
                 let len = dot3(d, d).sqrt();
-                let vdir = [-d[0] / len, -d[1] / len, -d[2] / len];
-                let spec = light.specular
-                    * blinn_phong([0.0, 0.0, 1.0], light.sun, vdir, light.shininess * 4.0);
+                let h = [0, 1, 2].map(|k| light.sun[k] - d[k] / len);
+                let nh = h[2] / dot3(h, h).sqrt();
+                let spec = if nh > 0.95 {
+                    light.specular * nh.powf(light.shininess * 4.0)
+                } else {
+                    0.0
+                };
                 for (o, l) in band.rgb[i * 3..i * 3 + 3].iter_mut().zip(lit) {
                     *o += (l + spec * light.intensity - *o) * alpha * cover;
                 }

@@ -327,7 +327,7 @@ impl Renderer {
         let l = light;
         if let Some(az) = l.azimuth_deg {
             check(az.is_finite() && (0.0..360.0).contains(&az), || {
-                format!("light.azimuth_deg: {az} is outside [0, 360); give the sun's compass bearing, e.g. 315, or leave it out for light from the viewer's front left")
+                format!("light.azimuth_deg: {az} is outside [0, 360); give the sun's compass bearing, e.g. 315, or leave it out for light from behind the viewer's left shoulder")
             })?;
         }
         check(

@@ -5,9 +5,10 @@
 //! `set_shell`, which name the offending key.
 
 /// Bearing of the default sun relative to the camera's line of sight, degrees (negative = to the
-/// left): light from the upper left of the picture, which keeps hills reading as hills (Imhof 1982,
-/// REFERENCES.md §17). 45° is the cartographic upper-left; the sun is put a little more to the side
-/// (60°) so slopes facing the viewer are not all in shade.
+/// left): light from behind the viewer's left shoulder, which keeps hills reading as hills in a
+/// perspective view (Imhof 1982, REFERENCES.md §17). At 120° rather than 135° the light rakes a
+/// little more across the view, so a dune shows a lit flank on the left and a shaded one on the
+/// right; the design value of this project, common practice, no source.
 pub const SUN_FROM_VIEW_DEG: f64 = -120.0;
 
 /// Largest frame side accepted, in pixels.
@@ -103,9 +104,9 @@ impl ViewOptions {
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct LightOptions {
-    /// Sun azimuth, compass degrees clockwise from north, in [0, 360); absent = from the viewer's
-    /// front left ([`SUN_FROM_VIEW_DEG`] from the line of sight), turning with the camera through
-    /// an orbit so relief never inverts. Default: from the viewer's front left.
+    /// Sun azimuth, compass degrees clockwise from north, in [0, 360); absent = from behind the
+    /// viewer's left shoulder ([`SUN_FROM_VIEW_DEG`] from the line of sight), turning with the
+    /// camera through an orbit so relief never inverts. Default: behind the viewer's left shoulder.
     pub azimuth_deg: Option<f64>,
     /// Sun altitude above the horizon in degrees, in (0, 90]. Default: 40.
     pub altitude_deg: f64,

@@ -319,9 +319,10 @@ fn mean_finite(values: impl Iterator<Item = f32>, centre: f32) -> f32 {
         return f32::NAN;
     }
     let (mut s, mut n) = (0.0f32, 0.0f32);
-    for v in values.filter(|v| v.is_finite()) {
-        s += v;
-        n += 1.0;
+    for v in values {
+        let ok = v.is_finite();
+        s += if ok { v } else { 0.0 };
+        n += f32::from(u8::from(ok));
     }
     s / n
 }
@@ -679,8 +680,8 @@ pub(super) fn render(
             lc,
             x0: b.xs[0],
             y0: b.ys[0],
-            dx: b.dx,
-            dy: b.dy,
+            inv_dx: 1.0 / b.dx,
+            inv_dy: 1.0 / b.dy,
         }),
         cam,
         light,
