@@ -170,7 +170,10 @@ fn default_light_comes_from_the_viewers_left_on_every_step_of_an_orbit() {
         // Check: Imhof (1982), REFERENCES.md §17 — light from the upper left of the picture or
         // behind the viewer's left shoulder keeps relief from inverting: the sun stays on the
         // viewer's left (bearing 30° to 150° left of the line of sight) on every frame.
-        assert!((-150.0..=-30.0).contains(&rel), "step {i}: sun {rel}° from the line of sight");
+        assert!(
+            (-150.0..=-30.0).contains(&rel),
+            "step {i}: sun {rel}° from the line of sight"
+        );
     }
     // A job's own azimuth is kept fixed in the world.
     let fixed = LightOptions {
@@ -199,8 +202,13 @@ fn earlier_surface_on_noisy_surveys_leaves_no_specks() {
         height: 360,
         ..Default::default()
     };
-    let mut r = Renderer::new(&g, &view, &LightOptions::default(), range(&[&earlier, &later]))
-        .unwrap();
+    let mut r = Renderer::new(
+        &g,
+        &view,
+        &LightOptions::default(),
+        range(&[&earlier, &later]),
+    )
+    .unwrap();
     r.set_shell(&ShellOptions::default()).unwrap();
     assert_eq!(r.level_of_detail(), 0);
     let now = surface(&g, later);
@@ -297,7 +305,10 @@ fn shoreline_on_a_noisy_beach_is_smooth() {
         .collect();
     let worst = bends.iter().cloned().fold(0.0, f64::max);
     let mean = bends.iter().sum::<f64>() / bends.len() as f64;
-    assert!(worst <= 2.0 && mean < 0.5, "bend: worst {worst}, mean {mean}");
+    assert!(
+        worst <= 2.0 && mean < 0.5,
+        "bend: worst {worst}, mean {mean}"
+    );
     // Anti-aliased: along the waterline pixels are partly water, their tint between none and the
     // sea's (the median tint of water pixels).
     let mut tints: Vec<u8> = diff.iter().copied().filter(|&d| d > 8).collect();

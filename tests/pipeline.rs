@@ -241,7 +241,11 @@ fn morph_is_the_default_and_a_pair_it_cannot_follow_falls_back_to_the_linear_ble
     // Two flat surveys (a beach raised by 0.5 m): no relief to follow.
     let g = common::geometry(64, 48);
     for (name, z) in [("a.tif", 2.0f32), ("b.tif", 2.5)] {
-        common::write_grid(&d.path().join(name), &g, &ndarray::Array2::from_elem((48, 64), z));
+        common::write_grid(
+            &d.path().join(name),
+            &g,
+            &ndarray::Array2::from_elem((48, 64), z),
+        );
     }
     let path = d.path().join("job.yaml");
     std::fs::write(
@@ -261,17 +265,21 @@ fn morph_is_the_default_and_a_pair_it_cannot_follow_falls_back_to_the_linear_ble
         report.warnings
     );
     let index = std::fs::read_to_string(d.path().join("out/data/frames/index.csv")).unwrap();
-    let between: Vec<_> = index.lines().filter(|l| l.contains(",interpolated,")).collect();
+    let between: Vec<_> = index
+        .lines()
+        .filter(|l| l.contains(",interpolated,"))
+        .collect();
     assert!(!between.is_empty(), "{index}");
     assert!(
-        between.iter().all(|l| l.contains(",interpolated,linear blend,")),
+        between
+            .iter()
+            .all(|l| l.contains(",interpolated,linear blend,")),
         "{index}"
     );
     // The exaggeration chosen for a job that sets none is recorded with its source.
-    let run: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(d.path().join("out/data/run.json")).unwrap(),
-    )
-    .unwrap();
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("out/data/run.json")).unwrap())
+            .unwrap();
     let view = &run["view"];
     assert_eq!(view["vertical_exaggeration_source"], "automatic", "{view}");
     // Check: analytic — a flat pair has no relief, so the rule gives its upper bound, 5.

@@ -169,7 +169,10 @@ fn plan_payload<'a>(
             "README.txt".into(),
             Source::Text(readme(record, figures, extra)),
         ),
-        ("run.json".into(), Source::Text(run_json(record, opts.view.as_ref()))),
+        (
+            "run.json".into(),
+            Source::Text(run_json(record, opts.view.as_ref())),
+        ),
         ("tables/surveys.csv".into(), Source::Text(surveys.to_csv())),
         (
             "tables/surveys.json".into(),

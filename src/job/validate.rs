@@ -275,7 +275,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
     }
     let s = &f.sun;
     if let Some(az) = s.azimuth_deg {
-        if !(az >= 0.0 && az < 360.0) {
+        if !(0.0..360.0).contains(&az) {
             return Err(bad(
                 "sun.azimuth_deg",
                 format!("{az} is out of range; use compass degrees in [0, 360), or leave it out for light from behind the viewer's left shoulder"),

@@ -73,7 +73,10 @@ impl Ground<'_> {
         if !(fc >= 0.0 && fr >= 0.0 && fc <= maxc && fr <= maxr) {
             return None;
         }
-        let (c0, r0) = ((fc as usize).min(self.lc - 2), (fr as usize).min(self.lr - 2));
+        let (c0, r0) = (
+            (fc as usize).min(self.lc - 2),
+            (fr as usize).min(self.lr - 2),
+        );
         let (tc, tr) = (fc - c0 as f32, fr - r0 as f32);
         let i = r0 * self.lc + c0;
         let corners = [

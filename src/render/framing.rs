@@ -283,8 +283,14 @@ pub fn framing_points(
         f.envelope.iter().map(|n| n[0]),
         f.envelope.iter().map(|n| n[1]),
     );
-    let (x0, x1) = (xs.clone().fold(f64::MAX, f64::min), xs.fold(f64::MIN, f64::max));
-    let (y0, y1) = (ys.clone().fold(f64::MAX, f64::min), ys.fold(f64::MIN, f64::max));
+    let (x0, x1) = (
+        xs.clone().fold(f64::MAX, f64::min),
+        xs.fold(f64::MIN, f64::max),
+    );
+    let (y0, y1) = (
+        ys.clone().fold(f64::MAX, f64::min),
+        ys.fold(f64::MIN, f64::max),
+    );
     for &[x, y, lo, hi] in &f.envelope {
         out.push([x, y, lo * k]);
         out.push([x, y, hi * k]);
@@ -695,20 +701,35 @@ mod tests {
                 let (ok, _, _) = inside(&cam, &corners, &FREE_AREA);
                 assert!(ok, "facing {facing} orbit {orbit} step {i}: outside");
                 let p = projected_box(&cam, &corners).unwrap();
-                union = (union.0.min(p.0), union.1.max(p.1), union.2.min(p.2), union.3.max(p.3));
+                union = (
+                    union.0.min(p.0),
+                    union.1.max(p.1),
+                    union.2.min(p.2),
+                    union.3.max(p.3),
+                );
             }
             // The fit is tight: the box touches the free area's border (within 0.5 %), over an
             // orbit it spans at least 75 % of the free width or height (an orbit turns about the
             // box's middle, whose image is not the image's middle), and a fixed view spans all of
             // one of them, centred.
-            let touch = (union.0 - l).min(r - union.1).min(union.2 - t).min(b - union.3);
-            assert!(touch < 0.005 * (r - l), "facing {facing} orbit {orbit}: {touch} px free");
+            let touch = (union.0 - l)
+                .min(r - union.1)
+                .min(union.2 - t)
+                .min(b - union.3);
+            assert!(
+                touch < 0.005 * (r - l),
+                "facing {facing} orbit {orbit}: {touch} px free"
+            );
             let fill = ((union.1 - union.0) / (r - l)).max((union.3 - union.2) / (b - t));
             assert!(fill > 0.75, "facing {facing} orbit {orbit}: fill {fill}");
             if orbit == 0.0 {
                 assert!(fill > 0.995, "fixed view fill {fill}");
                 let centre = ((union.0 + union.1) / 2.0, (union.2 + union.3) / 2.0);
-                assert!((centre.0 - (l + r) / 2.0).abs() < 2.0 && (centre.1 - (t + b) / 2.0).abs() < 2.0, "{centre:?}");
+                assert!(
+                    (centre.0 - (l + r) / 2.0).abs() < 2.0
+                        && (centre.1 - (t + b) / 2.0).abs() < 2.0,
+                    "{centre:?}"
+                );
             }
             // The eye is above every corner.
             let cam = shot.camera(facing, &f);

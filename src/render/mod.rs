@@ -224,14 +224,7 @@ impl Renderer {
         let (lo, hi) = elevation_range_m;
         let relief = if hi >= lo { f64::from(hi - lo) } else { 0.0 };
         let focus = Focus::whole(geometry, relief);
-        Renderer::framed(
-            geometry,
-            view,
-            light,
-            elevation_range_m,
-            &focus,
-            &FREE_AREA,
-        )
+        Renderer::framed(geometry, view, light, elevation_range_m, &focus, &FREE_AREA)
     }
 
     /// Checks the options against the grid and allocates per-job buffers. View keys the job leaves

@@ -258,7 +258,9 @@ mod tests {
     #[test]
     fn elevation_ramps_are_light_and_rise_in_lightness() {
         for ramp in [ElevationRamp::SandCoast, ElevationRamp::Viridis] {
-            let ys: Vec<f32> = (0..=100).map(|i| luminance(ramp.srgb(i as f32 / 100.0))).collect();
+            let ys: Vec<f32> = (0..=100)
+                .map(|i| luminance(ramp.srgb(i as f32 / 100.0)))
+                .collect();
             // Lightness rises monotonically, so the ramp also reads in grey; Rec. 709 luminance as
             // the measure, common practice, no source.
             assert!(ys.windows(2).all(|w| w[1] > w[0]), "{}", ramp.name());
@@ -266,7 +268,11 @@ mod tests {
             // Check: Imhof (1982), REFERENCES.md §17 — the ramp's lightness range stays modest so
             // shading carries the form; the bounds (1.8:1 sand coast, 3.5:1 light viridis, darkest
             // above 0.2) are this project's design values, common practice, no source.
-            let most = if ramp == ElevationRamp::SandCoast { 1.8 } else { 3.5 };
+            let most = if ramp == ElevationRamp::SandCoast {
+                1.8
+            } else {
+                3.5
+            };
             assert!(hi / lo < most && lo > 0.2, "{}: {lo} .. {hi}", ramp.name());
         }
         // The light viridis keeps viridis's ends in order: violet-grey low, yellow high.
@@ -283,8 +289,14 @@ mod tests {
         let to8 = |c: [f32; 3]| c.map(|v| (v * 255.0).round() as u8);
         assert_eq!(to8(sand_coast_srgb(0.0)), [190, 183, 164]);
         assert_eq!(to8(sand_coast_srgb(1.0)), [236, 231, 208]);
-        assert_eq!(ElevationRamp::from_name("sand-coast"), Some(ElevationRamp::SandCoast));
-        assert_eq!(ElevationRamp::from_name("viridis").map(|r| r.name()), Some("viridis"));
+        assert_eq!(
+            ElevationRamp::from_name("sand-coast"),
+            Some(ElevationRamp::SandCoast)
+        );
+        assert_eq!(
+            ElevationRamp::from_name("viridis").map(|r| r.name()),
+            Some("viridis")
+        );
     }
 
     #[test]

@@ -216,7 +216,12 @@ fn prepare(job: &Job) -> Result<Prepared> {
 
 /// How the frames were drawn, for `run.json`: the exaggeration used and whether it was chosen, the
 /// framed area and the camera's target and distance, the sun and the ramp.
-pub(super) fn view_as_run(job: &Job, stack: &AlignedStack, renderer: &Renderer, focus: &Focus) -> serde_json::Value {
+pub(super) fn view_as_run(
+    job: &Job,
+    stack: &AlignedStack,
+    renderer: &Renderer,
+    focus: &Focus,
+) -> serde_json::Value {
     let g = stack.geometry();
     let (west, south, east, north) = focus.extent(g);
     let f = renderer.framing();
