@@ -12,6 +12,11 @@
 //!   exaggeration) to a pixel, for labels; `north_px` and `metres_per_px` serve a north arrow and a
 //!   scale bar.
 //!
+//! Framing: `Renderer::framed(geometry, view, light, range, &Focus, &FreeArea)` fills in the view
+//! keys the job leaves out (exaggeration, target, distance) by the pure functions of `framing.rs`;
+//! `Renderer::new` frames the whole grid. `FrameView::vertical_exaggeration()` and
+//! `Renderer::vertical_exaggeration()` give the value in use.
+//!
 //! Beyond the contract: `Renderer::set_water`, `Renderer::set_shell` and
 //! `Renderer::render_scene_into(surface, shell, colouring, orbit_fraction, frame)` add a water plane,
 //! a translucent second surface and colouring by change (DEM of difference) or by a draped RGB
