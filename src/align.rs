@@ -98,6 +98,20 @@ pub fn align(surveys: Vec<Survey>, aoi: Option<AreaOfInterest>) -> Result<Aligne
     let mut out = Vec::with_capacity(surveys.len());
     for s in surveys {
         let g = &s.grid.geometry;
+        if g.epsg.is_none() != base.epsg.is_none() {
+            let (which, other) = if g.epsg.is_none() {
+                ("this grid", crs_name(base.epsg))
+            } else {
+                ("the first survey's grid", crs_name(g.epsg))
+            };
+            return Err(Error::input(
+                &s.source.path,
+                format!(
+                    "{which} states no CRS (no ProjectedCRSGeoKey) while the other is in {other}; if they are in \
+                     the same CRS, assign that CRS to the grid that lacks it (the elevations need no change)"
+                ),
+            ));
+        }
         if g.epsg != base.epsg {
             return Err(Error::input(
                 &s.source.path,
@@ -173,6 +187,10 @@ fn crop_geometry(g: &GridGeometry, a: &AreaOfInterest) -> Option<GridGeometry> {
 /// Bilinear resampling of `src` onto `target`; exact copy when the cells coincide. Cells outside
 /// `src`, or whose neighbourhood touches nodata, are NaN. The caller checks the CRS.
 pub fn resample(src: &Grid, target: &GridGeometry) -> Array2<f32> {
+    // A grid already on the analysis grid (the usual case: surveys delivered on one grid) is copied.
+    if src.geometry == *target {
+        return src.z.clone();
+    }
     Array2::from_shape_fn((target.rows, target.cols), |(r, c)| {
         let (x, y) = target.cell_center(r, c);
         let (sr, sc) = src.geometry.to_cell(x, y);
@@ -222,6 +240,9 @@ mod tests {
                 compression: "none".into(),
                 nodata: None,
                 vertical_unit: LinearUnit::Metre,
+                vertical_unit_source: crate::grid::UnitSource::File,
+                horizontal_unit: LinearUnit::Metre,
+                horizontal_unit_source: crate::grid::UnitSource::File,
                 pixel_is_point: false,
             },
         }

@@ -52,6 +52,29 @@ impl LinearUnit {
     }
 }
 
+/// Where a unit of a grid came from: the file said it, the job said it, or nobody did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum UnitSource {
+    /// The file's GeoKeys state it (a unit key, or a CRS whose unit is known).
+    File,
+    /// The job file states it (`surveys[].vertical_unit`, `surveys[].horizontal_unit`).
+    Job,
+    /// Neither does; metres were assumed, with a warning that reaches the record.
+    Assumed,
+}
+
+impl UnitSource {
+    /// The word used in tables: `file`, `job` or `assumed`.
+    pub fn name(self) -> &'static str {
+        match self {
+            UnitSource::File => "file",
+            UnitSource::Job => "job",
+            UnitSource::Assumed => "assumed",
+        }
+    }
+}
+
 /// Where a grid sits on the map and how big its cells are.
 #[derive(Debug, Clone, PartialEq)]
 pub struct GridGeometry {

@@ -38,6 +38,9 @@ fn survey(k: usize, dir: &std::path::Path) -> Survey {
             compression: "none".into(),
             nodata: Some(-9999.0),
             vertical_unit: LinearUnit::Metre,
+            vertical_unit_source: dunereel::grid::UnitSource::File,
+            horizontal_unit: LinearUnit::Metre,
+            horizontal_unit_source: dunereel::grid::UnitSource::File,
             pixel_is_point: false,
         },
     }
@@ -67,7 +70,7 @@ fn run(threads: usize, out: &std::path::Path, inputs: &std::path::Path) {
         let aopts = ArchiveOptions {
             overwrite: false,
             bagging_date: chrono::NaiveDate::from_ymd_opt(2044, 1, 1),
-            view: None,
+            ..Default::default()
         };
         write_archive(out, &rec, &figs, &extra, &aopts).unwrap();
     });

@@ -97,7 +97,7 @@ fn verify_reports_an_altered_file_with_exit_2() {
         .output()
         .unwrap();
     assert_eq!(out.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&out.stdout).contains("altered: data/tables/pairs.csv"));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("data/tables/pairs.csv: altered"));
     // A second render refuses to replace the folder it made.
     let (code, err) = dunereel(&["render", job.to_str().unwrap()], d.path());
     assert_eq!(code, 1, "{err}");

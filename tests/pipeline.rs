@@ -79,15 +79,20 @@ fn existing_output_is_kept_unless_overwrite_is_asked() {
         std::fs::read_to_string(out.join("notes.txt")).unwrap(),
         "mine"
     );
-    run_job(
-        &job,
-        &RunOptions {
-            overwrite: true,
-            ..Default::default()
-        },
-    )
-    .unwrap();
-    assert!(!out.join("notes.txt").exists());
+    let again = RunOptions {
+        overwrite: true,
+        ..Default::default()
+    };
+    // Overwriting replaces only an earlier output of dunereel: this folder holds the user's notes.
+    let err = run_job(&job, &again).unwrap_err();
+    assert!(err.to_string().contains("notes.txt"), "{err}");
+    assert_eq!(
+        std::fs::read_to_string(out.join("notes.txt")).unwrap(),
+        "mine"
+    );
+    std::fs::remove_dir_all(&out).unwrap();
+    run_job(&job, &RunOptions::default()).unwrap();
+    run_job(&job, &again).unwrap();
     assert!(dunereel::archive::verify(&out).unwrap().is_intact());
 }
 

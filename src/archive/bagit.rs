@@ -14,6 +14,7 @@ use std::path::{Path, PathBuf};
 use rayon::prelude::*;
 use sha2::{Digest, Sha256};
 
+use super::replace::is_os_litter;
 use crate::change::record::{hex, sha256_file};
 use crate::error::{Error, Result};
 
@@ -144,26 +145,79 @@ fn write(path: &Path, bytes: &[u8]) -> Result<()> {
 /// What [`verify`] found.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct VerifyReport {
-    /// Files checked against a manifest (payload and tag files).
-    pub checked: usize,
+    /// Payload files (under `data/`) whose checksum matched or was compared.
+    pub payload_checked: usize,
+    /// Tag files (`bagit.txt`, `bag-info.txt`, `manifest-sha256.txt`) compared against the tag manifest.
+    pub tags_checked: usize,
     /// Files a manifest lists that are not there.
     pub missing: Vec<String>,
     /// Files present that no manifest lists.
     pub extra: Vec<String>,
-    /// Files whose checksum differs from their manifest's.
+    /// Payload files whose checksum differs from their line in `manifest-sha256.txt`.
     pub altered: Vec<String>,
+    /// Tag files whose checksum differs from their line in `tagmanifest-sha256.txt`. When the payload
+    /// manifest is among them, the manifest itself was edited, and a payload "altered" above may be an
+    /// edited manifest line rather than an edited file.
+    pub altered_tags: Vec<String>,
+    /// Files left out of the check: operating-system litter such as `.DS_Store` (not failures).
+    pub ignored: Vec<String>,
     /// Anything else wrong: a malformed manifest line, a wrong `bagit.txt`, a `Payload-Oxum` that
     /// does not add up.
     pub problems: Vec<String>,
 }
 
 impl VerifyReport {
-    /// True when nothing is missing, extra, altered or otherwise wrong.
+    /// True when nothing is missing, extra, altered or otherwise wrong (ignored litter is fine).
     pub fn is_intact(&self) -> bool {
         self.missing.is_empty()
             && self.extra.is_empty()
             && self.altered.is_empty()
+            && self.altered_tags.is_empty()
             && self.problems.is_empty()
+    }
+
+    /// True when the payload manifest itself no longer matches the tag manifest.
+    pub fn manifest_edited(&self) -> bool {
+        self.altered_tags.iter().any(|t| t == MANIFEST)
+    }
+
+    /// One line per finding, for people: ignored litter, altered tag files, altered, missing and
+    /// extra files, other problems.
+    pub fn lines(&self) -> Vec<String> {
+        let mut out: Vec<String> = self
+            .ignored
+            .iter()
+            .map(|f| format!("ignored: {f} (left by the operating system, not part of the record)"))
+            .collect();
+        out.extend(
+            self.altered_tags.iter().map(|f| {
+                format!("altered tag file: {f} (differs from its line in {TAG_MANIFEST})")
+            }),
+        );
+        let how = if self.manifest_edited() {
+            format!("differs from its line in the edited {MANIFEST} (the line or the file changed)")
+        } else {
+            format!("altered (differs from its line in {MANIFEST})")
+        };
+        out.extend(self.altered.iter().map(|f| format!("{f}: {how}")));
+        out.extend(self.missing.iter().map(|f| format!("missing: {f}")));
+        out.extend(self.extra.iter().map(|f| format!("extra: {f}")));
+        out.extend(self.problems.iter().map(|p| format!("problem: {p}")));
+        out
+    }
+
+    /// The verdict in one sentence with the fix, for a bag that is not intact.
+    pub fn summary(&self) -> String {
+        format!(
+            "the archive does not match its manifests ({} missing, {} extra, {} altered, {} altered tag \
+             files, {} other problems); restore missing or altered files from a trusted copy and move \
+             extra files out",
+            self.missing.len(),
+            self.extra.len(),
+            self.altered.len(),
+            self.altered_tags.len(),
+            self.problems.len()
+        )
     }
 }
 
@@ -214,8 +268,13 @@ fn read_text(path: &Path, name: &str, report: &mut VerifyReport) -> Option<Strin
     }
 }
 
-/// Checks each listed file's checksum; files that cannot be read count as missing.
-fn check_listed(root: &Path, listed: &BTreeMap<String, String>, report: &mut VerifyReport) {
+/// Checks each listed file's checksum; files that cannot be read count as missing. Returns how
+/// many were compared and which differ.
+fn check_listed(
+    root: &Path,
+    listed: &BTreeMap<String, String>,
+    missing: &mut Vec<String>,
+) -> (usize, Vec<String>) {
     let results: Vec<(String, Option<bool>)> = listed
         .par_iter()
         .map(|(rel, sum)| {
@@ -228,28 +287,42 @@ fn check_listed(root: &Path, listed: &BTreeMap<String, String>, report: &mut Ver
             (rel.clone(), ok)
         })
         .collect();
+    let (mut compared, mut differ) = (0, Vec::new());
     for (rel, ok) in results {
         match ok {
-            None => report.missing.push(rel),
-            Some(true) => report.checked += 1,
+            None => missing.push(rel),
+            Some(true) => compared += 1,
             Some(false) => {
-                report.checked += 1;
-                report.altered.push(rel);
+                compared += 1;
+                differ.push(rel);
             }
         }
     }
+    (compared, differ)
 }
 
 /// Checks a bag folder: every file listed in the manifests is present and unchanged, no file is
-/// present that is not listed, `bagit.txt` declares BagIt 1.0 and `Payload-Oxum` adds up.
+/// present that is not listed, `bagit.txt` declares BagIt 1.0 and `Payload-Oxum` adds up
+/// (RFC 8493 §2.1.3 payload manifest; §3, a valid bag). Operating-system litter (`.DS_Store`,
+/// `Thumbs.db`, `desktop.ini`) is reported as ignored, not as extra.
 ///
 /// # Errors
-/// `Error::Input` when `dir` is not a folder; `Error::Io` when it cannot be listed.
+/// `Error::Input` when `dir` is not a folder, or is not a bag at all (no `bagit.txt`); `Error::Io`
+/// when it cannot be listed.
 pub fn verify(dir: &Path) -> Result<VerifyReport> {
     if !dir.is_dir() {
         return Err(Error::input(
             dir,
             "is not a folder; give the archive folder written by a run",
+        ));
+    }
+    if !dir.join(BAGIT).is_file() {
+        return Err(Error::input(
+            dir,
+            format!(
+                "is not a bag: it has no {BAGIT}; give the output folder of a dunereel run (the folder \
+                 that holds {BAGIT}, {MANIFEST} and data/)"
+            ),
         ));
     }
     let mut report = VerifyReport::default();
@@ -270,12 +343,17 @@ pub fn verify(dir: &Path) -> Result<VerifyReport> {
             .problems
             .push(format!("{MANIFEST} lists {rel}, which is outside data/"));
     }
-    check_listed(dir, &payload, &mut report);
-    let present = if dir.join("data").is_dir() {
+    let (n, altered) = check_listed(dir, &payload, &mut report.missing);
+    report.payload_checked = n;
+    report.altered = altered;
+    let (litter, present): (Vec<String>, Vec<String>) = if dir.join("data").is_dir() {
         list_files(dir, "data")?
     } else {
         Vec::new()
-    };
+    }
+    .into_iter()
+    .partition(|p| is_os_litter(p) && !payload.contains_key(p));
+    report.ignored.extend(litter);
     let listed: BTreeSet<&String> = payload.keys().collect();
     report
         .extra
@@ -285,14 +363,21 @@ pub fn verify(dir: &Path) -> Result<VerifyReport> {
         Some(t) => parse_manifest(TAG_MANIFEST, &t, &mut report.problems),
         None => BTreeMap::new(),
     };
-    check_listed(dir, &tags, &mut report);
+    let (n, altered) = check_listed(dir, &tags, &mut report.missing);
+    report.tags_checked = n;
+    report.altered_tags = altered;
     for rel in list_files(dir, "")? {
         let is_tag = tags.contains_key(&rel)
             || rel == TAG_MANIFEST
             || rel == BAGIT
             || rel == MANIFEST
             || rel == BAG_INFO;
-        if !rel.starts_with("data/") && !is_tag {
+        if rel.starts_with("data/") || is_tag {
+            continue;
+        }
+        if is_os_litter(&rel) {
+            report.ignored.push(rel);
+        } else {
             report.extra.push(rel);
         }
     }
@@ -323,6 +408,8 @@ pub fn verify(dir: &Path) -> Result<VerifyReport> {
     report.extra.sort();
     report.extra.dedup();
     report.altered.sort();
+    report.altered_tags.sort();
+    report.ignored.sort();
     Ok(report)
 }
 
@@ -371,7 +458,52 @@ mod tests {
         );
         let report = verify(dir.path()).unwrap();
         assert!(report.is_intact(), "{report:?}");
-        assert_eq!(report.checked, 4);
+        assert_eq!((report.payload_checked, report.tags_checked), (1, 3));
+    }
+
+    #[test]
+    fn an_edited_manifest_line_is_reported_as_such() {
+        let dir = tempfile::tempdir().unwrap();
+        fs::create_dir(dir.path().join("data")).unwrap();
+        fs::write(dir.path().join("data/a.txt"), b"abc").unwrap();
+        write_tags(dir.path(), "2030-01-01", "test").unwrap();
+        // One hex digit of the payload manifest changed: the file is intact, the manifest is not.
+        let m = dir.path().join(MANIFEST);
+        let text = fs::read_to_string(&m).unwrap().replacen("ba78", "ba79", 1);
+        fs::write(&m, text).unwrap();
+        let r = verify(dir.path()).unwrap();
+        // Check: RFC 8493 §2.1.3 and §3 — the tag manifest covers manifest-sha256.txt, so an edited
+        // manifest line shows as an altered tag file; hand-made case
+        assert_eq!(r.altered_tags, vec![MANIFEST.to_string()]);
+        assert!(r.manifest_edited());
+        assert_eq!(r.altered, vec!["data/a.txt".to_string()]);
+    }
+
+    #[test]
+    fn a_folder_without_bagit_txt_is_not_a_bag() {
+        let dir = tempfile::tempdir().unwrap();
+        fs::write(dir.path().join("notes.txt"), b"x").unwrap();
+        let msg = verify(dir.path()).unwrap_err().to_string();
+        assert!(
+            msg.contains("is not a bag") && msg.contains("bagit.txt"),
+            "{msg}"
+        );
+    }
+
+    #[test]
+    fn os_litter_is_ignored_not_failed() {
+        let dir = tempfile::tempdir().unwrap();
+        fs::create_dir(dir.path().join("data")).unwrap();
+        fs::write(dir.path().join("data/a.txt"), b"abc").unwrap();
+        write_tags(dir.path(), "2030-01-01", "test").unwrap();
+        fs::write(dir.path().join(".DS_Store"), b"x").unwrap();
+        fs::write(dir.path().join("data/Thumbs.db"), b"y").unwrap();
+        let r = verify(dir.path()).unwrap();
+        assert!(r.is_intact(), "{r:?}");
+        assert_eq!(
+            r.ignored,
+            vec![".DS_Store".to_string(), "data/Thumbs.db".to_string()]
+        );
     }
 
     #[test]

@@ -19,6 +19,7 @@
 //! failure leaves nothing half-written. An existing folder is replaced only with `overwrite`.
 
 pub mod bagit;
+pub mod replace;
 pub mod table;
 
 use std::fs;
@@ -29,6 +30,7 @@ use crate::error::{Error, Result};
 use crate::render::Frame;
 
 pub use bagit::{verify, VerifyReport};
+pub use replace::{check_replaceable, Protected};
 
 /// How to write an archive.
 #[derive(Debug, Clone, PartialEq, Eq, Default)]
@@ -37,6 +39,8 @@ pub struct ArchiveOptions {
     pub overwrite: bool,
     /// `Bagging-Date` to write (YYYY-MM-DD); absent = today's date in UTC. Default: today.
     pub bagging_date: Option<chrono::NaiveDate>,
+    /// Paths the archive folder may not be or contain (the job's inputs). Default: none.
+    pub protected: Vec<Protected>,
     /// How the frames were drawn (view as resolved: vertical exaggeration used, framing, sun),
     /// written under `view` in `run.json`. Default: none.
     pub view: Option<serde_json::Value>,
@@ -90,13 +94,7 @@ pub fn write_archive(
     opts: &ArchiveOptions,
 ) -> Result<ArchiveReport> {
     let payload = plan_payload(record, figures, extra, opts)?;
-    if dir.exists() && !opts.overwrite {
-        return Err(Error::output(
-            dir,
-            "already exists and would be replaced; choose another output folder, move this one away, or ask \
-             to overwrite (the job's archive overwrite setting or the --overwrite flag)",
-        ));
-    }
+    check_replaceable(dir, opts.overwrite, &opts.protected)?;
     let name = dir
         .file_name()
         .ok_or_else(|| {
@@ -127,7 +125,10 @@ pub fn write_archive(
             return Err(e);
         }
     };
-    if let Err(e) = swap_into_place(&tmp, dir, &parent, &name) {
+    // Checked again at the last moment: the folder may have changed while the run was working.
+    let swapped = check_replaceable(dir, opts.overwrite, &opts.protected)
+        .and_then(|()| swap_into_place(&tmp, dir, &parent, &name));
+    if let Err(e) = swapped {
         let _ = fs::remove_dir_all(&tmp);
         return Err(e);
     }

@@ -6,6 +6,12 @@
 //! `_ft2`, `_ft3`, `_ft_per_yr`; in US survey feet `_usft`, … Values are divided by the unit's length
 //! in metres (to the power 2 or 3). Every other field (`_crs` map coordinates, `_deg`, shares, counts,
 //! text) is written as it is. In metres nothing is converted, so the numbers are exactly the record's.
+//!
+//! Precision: JSON keeps every digit. CSV, which people read, is rounded by the same suffixes to what
+//! survey data supports: lengths and map coordinates to 0.001 (a millimetre, or a thousandth of a
+//! foot), rates to 0.001 a year, areas and volumes to 0.1, angles to 0.01°. Whole numbers, shares and
+//! other figures are written as they are. Common practice, no source: lidar and drone DEMs carry
+//! centimetre-to-decimetre vertical error (REFERENCES.md §12), so a millimetre is already generous.
 
 use serde::ser::{self, Impossible, Serialize, SerializeStruct, Serializer};
 use serde_json::Value;
@@ -113,8 +119,12 @@ impl Table {
     pub fn to_csv(&self) -> String {
         let mut out = String::new();
         push_csv_line(&mut out, self.columns.iter().map(|c| c.as_str().into()));
+        let decimals: Vec<Option<usize>> = self.columns.iter().map(|c| csv_decimals(c)).collect();
         for row in &self.rows {
-            push_csv_line(&mut out, row.iter().map(csv_cell));
+            push_csv_line(
+                &mut out,
+                row.iter().zip(&decimals).map(|(v, d)| csv_cell(v, *d)),
+            );
         }
         out
     }
@@ -137,11 +147,38 @@ impl Table {
     }
 }
 
-fn csv_cell(v: &Value) -> std::borrow::Cow<'_, str> {
-    match v {
-        Value::Null => "".into(),
-        Value::String(s) => s.as_str().into(),
-        other => other.to_string().into(),
+/// Decimals a CSV column is rounded to, from its unit suffix (see the module doc); None = as it is.
+pub fn csv_decimals(column: &str) -> Option<usize> {
+    let ends = |tails: &[&str]| tails.iter().any(|t| column.ends_with(t));
+    if ends(&["_m3", "_ft3", "_usft3", "_m2", "_ft2", "_usft2"]) {
+        Some(1)
+    } else if ends(&["_per_yr", "_m", "_ft", "_usft", "_crs"]) {
+        Some(3)
+    } else if column.ends_with("_deg") {
+        Some(2)
+    } else {
+        None
+    }
+}
+
+fn csv_cell(v: &Value, decimals: Option<usize>) -> std::borrow::Cow<'_, str> {
+    match (v, decimals) {
+        (Value::Null, _) => "".into(),
+        (Value::String(s), _) => s.as_str().into(),
+        (Value::Number(n), Some(d)) if n.is_f64() => {
+            let x = n.as_f64().unwrap_or(f64::NAN);
+            let s = format!("{x:.d$}");
+            // No "-0.000": a value that rounds to zero is zero.
+            if s.trim_start_matches('-')
+                .chars()
+                .all(|c| c == '0' || c == '.')
+            {
+                s.trim_start_matches('-').to_string().into()
+            } else {
+                s.into()
+            }
+        }
+        (other, _) => other.to_string().into(),
     }
 }
 
@@ -338,10 +375,12 @@ mod tests {
         );
         assert_eq!(
             lines.next().unwrap(),
-            "a,30.480061,1.0,1.0,,5.0,\"x, \"\"y\"\"\""
+            "a,30.480,1.0,1.0,,5.000,\"x, \"\"y\"\"\""
         );
+        // JSON keeps every digit; CSV is rounded to the millimetre and 0.1 m³ (module doc).
         let back: serde_json::Value = serde_json::from_str(&t.to_json()).unwrap();
         assert_eq!(back[1]["net_volume_m3"], -2.5);
+        assert_eq!(back[0]["depth_m"], 30.480061);
         assert!(back[0]["rate_m_per_yr"].is_null());
     }
 

@@ -32,7 +32,7 @@ fn opts() -> ArchiveOptions {
     ArchiveOptions {
         overwrite: false,
         bagging_date: chrono::NaiveDate::from_ymd_opt(2032, 10, 1),
-        view: None,
+        ..Default::default()
     }
 }
 
@@ -60,7 +60,10 @@ fn writes_a_bag_that_verifies() {
     }
     let v = verify(&dir).unwrap();
     assert!(v.is_intact(), "{v:?}");
-    assert_eq!(v.checked, report.payload_files + 3);
+    assert_eq!(
+        (v.payload_checked, v.tags_checked),
+        (report.payload_files, 3)
+    );
     // Nothing else next to the archive: the temporary folder was renamed away.
     let siblings: Vec<_> = fs::read_dir(tmp.path())
         .unwrap()
@@ -124,8 +127,15 @@ fn never_overwrites_unless_asked() {
         overwrite: true,
         ..opts()
     };
+    // Asked to overwrite, it still refuses a folder it did not make, and names the user's file.
+    let err = write_archive(&dir, &rec, &figs, &[], &o).unwrap_err();
+    assert!(err.to_string().contains("keep.txt"), "{err}");
+    assert_eq!(fs::read(dir.join("keep.txt")).unwrap(), b"mine");
+    // An earlier archive of its own is replaced.
+    fs::remove_file(dir.join("keep.txt")).unwrap();
+    fs::remove_dir(&dir).unwrap();
+    write_archive(&dir, &rec, &figs, &[], &opts()).unwrap();
     write_archive(&dir, &rec, &figs, &[], &o).unwrap();
-    assert!(!dir.join("keep.txt").exists());
     assert!(verify(&dir).unwrap().is_intact());
     assert_eq!(fs::read_dir(tmp.path()).unwrap().count(), 1);
 }

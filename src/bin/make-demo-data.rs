@@ -40,6 +40,10 @@ struct Args {
     /// Replace files that already exist.
     #[arg(long)]
     force: bool,
+    /// For benchmarks: write only the five surveys, on an N x N raster over a 320 m square (the same
+    /// landscape at 320/N m cells). Without it, the demo: 320 x 240 cells of 1 m, truth and README.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u32).range(16..=16384))]
+    cells: Option<u32>,
 }
 
 // ---- Grid -------------------------------------------------------------------------------------
@@ -287,25 +291,61 @@ fn moments() -> Vec<Moment> {
     out
 }
 
-fn geometry() -> GridGeometry {
-    GridGeometry {
-        cols: COLS,
-        rows: ROWS,
-        origin_x: ORIGIN_X,
-        origin_y: ORIGIN_Y,
-        cell_x: CELL_M,
-        cell_y: CELL_M,
-        epsg: Some(EPSG),
-        horizontal_unit: LinearUnit::Metre,
+/// The raster the scenario is sampled on: the demo's own, or a finer square one for benchmarks.
+#[derive(Debug, Clone, Copy)]
+struct Raster {
+    cols: usize,
+    rows: usize,
+    cell_m: f64,
+}
+
+/// The demo raster: 320 x 240 cells of 1 m.
+const DEMO: Raster = Raster {
+    cols: COLS,
+    rows: ROWS,
+    cell_m: CELL_M,
+};
+
+impl Raster {
+    /// A square raster of `n` x `n` cells over the demo's width (320 m): the same landscape, finer,
+    /// and 80 m more beach to the south. For benchmarks of large grids (`--cells`).
+    fn square(n: usize) -> Raster {
+        Raster {
+            cols: n,
+            rows: n,
+            cell_m: COLS as f64 * CELL_M / n as f64,
+        }
+    }
+
+    fn geometry(&self) -> GridGeometry {
+        GridGeometry {
+            cols: self.cols,
+            rows: self.rows,
+            origin_x: ORIGIN_X,
+            origin_y: ORIGIN_Y,
+            cell_x: self.cell_m,
+            cell_y: self.cell_m,
+            epsg: Some(EPSG),
+            horizontal_unit: LinearUnit::Metre,
+        }
+    }
+
+    /// Local (X, Y) of the centre of cell (row, col), from the raster's south-west corner.
+    fn cell_local(&self, row: usize, col: usize) -> (f64, f64) {
+        (
+            (col as f64 + 0.5) * self.cell_m,
+            (self.rows as f64 - row as f64 - 0.5) * self.cell_m,
+        )
     }
 }
 
-/// Local (X, Y) of the centre of cell (row, col).
+fn geometry() -> GridGeometry {
+    DEMO.geometry()
+}
+
+/// Local (X, Y) of the centre of cell (row, col) of the demo raster.
 fn cell_local(row: usize, col: usize) -> (f64, f64) {
-    (
-        (col as f64 + 0.5) * CELL_M,
-        (ROWS as f64 - row as f64 - 0.5) * CELL_M,
-    )
+    DEMO.cell_local(row, col)
 }
 
 fn to_map((x, y): (f64, f64)) -> (f64, f64) {
@@ -313,12 +353,12 @@ fn to_map((x, y): (f64, f64)) -> (f64, f64) {
 }
 
 /// The elevations of survey `k` as written: model + roughness + measurement noise, NaN in the gap.
-fn survey_grid(k: usize, m: &Moment) -> Array2<f32> {
+fn survey_grid(k: usize, m: &Moment, raster: Raster) -> Array2<f32> {
     let spec = &SURVEYS[k];
     let rough_seed = SEED ^ mix64(1000 + k as u64);
     let mut noise = SplitMix64(SEED ^ mix64(2000 + k as u64));
-    Array2::from_shape_fn((ROWS, COLS), |(r, c)| {
-        let (x, y) = cell_local(r, c);
+    Array2::from_shape_fn((raster.rows, raster.cols), |(r, c)| {
+        let (x, y) = raster.cell_local(r, c);
         // Drawn for every cell, gap or not, so the gap does not shift the noise of other cells.
         let e = spec.sigma_z_m * noise.next_normal();
         if let Some((gx, gy, ax, ay)) = spec.gap {
@@ -648,13 +688,17 @@ fn write_text_atomic(path: &Path, text: &str) -> Result<(), String> {
         })
 }
 
-/// Writes the whole scenario into `out_dir`; returns the files written.
-fn generate(out_dir: &Path, force: bool) -> Result<Vec<PathBuf>, String> {
+/// Writes the whole scenario into `out_dir` (with `cells`, only the surveys, on an n x n raster);
+/// returns the files written.
+fn generate(out_dir: &Path, force: bool, cells: Option<usize>) -> Result<Vec<PathBuf>, String> {
+    let raster = cells.map_or(DEMO, Raster::square);
     let mut targets: Vec<PathBuf> = (0..SURVEYS.len())
         .map(|k| out_dir.join(file_name(k)))
         .collect();
-    targets.push(out_dir.join("truth.json"));
-    targets.push(out_dir.join("README.md"));
+    if cells.is_none() {
+        targets.push(out_dir.join("truth.json"));
+        targets.push(out_dir.join("README.md"));
+    }
     if !force {
         let existing: Vec<String> = targets
             .iter()
@@ -673,9 +717,9 @@ fn generate(out_dir: &Path, force: bool) -> Result<Vec<PathBuf>, String> {
     let grids: Vec<Array2<f32>> = moments
         .iter()
         .enumerate()
-        .map(|(k, m)| survey_grid(k, m))
+        .map(|(k, m)| survey_grid(k, m, raster))
         .collect();
-    let geometry = geometry();
+    let geometry = raster.geometry();
     for (k, grid) in grids.iter().enumerate() {
         let spec = &SURVEYS[k];
         let opts = WriteOptions {
@@ -685,8 +729,13 @@ fn generate(out_dir: &Path, force: bool) -> Result<Vec<PathBuf>, String> {
                 "elevation (m), {}, {}, sigma {:.2} m",
                 spec.date, spec.sensor, spec.sigma_z_m
             )],
+            ..Default::default()
         };
         write_bands(&targets[k], &geometry, &[grid], &opts).map_err(|e| e.to_string())?;
+    }
+    if cells.is_some() {
+        // The truth and README describe the demo raster; a benchmark raster has only its grids.
+        return Ok(targets);
     }
     let t = truth(&moments, &grids);
     let json = serde_json::to_string_pretty(&t).map_err(|e| e.to_string())? + "\n";
@@ -697,7 +746,7 @@ fn generate(out_dir: &Path, force: bool) -> Result<Vec<PathBuf>, String> {
 
 fn main() -> ExitCode {
     let args = Args::parse();
-    match generate(&args.out_dir, args.force) {
+    match generate(&args.out_dir, args.force, args.cells.map(|n| n as usize)) {
         Ok(files) => {
             let mut total = 0u64;
             for f in &files {
@@ -793,8 +842,8 @@ mod tests {
     fn generating_twice_gives_identical_bytes_and_refuses_overwrite() {
         let a = tempfile::tempdir().unwrap();
         let b = tempfile::tempdir().unwrap();
-        let fa = generate(a.path(), false).unwrap();
-        let fb = generate(b.path(), false).unwrap();
+        let fa = generate(a.path(), false, None).unwrap();
+        let fb = generate(b.path(), false, None).unwrap();
         assert_eq!(fa.len(), 7);
         for (x, y) in fa.iter().zip(&fb) {
             assert_eq!(
@@ -806,16 +855,16 @@ mod tests {
         }
         let total: u64 = fa.iter().map(|f| fs::metadata(f).unwrap().len()).sum();
         assert!(total <= 3_000_000, "demo data is {total} bytes");
-        let err = generate(a.path(), false).unwrap_err();
+        let err = generate(a.path(), false, None).unwrap_err();
         assert!(err.contains("--force"), "{err}");
-        let again = generate(a.path(), true).unwrap();
+        let again = generate(a.path(), true, None).unwrap();
         assert_eq!(fs::read(&again[0]).unwrap(), fs::read(&fb[0]).unwrap());
     }
 
     #[test]
     fn written_files_match_truth() {
         let dir = tempfile::tempdir().unwrap();
-        let files = generate(dir.path(), false).unwrap();
+        let files = generate(dir.path(), false, None).unwrap();
         let truth: serde_json::Value =
             serde_json::from_str(&fs::read_to_string(dir.path().join("truth.json")).unwrap())
                 .unwrap();

@@ -43,6 +43,7 @@ pub use transect::transect_chart;
 pub struct ChangeOptions {
     /// Elevation, in metres on the grids' vertical datum, above which peak heights, volumes and areas
     /// are measured. Default: 0.0.
+    #[serde(deserialize_with = "crate::job::length::metres")]
     pub reference_elevation_m: f64,
     /// Multiplier t of the level of detection `LoD = t * sqrt(s1^2 + s2^2)`; 1.96 gives 95 % for
     /// normally distributed errors, 1.0 gives 68 %. Default: 1.96.

@@ -53,8 +53,14 @@ pub struct SurveyRecord {
     pub crs_epsg: Option<u32>,
     /// Horizontal unit of the CRS (`m`, `ft`, `US ft`); `_crs` columns are in it.
     pub crs_unit: &'static str,
-    /// Vertical unit the file's values were stored in before conversion.
-    pub file_vertical_unit: &'static str,
+    /// Who stated the CRS unit: `file`, `job` (`surveys[].horizontal_unit`) or `assumed` (metres,
+    /// with a warning in the record).
+    pub crs_unit_source: &'static str,
+    /// Unit the grid's elevations were stored in, before conversion to metres.
+    pub grid_vertical_unit: &'static str,
+    /// Who stated that unit: `file`, `job` (`surveys[].vertical_unit`) or `assumed` (metres, with a
+    /// warning in the record).
+    pub vertical_unit_source: &'static str,
     /// Columns of the analysis grid.
     pub cols: usize,
     /// Rows of the analysis grid.
@@ -397,7 +403,9 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             source_sha256: sha,
             crs_epsg: geometry.epsg,
             crs_unit: geometry.horizontal_unit.symbol(),
-            file_vertical_unit: s.source.vertical_unit.symbol(),
+            crs_unit_source: s.source.horizontal_unit_source.name(),
+            grid_vertical_unit: s.source.vertical_unit.symbol(),
+            vertical_unit_source: s.source.vertical_unit_source.name(),
             cols: geometry.cols,
             rows: geometry.rows,
             cell_x_m: geometry.cell_x_m(),

@@ -49,6 +49,9 @@ pub fn survey(
             compression: "none".into(),
             nodata: None,
             vertical_unit: LinearUnit::Metre,
+            vertical_unit_source: crate::grid::UnitSource::File,
+            horizontal_unit: LinearUnit::Metre,
+            horizontal_unit_source: crate::grid::UnitSource::File,
             pixel_is_point: false,
         },
     }

@@ -14,6 +14,6 @@ mod sample;
 mod units;
 mod write;
 
-pub use read::read_grid;
+pub use read::{read_grid, read_grid_as, unit_word, StatedUnits};
 pub use rgb::read_rgb;
-pub use write::{write_bands, WriteOptions};
+pub use write::{write_bands, Effort, WriteOptions};

@@ -19,7 +19,7 @@ use super::keys::GeoKeys;
 use super::sample::to_metres;
 use super::units::{self, Units};
 use crate::error::{Error, Result};
-use crate::grid::{Grid, GridGeometry};
+use crate::grid::{Grid, GridGeometry, LinearUnit, UnitSource};
 use crate::survey::GridSource;
 
 /// Largest decoded raster accepted, in bytes (all bands as stored). 4 GiB holds a
@@ -42,16 +42,88 @@ const MAX_DECODED_BYTES: u64 = 4 << 30;
 /// The decoded raster (all bands as stored) plus, unless the file is single-band float32 in metres,
 /// one f32 array of rows x cols.
 pub fn read_grid(path: &Path) -> Result<(Grid, GridSource)> {
+    read_grid_as(path, StatedUnits::default())
+}
+
+/// Units a job states for a grid, for files that do not say (or to confirm what they say).
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct StatedUnits {
+    /// Unit of the map coordinates, if the job states it.
+    pub horizontal: Option<LinearUnit>,
+    /// Unit of the stored elevations, if the job states it.
+    pub vertical: Option<LinearUnit>,
+}
+
+/// Picks a grid's unit from what the file and the job say: they must agree when both speak; the
+/// one that speaks wins; metres (assumed) when neither does.
+fn settle_unit(
+    from_file: LinearUnit,
+    file_source: UnitSource,
+    stated: Option<LinearUnit>,
+    what: &str,
+) -> Result<(LinearUnit, UnitSource), String> {
+    match (file_source, stated) {
+        (UnitSource::File, Some(job)) if job != from_file => Err(format!(
+            "the file states its {what} unit is {} but the job says {}; correct the job's \
+             {what}_unit (or remove it to use the file's), or fix the file's GeoKeys",
+            unit_word(from_file),
+            unit_word(job)
+        )),
+        (UnitSource::File, _) => Ok((from_file, UnitSource::File)),
+        (_, Some(job)) => Ok((job, UnitSource::Job)),
+        (_, None) => Ok((LinearUnit::Metre, UnitSource::Assumed)),
+    }
+}
+
+/// The job-file spelling of a unit, as users write it: `metre`, `foot`, `us-survey-foot`.
+pub fn unit_word(u: LinearUnit) -> &'static str {
+    match u {
+        LinearUnit::Metre => "metre",
+        LinearUnit::Foot => "foot",
+        LinearUnit::UsSurveyFoot => "us-survey-foot",
+    }
+}
+
+/// As [`read_grid`], with the units the job states: a file that states no unit takes the job's; a
+/// file whose unit differs from the job's is refused. The chosen units and where they came from are
+/// in the returned [`GridSource`].
+///
+/// # Errors
+/// As [`read_grid`], and `Error::Input` naming both units when file and job disagree.
+pub fn read_grid_as(path: &Path, stated: StatedUnits) -> Result<(Grid, GridSource)> {
     let bad = |msg: String| Error::input(path, msg);
     let mut dec = open(path, "check the grid path in the job file")?;
     let layout = Layout::read(&mut dec).map_err(&bad)?;
+    if layout.bands >= 3 && layout.sample_type.ends_with("int8") {
+        return Err(bad(format!(
+            "holds {} bands of 8-bit samples (SamplesPerPixel, tag 277): that is a picture (an orthophoto \
+             or a shaded-relief image), not an elevation grid; give the DEM itself, or use this image as \
+             colour.drape",
+            layout.bands
+        )));
+    }
     if layout.bands > 1 {
         log::warn!(
             "file has {} bands; reading band 1 as elevation",
             layout.bands
         );
     }
-    let (geometry, units) = georeference(&mut dec, &layout).map_err(&bad)?;
+    let (mut geometry, mut units) = georeference(&mut dec, &layout).map_err(&bad)?;
+    (units.horizontal, units.horizontal_source) = settle_unit(
+        units.horizontal,
+        units.horizontal_source,
+        stated.horizontal,
+        "horizontal",
+    )
+    .map_err(&bad)?;
+    (units.vertical, units.vertical_source) = settle_unit(
+        units.vertical,
+        units.vertical_source,
+        stated.vertical,
+        "vertical",
+    )
+    .map_err(&bad)?;
+    geometry.horizontal_unit = units.horizontal;
     let nodata = read_nodata(&mut dec).map_err(&bad)?;
 
     let cells = layout.rows * layout.cols;
@@ -72,6 +144,9 @@ pub fn read_grid(path: &Path) -> Result<(Grid, GridSource)> {
         compression: layout.compression.to_string(),
         nodata,
         vertical_unit: units.vertical,
+        vertical_unit_source: units.vertical_source,
+        horizontal_unit: units.horizontal,
+        horizontal_unit_source: units.horizontal_source,
         pixel_is_point: units.pixel_is_point,
     };
     log::debug!(
@@ -268,7 +343,7 @@ fn f64_tag<R: std::io::Read + std::io::Seek>(
 fn read_keys<R: std::io::Read + std::io::Seek>(dec: &mut Decoder<R>) -> Result<GeoKeys, String> {
     let dir = match dec.find_tag(Tag::GeoKeyDirectoryTag) {
         Ok(None) => {
-            log::warn!("no GeoKeyDirectory (tag 34735): CRS unknown, assuming metres");
+            log::debug!("no GeoKeyDirectory (tag 34735): CRS and units unknown");
             return Ok(GeoKeys::default());
         }
         Ok(Some(v)) => v.into_u16_vec(),

@@ -4,7 +4,7 @@
 //! the caller adds it.
 
 use super::keys::{self, GeoKeys};
-use crate::grid::LinearUnit;
+use crate::grid::{LinearUnit, UnitSource};
 
 /// The CRS facts the rest of the program needs.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -13,8 +13,12 @@ pub struct Units {
     pub epsg: Option<u32>,
     /// Unit of the map coordinates.
     pub horizontal: LinearUnit,
+    /// Where `horizontal` came from: the file, or assumed (metres).
+    pub horizontal_source: UnitSource,
     /// Unit of the stored elevations.
     pub vertical: LinearUnit,
+    /// Where `vertical` came from: the file, or assumed (metres).
+    pub vertical_source: UnitSource,
     /// True for PixelIsPoint rasters.
     pub pixel_is_point: bool,
 }
@@ -25,7 +29,8 @@ pub struct Units {
 /// them out when an EPSG code says it all (GDAL 3.6 writes only ProjectedCRSGeoKey and VerticalGeoKey
 /// for EPSG:2227+6360, see tests/fixtures/geotiff), so next come a few well-known EPSG codes, then
 /// the EPSG naming habit of ending a CRS name in `(ftUS)`, `(ft)` or `(m)` read from the citation
-/// keys, and last metres with a warning.
+/// keys, and last metres, marked [`UnitSource::Assumed`] so the caller can warn (or apply what the
+/// job states).
 ///
 /// # Errors
 /// A message naming the key at fault: a geographic or geocentric model (degrees are not supported),
@@ -62,47 +67,39 @@ pub fn units(keys: &GeoKeys) -> Result<Units, String> {
     let code = |id| keys.short(id).filter(|&c| c != 0 && c != 32767);
     let epsg = code(keys::PROJECTED_CRS).map(u32::from);
     let (horizontal_name, vertical_name) = crs_names(keys);
-    let horizontal = match code(keys::PROJ_LINEAR_UNITS) {
-        Some(c) => unit_key(c, "ProjLinearUnitsGeoKey (3076)", "reproject the grid to")?,
+    let (horizontal, horizontal_source) = match code(keys::PROJ_LINEAR_UNITS) {
+        Some(c) => (
+            unit_key(c, "ProjLinearUnitsGeoKey (3076)", "reproject the grid to")?,
+            UnitSource::File,
+        ),
         None => match epsg
             .and_then(horizontal_unit_of_crs)
             .or_else(|| horizontal_name.and_then(unit_in_name))
         {
-            Some(unit) => unit,
-            None => {
-                log::warn!(
-                    "no ProjLinearUnitsGeoKey (3076) and CRS {epsg:?} ({}) is not one this program knows; \
-                     assuming metres",
-                    horizontal_name.unwrap_or("no name")
-                );
-                LinearUnit::Metre
-            }
+            Some(unit) => (unit, UnitSource::File),
+            None => (LinearUnit::Metre, UnitSource::Assumed),
         },
     };
     let vertical_crs = code(keys::VERTICAL_CRS);
-    let vertical = match code(keys::VERTICAL_UNITS) {
-        Some(c) => unit_key(c, "VerticalUnitsGeoKey (4099)", "convert the elevations to")?,
+    let (vertical, vertical_source) = match code(keys::VERTICAL_UNITS) {
+        Some(c) => (
+            unit_key(c, "VerticalUnitsGeoKey (4099)", "convert the elevations to")?,
+            UnitSource::File,
+        ),
         None => match vertical_crs
             .and_then(vertical_unit_of_crs)
             .or_else(|| vertical_name.and_then(unit_in_name))
         {
-            Some(unit) => unit,
-            None => {
-                if vertical_crs.is_some() || horizontal != LinearUnit::Metre {
-                    log::warn!(
-                        "no VerticalUnitsGeoKey (4099); vertical CRS {vertical_crs:?} ({}) gives no unit this \
-                         program knows; taking elevations as metres",
-                        vertical_name.unwrap_or("no name")
-                    );
-                }
-                LinearUnit::Metre
-            }
+            Some(unit) => (unit, UnitSource::File),
+            None => (LinearUnit::Metre, UnitSource::Assumed),
         },
     };
     Ok(Units {
         epsg,
         horizontal,
+        horizontal_source,
         vertical,
+        vertical_source,
         pixel_is_point,
     })
 }

@@ -57,6 +57,19 @@ pub struct WriteOptions {
     /// One short text per band (e.g. `"elevation 2027-04-03"`), stored in the metadata tag 42112;
     /// empty means none. Default: empty.
     pub band_descriptions: Vec<String>,
+    /// DEFLATE effort: `Balanced` for grids people keep, `Fast` for large derived rasters (the
+    /// displacement fields) where a few per cent of size are not worth seconds. Default: `Balanced`.
+    pub effort: Effort,
+}
+
+/// How hard DEFLATE works.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub enum Effort {
+    /// zlib's fast level.
+    Fast,
+    /// zlib's default level.
+    #[default]
+    Balanced,
 }
 
 /// Writes float32 bands as one GeoTIFF.
@@ -316,7 +329,10 @@ fn write_file(
     {
         let mut encoder = TiffEncoder::new(&mut out)
             .map_err(tiff_err)?
-            .with_compression(Compression::Deflate(DeflateLevel::Balanced));
+            .with_compression(Compression::Deflate(match opts.effort {
+                Effort::Fast => DeflateLevel::Fast,
+                Effort::Balanced => DeflateLevel::Balanced,
+            }));
         let mut image = encoder
             .new_image::<Gray32Float>(plan.width, plan.height)
             .map_err(tiff_err)?;

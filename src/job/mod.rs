@@ -3,6 +3,8 @@
 //! `schema` mirrors the file for serde; `validate` applies defaults, resolves paths against the job
 //! file's folder, parses dates and checks every range. Nothing after this stage reads YAML again.
 
+pub mod draft;
+pub(crate) mod length;
 mod schema;
 mod validate;
 
@@ -89,6 +91,10 @@ pub struct SurveySpec {
     pub label: Option<String>,
     /// Vertical uncertainty (1 σ) in metres, if stated.
     pub sigma_z_m: Option<f64>,
+    /// Unit of the grid's elevations as the job states it (checked against the file's). Default: none.
+    pub vertical_unit: Option<crate::grid::LinearUnit>,
+    /// Unit of the grid's map coordinates as the job states it (checked against the file's). Default: none.
+    pub horizontal_unit: Option<crate::grid::LinearUnit>,
 }
 
 /// Where results go.
@@ -164,6 +170,13 @@ pub struct Job {
 /// # Errors
 /// `Error::Job` naming the key or line at fault and the fix; `Error::Io` if the file can't be read.
 pub fn load(path: &Path) -> Result<Job> {
+    if path.is_dir() {
+        return Err(Error::job(
+            path,
+            "file",
+            "is a folder, not a job file; give the path of the job's YAML file (e.g. jobs/demo.yaml)",
+        ));
+    }
     let text = std::fs::read_to_string(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => {
             Error::job(path, "file", "no job file here; check the path")
@@ -185,6 +198,6 @@ pub fn load(path: &Path) -> Result<Job> {
 /// As [`load`].
 pub fn parse(path: &Path, text: String) -> Result<Job> {
     let file: schema::JobFile =
-        serde_yaml::from_str(&text).map_err(|e| validate::yaml_error(path, &e))?;
+        serde_yaml::from_str(&text).map_err(|e| validate::yaml_error(path, &text, &e))?;
     validate::resolve(path, text, file)
 }

@@ -57,8 +57,12 @@ pub(super) struct SurveyEntry {
     pub id: Option<String>,
     #[serde(default)]
     pub label: Option<String>,
-    #[serde(default)]
+    #[serde(default, deserialize_with = "super::length::opt_metres")]
     pub sigma_z_m: Option<f64>,
+    #[serde(default)]
+    pub vertical_unit: Option<crate::grid::LinearUnit>,
+    #[serde(default)]
+    pub horizontal_unit: Option<crate::grid::LinearUnit>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -107,6 +111,7 @@ pub(super) struct ColourEntry {
     /// For `change`: `first` or `previous` survey.
     pub since: String,
     /// For `change`: the change in metres at the ends of the ramp; absent = the largest change.
+    #[serde(deserialize_with = "super::length::opt_metres")]
     pub limit_m: Option<f64>,
     /// For `drape`: an RGB GeoTIFF, relative to the job file.
     pub drape: Option<String>,
@@ -137,6 +142,7 @@ pub(super) struct ShellEntry {
     pub grid: Option<String>,
     pub rgb: [u8; 3],
     pub opacity: f64,
+    #[serde(deserialize_with = "super::length::metres")]
     pub min_gap_m: f64,
     pub full_gap_m: f64,
 }

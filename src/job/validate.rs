@@ -17,7 +17,7 @@ use crate::timeline::FramePlan;
 pub const MAX_FRAMES: usize = 10_000;
 
 /// Turns a YAML parse error into a job error with its line, and a did-you-mean for unknown keys.
-pub(super) fn yaml_error(path: &Path, e: &serde_yaml::Error) -> Error {
+pub(super) fn yaml_error(path: &Path, job_text: &str, e: &serde_yaml::Error) -> Error {
     let place = e.location().map_or_else(
         || "job file".to_string(),
         |l| format!("line {} column {}", l.line(), l.column()),
@@ -25,6 +25,19 @@ pub(super) fn yaml_error(path: &Path, e: &serde_yaml::Error) -> Error {
     let raw = e.to_string();
     // serde_yaml appends " at line L column C"; the place already says it.
     let text = raw.split(" at line ").next().unwrap_or(&raw).to_string();
+    // A tab where YAML expects indentation: the parser's own words do not say so.
+    let tab_line = e
+        .location()
+        .and_then(|l| job_text.lines().nth(l.line().saturating_sub(1)))
+        .is_some_and(|line| line.contains('\t'));
+    if tab_line || (text.contains("cannot start any token") && job_text.contains('\t')) {
+        return Error::job(
+            path,
+            place,
+            "this line holds a tab character; YAML does not allow tabs for indentation, indent with spaces",
+        );
+    }
+    let text = plain_words(&text);
     let hint = suggestion(&text)
         .map(|s| format!("; did you mean `{s}`?"))
         .unwrap_or_default();
@@ -36,6 +49,32 @@ pub(super) fn yaml_error(path: &Path, e: &serde_yaml::Error) -> Error {
         ""
     };
     Error::job(path, place, format!("{text}{hint}{fix}"))
+}
+
+/// The parser's type words in the user's words: `u32` is "a whole number", `f64` "a number".
+fn plain_words(text: &str) -> String {
+    let mut out = text.to_string();
+    for (rust, plain) in [
+        ("expected u8", "expected a whole number"),
+        ("expected u16", "expected a whole number"),
+        ("expected u32", "expected a whole number"),
+        ("expected u64", "expected a whole number"),
+        ("expected usize", "expected a whole number"),
+        ("expected i32", "expected a whole number"),
+        ("expected i64", "expected a whole number"),
+        ("expected f32", "expected a number"),
+        ("expected f64", "expected a number"),
+        ("expected a boolean", "expected true or false"),
+        ("invalid type: floating point", "found the decimal number"),
+        ("invalid type: string", "found the text"),
+        ("invalid type: integer", "found the whole number"),
+        ("invalid type: sequence", "found a list"),
+        ("invalid type: map", "found a map of keys"),
+        ("invalid value: integer", "the whole number"),
+    ] {
+        out = out.replace(rust, plain);
+    }
+    out
 }
 
 /// For "unknown field `x`, expected one of `a`, `b`", the closest expected name, if close enough.
@@ -50,6 +89,40 @@ fn suggestion(text: &str) -> Option<String> {
         .filter(|(d, c)| *d <= 2.max(c.len() / 3))
         .min()
         .map(|(_, c)| c.to_string())
+}
+
+/// Why a date text is not a calendar date, in words: a day the month does not have, a month past 12,
+/// or a text not in the form YYYY-MM-DD.
+fn date_problem(text: &str) -> String {
+    let parts: Vec<&str> = text.split('-').collect();
+    let nums: Option<Vec<u32>> = parts.iter().map(|p| p.parse().ok()).collect();
+    if let (3, Some(n)) = (parts.len(), nums) {
+        let (y, m, d) = (n[0] as i32, n[1], n[2]);
+        if parts[0].len() == 4 && !(1..=12).contains(&m) {
+            return format!(
+                "\"{text}\": there is no month {m}; months run from 01 to 12 (YYYY-MM-DD)"
+            );
+        }
+        if parts[0].len() == 4 && d > 0 {
+            if let Some(first) = NaiveDate::from_ymd_opt(y, m, 1) {
+                let next = if m == 12 {
+                    NaiveDate::from_ymd_opt(y + 1, 1, 1)
+                } else {
+                    NaiveDate::from_ymd_opt(y, m + 1, 1)
+                };
+                if let Some(next) = next {
+                    let days = (next - first).num_days();
+                    if i64::from(d) > days {
+                        return format!(
+                            "\"{text}\": {} {y} has {days} days, so day {d} does not exist; check the survey date",
+                            first.format("%B")
+                        );
+                    }
+                }
+            }
+        }
+    }
+    format!("\"{text}\" is not a calendar date; write it as YYYY-MM-DD (ISO 8601), e.g. 2031-03-27")
 }
 
 pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
@@ -84,15 +157,8 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
     let mut surveys: Vec<SurveySpec> = Vec::with_capacity(f.surveys.len());
     for (i, s) in f.surveys.iter().enumerate() {
         let key = |k: &str| format!("surveys[{i}].{k}");
-        let date = NaiveDate::parse_from_str(s.date.trim(), "%Y-%m-%d").map_err(|_| {
-            bad(
-                &key("date"),
-                format!(
-                    "\"{}\" is not a calendar date; write YYYY-MM-DD (ISO 8601)",
-                    s.date
-                ),
-            )
-        })?;
+        let date = NaiveDate::parse_from_str(s.date.trim(), "%Y-%m-%d")
+            .map_err(|_| bad(&key("date"), date_problem(s.date.trim())))?;
         if !(1900..=2200).contains(&date.year()) {
             return Err(bad(
                 &key("date"),
@@ -157,6 +223,8 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             grid,
             label: s.label.clone(),
             sigma_z_m: s.sigma_z_m,
+            vertical_unit: s.vertical_unit,
+            horizontal_unit: s.horizontal_unit,
         });
     }
 
@@ -575,11 +643,18 @@ mod tests {
 
     #[test]
     fn impossible_and_disordered_dates() {
+        // Check: Gregorian calendar — February 2031 has 28 days (2031 is not a leap year); common practice
         let e = err(&MINIMAL.replace("2032-05-01", "2031-02-30"));
         assert!(
             e.contains("surveys[1].date")
-                && e.contains("not a calendar date")
-                && e.contains("YYYY-MM-DD"),
+                && e.contains("February 2031 has 28 days, so day 30 does not exist"),
+            "{e}"
+        );
+        let e = err(&MINIMAL.replace("2032-05-01", "2031-13-01"));
+        assert!(e.contains("there is no month 13"), "{e}");
+        let e = err(&MINIMAL.replace("2032-05-01", "1 May 2032"));
+        assert!(
+            e.contains("not a calendar date") && e.contains("YYYY-MM-DD"),
             "{e}"
         );
         let e = err(&MINIMAL.replace("2032-05-01", "2029-05-01"));

@@ -272,7 +272,7 @@ impl Renderer {
         })?;
         check((1..=4).contains(&v.supersample), || {
             format!(
-                "view.supersample: {} is outside 1..=4; use 1 (off), 2 or 3",
+                "view.supersample: {} is not one of 1 (off), 2, 3 or 4 samples a side; use 2 for smooth edges",
                 v.supersample
             )
         })?;

@@ -151,6 +151,7 @@ impl Default for LightOptions {
 #[serde(deny_unknown_fields, default)]
 pub struct WaterOptions {
     /// Water level in metres (same datum as the grids); absent = no water. Default: none.
+    #[serde(deserialize_with = "crate::job::length::opt_metres")]
     pub level_m: Option<f64>,
     /// Water colour, sRGB. Default: [40, 110, 170].
     pub rgb: [u8; 3],

@@ -8,13 +8,20 @@
 //! - `mod.rs`: options, report, checks and everything computed before writing (`prepare`).
 //! - `frames.rs`: one frame — its surface, shell, colouring, render and labels.
 //! - `outputs.rs`: the loop over frames and every file of the run.
+//! - `scratch.rs`: hidden working folders beside the output, and clearing those of killed runs.
+//! - `parts.rs`: a job split over a cluster (`render --part K/N`) and put together (`assemble`).
 
 mod frames;
 mod outputs;
+pub mod parts;
+mod scratch;
 
 use std::path::{Path, PathBuf};
 
+use rayon::prelude::*;
+
 use crate::align::{self, AlignedStack};
+use crate::archive::{self, Protected};
 use crate::change::{self, ChangeRecord};
 use crate::error::{Error, Result};
 use crate::geotiff;
@@ -49,6 +56,8 @@ pub struct RunReport {
     pub files: usize,
     /// Warnings worth showing the user (also logged).
     pub warnings: Vec<String>,
+    /// Wall-clock seconds of each stage, in order (not part of the record).
+    pub timings: Vec<(&'static str, f64)>,
 }
 
 /// Most memory the kept animation frames may take, in bytes (frames are kept for the GIF palette).
@@ -65,18 +74,75 @@ pub const FLOW_MAX_SIDE: usize = 1024;
 /// `Error::Job`/`Error::Input` for bad input (nothing is written), `Error::Output`/`Error::Io` when
 /// writing fails (temporary files are removed and an existing output folder is left as it was).
 pub fn run_job(job: &Job, opts: &RunOptions) -> Result<RunReport> {
-    let folder = opts
-        .output_folder
-        .clone()
-        .unwrap_or_else(|| job.output.folder.clone());
+    let folder = output_folder(job, opts);
     let overwrite = opts.overwrite || job.output.overwrite;
-    check_output_folder(&folder, overwrite)?;
+    archive::check_replaceable(&folder, overwrite, &protected(job))?;
 
     let prepared = prepare(job)?;
-    let scratch = scratch_path(&folder);
-    let result = outputs::write_outputs(job, prepared, &scratch, &folder, overwrite, opts);
+    let cleared = scratch::clear_stale(&folder);
+    let scratch = scratch::scratch_path(&folder);
+    let result = outputs::write_outputs(
+        job,
+        prepared,
+        &scratch,
+        &folder,
+        overwrite,
+        opts,
+        FrameSource::Render,
+    );
     let _ = std::fs::remove_dir_all(&scratch);
-    result
+    result.map(|mut report| {
+        report.warnings.extend(cleared);
+        report
+    })
+}
+
+/// Where the frames of a run come from: rendered here, or rendered by the parts of a split job.
+pub(super) enum FrameSource<'a> {
+    /// Render every frame in this process.
+    Render,
+    /// Decode every frame from the part folders (`assemble`).
+    Parts(&'a parts::Gathered),
+}
+
+/// How far along the orbit frame `index` of `total` stands, 0 to 1.
+pub(super) fn orbit_share(index: usize, total: usize) -> f64 {
+    if total > 1 {
+        index as f64 / (total - 1) as f64
+    } else {
+        0.0
+    }
+}
+
+/// The folder a run writes: `--output` if given, else the job's `output.folder`.
+fn output_folder(job: &Job, opts: &RunOptions) -> PathBuf {
+    opts.output_folder
+        .clone()
+        .unwrap_or_else(|| job.output.folder.clone())
+}
+
+/// Everything the job reads: no output folder may be one of these or hold one.
+pub(crate) fn protected(job: &Job) -> Vec<Protected> {
+    let mut out = Vec::new();
+    let mut add = |what: &str, path: &Path| {
+        out.push(Protected {
+            what: what.into(),
+            path: path.to_path_buf(),
+        })
+    };
+    if let Some(folder) = job.path.parent() {
+        add("job file's folder", folder);
+    }
+    for s in &job.surveys {
+        add("survey grid", &s.grid);
+    }
+    if let ColourBy::Drape { path } = &job.colour {
+        add("drape image", path);
+    }
+    if let Some(p) = &job.shell_grid {
+        add("shell grid", p);
+    }
+    out
 }
 
 /// Everything computed and checked before the first write.
@@ -94,21 +160,36 @@ pub(super) struct Prepared {
     /// The image draped over the terrain, when the job colours by one.
     pub(super) drape: Option<Drape>,
     pub(super) warnings: Vec<String>,
+    /// Seconds spent in each stage so far.
+    pub(super) timings: Vec<(&'static str, f64)>,
 }
 
 fn prepare(job: &Job) -> Result<Prepared> {
+    let mut clock = Stopwatch::start();
+    // Grids are read side by side; the first failing survey in job order is the one reported.
     let surveys = job
         .surveys
-        .iter()
+        .par_iter()
         .map(survey::read_survey)
+        .collect::<Vec<_>>()
+        .into_iter()
         .collect::<Result<Vec<_>>>()?;
+    clock.lap("read grids");
+    let unit_warnings: Vec<String> = surveys
+        .iter()
+        .enumerate()
+        .flat_map(|(i, s)| s.unit_warnings(i))
+        .collect();
     let stack = align::align(surveys, job.area_of_interest)?;
+    clock.lap("align");
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
     let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
     let range = stack
         .elevation_range()
         .expect("align refuses all-nodata grids");
     let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    clock.lap("change record");
+    // The record's levels of detection decide what the camera frames.
     let focus = focus_of(&stack, &record);
     let mut renderer = Renderer::framed(
         stack.geometry(),
@@ -163,17 +244,24 @@ fn prepare(job: &Job) -> Result<Prepared> {
             ),
         ));
     }
-    let mut warnings = record.warnings.clone();
-    record.warnings.clear();
+    clock.lap("renderer, shell, drape");
+    let mut warnings = unit_warnings;
+    warnings.append(&mut record.warnings);
 
     // The displacement field of every consecutive pair: the morph needs it, and the record reports
     // the dominant displacement as the migration of the landform.
+    // Pairs are independent, so they are estimated side by side (each also uses rayon inside);
+    // results come back in pair order, so the output does not depend on the thread count.
     let cell_m = stack.geometry().cell_x_m();
+    let estimated: Vec<FlowResult> = (0..stack.len() - 1)
+        .into_par_iter()
+        .map(|i| {
+            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE)
+        })
+        .collect();
     let mut fields = Vec::with_capacity(stack.len() - 1);
-    for i in 0..stack.len() - 1 {
+    for (i, result) in estimated.into_iter().enumerate() {
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
-        let result =
-            flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE);
         let pair = record
             .pairs
             .iter_mut()
@@ -201,6 +289,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         }
     }
     record.warnings.extend(warnings.iter().cloned());
+    clock.lap("displacement fields");
     Ok(Prepared {
         stack,
         timeline,
@@ -211,6 +300,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         shell_grid,
         drape,
         warnings,
+        timings: clock.laps,
     })
 }
 
@@ -262,6 +352,29 @@ pub fn focus_of(stack: &AlignedStack, record: &ChangeRecord) -> Focus {
         .map(|p| (p.from_index, p.to_index, p.lod_m))
         .collect();
     framing::focus_of_change(stack.geometry(), &surfaces, &pairs)
+}
+
+/// Wall-clock time of each stage of a run, for `-v` and the benchmarks. Kept out of the record on
+/// purpose: the record must be byte-identical on every machine, thread count and split into parts.
+pub(super) struct Stopwatch {
+    last: std::time::Instant,
+    pub(super) laps: Vec<(&'static str, f64)>,
+}
+
+impl Stopwatch {
+    pub(super) fn start() -> Self {
+        Stopwatch {
+            last: std::time::Instant::now(),
+            laps: Vec::new(),
+        }
+    }
+    /// Records the time since the previous lap under `stage`.
+    pub(super) fn lap(&mut self, stage: &'static str) {
+        let now = std::time::Instant::now();
+        self.laps
+            .push((stage, now.duration_since(self.last).as_secs_f64()));
+        self.last = now;
+    }
 }
 
 /// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that
@@ -342,48 +455,105 @@ pub(super) fn effective_method(
     }
 }
 
-/// Refuses to touch an existing folder unless overwriting was asked for.
-fn check_output_folder(folder: &Path, overwrite: bool) -> Result<()> {
-    if folder.exists() && !overwrite {
-        return Err(Error::output(
-            folder,
-            "the output folder already exists; choose another output.folder, or pass --overwrite (or set output.overwrite: true) to replace it",
-        ));
+/// True when the job's output folder already holds a finished run of this very job: it verifies
+/// against its manifests, its copy of the job file has the same bytes, and the grids' SHA-256 in its
+/// survey table are those of the grids the job names now. Used by `render --skip-done`, so a
+/// campaign re-run resumes where it stopped. Any doubt (unreadable, different, missing) is `false`.
+pub fn is_done(job: &Job, opts: &RunOptions) -> bool {
+    let folder = output_folder(job, opts);
+    let intact = archive::verify(&folder).is_ok_and(|r| r.is_intact());
+    if !intact {
+        return false;
     }
-    if folder.exists() && !folder.is_dir() {
-        return Err(Error::output(
-            folder,
-            "exists and is not a folder; choose another output.folder",
-        ));
-    }
-    Ok(())
+    let same_job = std::fs::read(folder.join("data/job/job.yaml"))
+        .is_ok_and(|bytes| bytes == job.text.as_bytes());
+    let recorded: Option<Vec<String>> =
+        std::fs::read_to_string(folder.join("data/tables/surveys.json"))
+            .ok()
+            .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
+            .and_then(|v| {
+                v.as_array().map(|rows| {
+                    rows.iter()
+                        .map(|r| r["source_sha256"].as_str().unwrap_or("").to_string())
+                        .collect()
+                })
+            });
+    let now: Option<Vec<String>> = job
+        .surveys
+        .iter()
+        .map(|s| crate::change::record::sha256_file(&s.grid).ok())
+        .collect();
+    same_job && recorded.is_some() && recorded == now
 }
 
-/// A hidden sibling of the output folder for frames on their way into the archive.
-pub(super) fn scratch_path(folder: &Path) -> PathBuf {
-    let name = folder
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "out".into());
-    folder.with_file_name(format!(".{name}.frames-{}", std::process::id()))
+/// What `check_job` found: a one-line summary and everything `render` would warn about.
+#[derive(Debug, Clone)]
+pub struct CheckReport {
+    /// Surveys, grid, frames and duration in one line.
+    pub summary: String,
+    /// The warnings `render` would give (low overlap, assumed units, …), and working folders of
+    /// interrupted runs that `render` would clear.
+    pub warnings: Vec<String>,
 }
 
-/// Checks a job and its grids as `run_job` would, writing nothing. Returns a one-line summary.
+/// Checks a job and its grids as `run_job` would, writing nothing: the output folder (exists,
+/// may be replaced, does not hold an input), every grid, the alignment, the view, the displacement
+/// fields. What `render` would refuse, this refuses with the same error; what `render` would warn
+/// about is in the report.
 ///
 /// # Errors
 /// As `run_job` before its first write.
-pub fn check_job(job: &Job) -> Result<String> {
+pub fn check_job(job: &Job, opts: &RunOptions) -> Result<CheckReport> {
+    let folder = output_folder(job, opts);
+    let overwrite = opts.overwrite || job.output.overwrite;
+    archive::check_replaceable(&folder, overwrite, &protected(job))?;
     let Prepared {
-        stack, timeline, ..
+        stack,
+        timeline,
+        mut warnings,
+        ..
     } = prepare(job)?;
+    for s in scratch::find_stale(&folder) {
+        warnings.push(format!(
+            "{}: a working folder left by an interrupted run (process {} is gone); render will {} it",
+            s.path.display(),
+            s.pid,
+            if s.kind == "old" && !folder.exists() { "put back" } else { "remove" }
+        ));
+    }
+    warnings.dedup();
     let g = stack.geometry();
-    Ok(format!(
-        "{} surveys on a {} x {} grid of {} m cells, {} frames, {:.1} s",
-        stack.len(),
-        g.cols,
-        g.rows,
-        g.cell_x_m(),
-        timeline.frames.len(),
-        timeline.duration_s()
-    ))
+    let cell = if g.horizontal_unit == crate::grid::LinearUnit::Metre {
+        format!("{} m", round_mm(g.cell_x_m()))
+    } else {
+        format!(
+            "{} {} ({} m)",
+            round_mm(g.cell_x),
+            g.horizontal_unit.symbol(),
+            round_mm(g.cell_x_m())
+        )
+    };
+    Ok(CheckReport {
+        summary: format!(
+            "{} surveys on a {} x {} grid of {cell} cells, {} frames, {:.1} s",
+            stack.len(),
+            g.cols,
+            g.rows,
+            timeline.frames.len(),
+            timeline.duration_s()
+        ),
+        warnings,
+    })
+}
+
+/// A length for a message: rounded to the millimetre, without trailing zeros (0.914, 2, 0.5).
+/// Lengths in messages are given to the millimetre; full precision stays in the JSON tables.
+pub fn round_mm(x: f64) -> String {
+    let s = format!("{x:.3}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    if s == "-0" {
+        "0".into()
+    } else {
+        s.into()
+    }
 }

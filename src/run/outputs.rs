@@ -12,7 +12,7 @@ use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
 
 use super::frames::Painter;
-use super::{effective_method, Prepared, RunOptions, RunReport};
+use super::{effective_method, orbit_share, FrameSource, Prepared, RunOptions, RunReport};
 use crate::job::Job;
 
 pub(super) fn write_outputs(
@@ -22,6 +22,7 @@ pub(super) fn write_outputs(
     folder: &Path,
     overwrite: bool,
     opts: &RunOptions,
+    source: FrameSource<'_>,
 ) -> Result<RunReport> {
     let Prepared {
         stack,
@@ -33,8 +34,21 @@ pub(super) fn write_outputs(
         shell_grid,
         drape,
         mut warnings,
+        timings,
     } = prepared;
-    std::fs::create_dir_all(scratch).map_err(|e| Error::io(scratch, e))?;
+    let mut clock = super::Stopwatch::start();
+    clock.laps = timings;
+    std::fs::create_dir_all(scratch).map_err(|e| {
+        // The working folder is an implementation detail; name the folder the user chose.
+        let parent = scratch.parent().unwrap_or(Path::new("."));
+        Error::output(
+            folder,
+            format!(
+                "cannot write in {} ({e}); choose an output folder where you may write (output.folder or --output)",
+                parent.display()
+            ),
+        )
+    })?;
     let unit = job.change.display_unit;
     let mut extra = vec![ExtraFile {
         name: "job/job.yaml".into(),
@@ -62,12 +76,12 @@ pub(super) fn write_outputs(
         None
     };
     for t in &timeline.frames {
-        let orbit = if n > 1 {
-            t.index as f64 / (n - 1) as f64
-        } else {
-            0.0
+        let peak_height = match &source {
+            FrameSource::Render => {
+                painter.paint(&mut renderer, t, orbit_share(t.index, n), &mut frame)
+            }
+            FrameSource::Parts(gathered) => gathered.load(t.index, &mut frame)?,
         };
-        let peak_height = painter.paint(&mut renderer, t, orbit, &mut frame);
         if let Some((seq, _)) = png.as_mut() {
             let row = png_seq::IndexRow {
                 time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
@@ -95,6 +109,7 @@ pub(super) fn write_outputs(
             cb(t.index + 1, n);
         }
     }
+    clock.lap("frames: surface, render, labels, PNG");
     if let Some((seq, dir)) = png {
         seq.finish()?;
         extra.extend(files_under(&dir, "frames")?);
@@ -114,6 +129,7 @@ pub(super) fn write_outputs(
             stats.mean_colour_error
         );
         drop(kept);
+        clock.lap("GIF");
         extra.push(ExtraFile {
             name: format!("animation/{name}"),
             content: ExtraContent::File(path),
@@ -156,6 +172,7 @@ pub(super) fn write_outputs(
             name: "poster.png".into(),
             content: ExtraContent::File(path),
         });
+        clock.lap("poster");
     }
     // The displacement fields as two-band rasters (east, north in metres), for the record.
     for (i, f) in fields.iter().enumerate() {
@@ -170,6 +187,7 @@ pub(super) fn write_outputs(
                 "east displacement (m)".into(),
                 "north displacement (m)".into(),
             ],
+            effort: geotiff::Effort::Fast,
         };
         geotiff::write_bands(
             &path,
@@ -183,7 +201,9 @@ pub(super) fn write_outputs(
         });
     }
 
+    clock.lap("displacement rasters");
     let figures = change::figures(&stack, &record, &job.change);
+    clock.lap("maps and charts");
     let archive = archive::write_archive(
         folder,
         &record,
@@ -192,9 +212,11 @@ pub(super) fn write_outputs(
         &ArchiveOptions {
             overwrite,
             bagging_date: None,
+            protected: super::protected(job),
             view: Some(super::view_as_run(job, &stack, &renderer, &focus)),
         },
     )?;
+    clock.lap("archive and checksums");
     warnings.dedup();
     Ok(RunReport {
         folder: archive.dir,
@@ -206,6 +228,7 @@ pub(super) fn write_outputs(
             .count(),
         files: archive.payload_files,
         warnings,
+        timings: clock.laps,
     })
 }
 

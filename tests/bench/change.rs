@@ -54,6 +54,9 @@ fn surveys(dir: &std::path::Path) -> Vec<Survey> {
                     compression: "none".into(),
                     nodata: None,
                     vertical_unit: LinearUnit::Metre,
+                    vertical_unit_source: dunereel::grid::UnitSource::File,
+                    horizontal_unit: LinearUnit::Metre,
+                    horizontal_unit_source: dunereel::grid::UnitSource::File,
                     pixel_is_point: false,
                 },
             }
