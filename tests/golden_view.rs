@@ -97,7 +97,7 @@ fn low_sun_east() {
         ..Default::default()
     };
     let light = LightOptions {
-        azimuth_deg: 90.0,
+        azimuth_deg: Some(90.0),
         altitude_deg: 15.0,
         ..Default::default()
     };
@@ -160,7 +160,7 @@ fn write_previews() {
     r.render_scene_into(&s, None, c, 0.0, &mut f);
     save("change.png", &f);
     let low = LightOptions {
-        azimuth_deg: 90.0,
+        azimuth_deg: Some(90.0),
         altitude_deg: 15.0,
         ..Default::default()
     };
@@ -175,7 +175,7 @@ fn write_previews() {
     r.render_into(&s, 0.0, &mut f);
     save("low-sun-east.png", &f);
     let west = LightOptions {
-        azimuth_deg: 260.0,
+        azimuth_deg: Some(260.0),
         altitude_deg: 12.0,
         ..Default::default()
     };

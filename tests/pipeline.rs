@@ -239,3 +239,54 @@ fn a_separate_grid_can_be_the_shell() {
     );
     assert!(!bad_dir.join("out").exists());
 }
+
+#[test]
+fn morph_is_the_default_and_a_pair_it_cannot_follow_falls_back_to_the_linear_blend() {
+    let d = tempfile::tempdir().unwrap();
+    // Two flat surveys (a beach raised by 0.5 m): no relief to follow.
+    let g = common::geometry(64, 48);
+    for (name, z) in [("a.tif", 2.0f32), ("b.tif", 2.5)] {
+        common::write_grid(
+            &d.path().join(name),
+            &g,
+            &ndarray::Array2::from_elem((48, 64), z),
+        );
+    }
+    let path = d.path().join("job.yaml");
+    std::fs::write(
+        &path,
+        "format_version: 1\ntitle: Flat beach\nsurveys:\n  - { date: 2030-03-01, grid: a.tif, sigma_z_m: 0.1 }\n  - { date: 2031-03-01, grid: b.tif, sigma_z_m: 0.1 }\ntimeline: { frames_per_year: 4 }\nview: { width: 64, height: 48 }\noutput: { folder: out }\n",
+    )
+    .unwrap();
+    let job = job::load(&path).unwrap();
+    assert_eq!(job.methods, vec![dunereel::job::Method::Morph]);
+    let report = run_job(&job, &RunOptions::default()).unwrap();
+    assert!(
+        report
+            .warnings
+            .iter()
+            .any(|w| w.contains("linear blend instead of the morph")),
+        "{:?}",
+        report.warnings
+    );
+    let index = std::fs::read_to_string(d.path().join("out/data/frames/index.csv")).unwrap();
+    let between: Vec<_> = index
+        .lines()
+        .filter(|l| l.contains(",interpolated,"))
+        .collect();
+    assert!(!between.is_empty(), "{index}");
+    assert!(
+        between
+            .iter()
+            .all(|l| l.contains(",interpolated,linear blend,")),
+        "{index}"
+    );
+    // The exaggeration chosen for a job that sets none is recorded with its source.
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("out/data/run.json")).unwrap())
+            .unwrap();
+    let view = &run["view"];
+    assert_eq!(view["vertical_exaggeration_source"], "automatic", "{view}");
+    // Check: analytic — a flat pair has no relief, so the rule gives its upper bound, 5.
+    assert_eq!(view["vertical_exaggeration"], 5.0, "{view}");
+}

@@ -44,6 +44,9 @@ pub struct ArchiveOptions {
     pub bagging_date: Option<chrono::NaiveDate>,
     /// Paths the archive folder may not be or contain (the job's inputs). Default: none.
     pub protected: Vec<Protected>,
+    /// How the frames were drawn (view as resolved: vertical exaggeration used, framing, sun),
+    /// written under `view` in `run.json`. Default: none.
+    pub view: Option<serde_json::Value>,
 }
 
 /// Where the bytes of an extra payload file come from.
@@ -93,7 +96,7 @@ pub fn write_archive(
     extra: &[ExtraFile],
     opts: &ArchiveOptions,
 ) -> Result<ArchiveReport> {
-    let payload = plan_payload(record, figures, extra)?;
+    let payload = plan_payload(record, figures, extra, opts)?;
     check_replaceable(dir, opts.overwrite, &opts.protected)?;
     let name = dir
         .file_name()
@@ -154,6 +157,7 @@ fn plan_payload<'a>(
     record: &ChangeRecord,
     figures: &'a [Figure],
     extra: &'a [ExtraFile],
+    opts: &ArchiveOptions,
 ) -> Result<Vec<(String, Source<'a>)>> {
     let unit = record.options.display_unit;
     let bug = |e: table::RowError| {
@@ -171,7 +175,10 @@ fn plan_payload<'a>(
             "README.txt".into(),
             Source::Text(readme(record, figures, extra)),
         ),
-        ("run.json".into(), Source::Text(run_json(record))),
+        (
+            "run.json".into(),
+            Source::Text(run_json(record, opts.view.as_ref())),
+        ),
         ("tables/surveys.csv".into(), Source::Text(surveys.to_csv())),
         (
             "tables/surveys.json".into(),
@@ -315,10 +322,11 @@ fn swap_into_place(tmp: &Path, dir: &Path, parent: &Path, name: &str) -> Result<
     Ok(())
 }
 
-fn run_json(record: &ChangeRecord) -> String {
+fn run_json(record: &ChangeRecord, view: Option<&serde_json::Value>) -> String {
     let value = serde_json::json!({
         "display_unit": record.options.display_unit,
         "options": record.options,
+        "view": view,
         "warnings": record.warnings,
         "decimal_year_convention": "year + (t - Jan 1) / (length of that year); leap years have 366 days",
         "dod_sign": "later minus earlier; positive = deposition (surface raised), negative = erosion (lowered)",

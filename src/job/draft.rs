@@ -273,7 +273,7 @@ pub fn draft(grids: &[PathBuf], job_path: &Path) -> Result<String> {
          #   height: 540\n\
          #   orbit_deg: 0\n\
          # sun:\n\
-         #   azimuth_deg: 315\n\
+         #   azimuth_deg: 315         # default: behind the viewer's left shoulder, turning with the view\n\
          #   altitude_deg: 40\n\
          # water:\n\
          #   level_m: 1.0             # a tidal datum or flood level, same vertical datum as the grids\n\

@@ -20,6 +20,7 @@ use crate::encode::png_seq::PosterOptions;
 use crate::encode::video::VideoOptions;
 use crate::error::{Error, Result};
 use crate::interp::flow::FlowOptions;
+use crate::render::ramp::ElevationRamp;
 use crate::render::{LightOptions, ShellOptions, ViewOptions, WaterOptions};
 use crate::timeline::FramePlan;
 
@@ -152,17 +153,16 @@ pub struct Job {
     pub sun: LightOptions,
     /// Terrain colouring.
     pub colour: ColourBy,
+    /// The ramp of colouring by elevation (also under a drape's gaps).
+    pub elevation_ramp: ElevationRamp,
     /// Water plane.
     pub water: WaterOptions,
     /// Which surface to draw as a translucent shell, if any.
     pub shell_survey: ShellSurvey,
     /// With `ShellSurvey::Grid`: the grid file drawn as the shell (absolute path).
     pub shell_grid: Option<PathBuf>,
-    /// How the shell looks.
+    /// How the shell looks, and from which height gap it shows.
     pub shell: ShellOptions,
-    /// The shell is drawn only where it stands at least this far above the frame's surface, in
-    /// metres (where the two nearly agree, drawing both would only flicker).
-    pub shell_min_gap_m: f64,
     /// Displacement field settings (used by the morph and the migration figures).
     pub flow: FlowOptions,
     /// Which labels to draw.

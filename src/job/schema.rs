@@ -153,6 +153,8 @@ pub(super) struct ColourEntry {
     pub limit_m: Option<f64>,
     /// For `drape`: an RGB GeoTIFF, relative to the job file.
     pub drape: Option<String>,
+    /// For `elevation` (and drape cells outside the image): `sand-coast` or `viridis`.
+    pub ramp: String,
 }
 
 impl Default for ColourEntry {
@@ -162,6 +164,7 @@ impl Default for ColourEntry {
             since: "first".into(),
             limit_m: None,
             drape: None,
+            ramp: "sand-coast".into(),
         }
     }
 }
@@ -179,6 +182,7 @@ pub(super) struct ShellEntry {
     pub opacity: f64,
     #[serde(deserialize_with = "super::length::metres")]
     pub min_gap_m: f64,
+    pub full_gap_m: f64,
 }
 
 impl Default for ShellEntry {
@@ -189,7 +193,8 @@ impl Default for ShellEntry {
             grid: None,
             rgb: d.rgb,
             opacity: d.opacity,
-            min_gap_m: 0.3,
+            min_gap_m: d.min_gap_m,
+            full_gap_m: d.full_gap_m,
         }
     }
 }

@@ -10,6 +10,7 @@ use super::{
 };
 use crate::align::AreaOfInterest;
 use crate::error::{Error, Result};
+use crate::render::ramp::ElevationRamp;
 use crate::render::ShellOptions;
 use crate::timeline::FramePlan;
 
@@ -319,7 +320,9 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
     };
     let default_method = match &f.in_between.method {
         Some(m) => parse_method("in_between.method", m)?,
-        None => Method::Linear,
+        // The morph keeps a moving dune whole; pairs it cannot follow fall back to the linear
+        // blend with a warning (see `run::prepare`).
+        None => Method::Morph,
     };
     let intervals = surveys.len() - 1;
     let methods = match &f.in_between.per_interval {
@@ -348,14 +351,13 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         ));
     }
     let s = &f.sun;
-    if !(s.azimuth_deg >= 0.0 && s.azimuth_deg < 360.0) {
-        return Err(bad(
-            "sun.azimuth_deg",
-            format!(
-                "{} is out of range; use compass degrees in [0, 360)",
-                s.azimuth_deg
-            ),
-        ));
+    if let Some(az) = s.azimuth_deg {
+        if !(0.0..360.0).contains(&az) {
+            return Err(bad(
+                "sun.azimuth_deg",
+                format!("{az} is out of range; use compass degrees in [0, 360), or leave it out for light from behind the viewer's left shoulder"),
+            ));
+        }
     }
     if !(s.altitude_deg > 0.0 && s.altitude_deg <= 90.0) {
         return Err(bad(
@@ -467,15 +469,15 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             ));
         }
     };
-    if !(f.shell.min_gap_m >= 0.0 && f.shell.min_gap_m < 100.0) {
+    let Some(elevation_ramp) = ElevationRamp::from_name(&f.colour.ramp) else {
         return Err(bad(
-            "shell.min_gap_m",
+            "colour.ramp",
             format!(
-                "{} m is out of range; use 0 to 100 m, e.g. 0.3",
-                f.shell.min_gap_m
+                "\"{}\" is not a ramp; use `sand-coast` (natural sand colours) or `viridis`",
+                f.colour.ramp
             ),
         ));
-    }
+    };
     f.flow.validate().map_err(|m| bad("flow", m))?;
     if !f.labels.status {
         return Err(bad(
@@ -518,14 +520,16 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         view: f.view,
         sun: f.sun,
         colour,
+        elevation_ramp,
         water: f.water,
         shell_survey,
         shell_grid,
         shell: ShellOptions {
             rgb: f.shell.rgb,
             opacity: f.shell.opacity,
+            min_gap_m: f.shell.min_gap_m,
+            full_gap_m: f.shell.full_gap_m,
         },
-        shell_min_gap_m: f.shell.min_gap_m,
         flow: f.flow,
         labels: f.labels,
         credit: f.credit,
@@ -719,7 +723,8 @@ mod tests {
         assert_eq!(job.surveys[0].id, "2030-05-01");
         assert_eq!(job.surveys[1].grid, d.path().join("b.tif"));
         assert_eq!(job.frame_plan, FramePlan::PerYear(12.0));
-        assert_eq!(job.methods, vec![Method::Linear]);
+        // The morph is the default in-between method.
+        assert_eq!(job.methods, vec![Method::Morph]);
         assert_eq!(job.output.gif.as_deref(), Some("animation.gif"));
         assert_eq!(job.output.video, None);
         assert_eq!(job.video.quality, 7);

@@ -12,6 +12,11 @@
 //!   exaggeration) to a pixel, for labels; `north_px` and `metres_per_px` serve a north arrow and a
 //!   scale bar.
 //!
+//! Framing: `Renderer::framed(geometry, view, light, range, &Focus, &FreeArea)` fills in the view
+//! keys the job leaves out (exaggeration, target, distance) by the pure functions of `framing.rs`;
+//! `Renderer::new` frames the whole grid. `FrameView::vertical_exaggeration()` and
+//! `Renderer::vertical_exaggeration()` give the value in use.
+//!
 //! Beyond the contract: `Renderer::set_water`, `Renderer::set_shell` and
 //! `Renderer::render_scene_into(surface, shell, colouring, orbit_fraction, frame)` add a water plane,
 //! a translucent second surface and colouring by change (DEM of difference) or by a draped RGB
@@ -34,6 +39,7 @@
 
 mod bands;
 pub mod camera;
+pub mod framing;
 pub mod lod;
 mod options;
 pub mod ramp;
@@ -48,8 +54,10 @@ use crate::grid::GridGeometry;
 use crate::interp::Surface;
 
 pub use camera::Camera;
+pub use framing::{Focus, FreeArea, FREE_AREA};
 pub use options::{
     Colouring, Drape, LightOptions, ShellOptions, ViewOptions, WaterOptions, MAX_FRAME_PX,
+    SUN_FROM_VIEW_DEG,
 };
 
 /// An RGBA image that frames are rendered into, then labelled, then encoded.
@@ -84,9 +92,21 @@ pub struct FrameView {
     unit_m: f64,
     exaggeration: f64,
     target: [f64; 3],
+    sun_azimuth_deg: f64,
 }
 
 impl FrameView {
+    /// The vertical exaggeration this frame is drawn with (the job's, or the automatic choice), for
+    /// the "heights ×N" note.
+    pub fn vertical_exaggeration(&self) -> f64 {
+        self.exaggeration
+    }
+
+    /// Compass azimuth of the sun lighting this frame, degrees in [0, 360).
+    pub fn sun_azimuth_deg(&self) -> f64 {
+        self.sun_azimuth_deg
+    }
+
     fn local(&self, x: f64, y: f64, z_m: f64) -> [f64; 3] {
         [
             (x - self.centre_map.0) * self.unit_m,
@@ -135,11 +155,6 @@ impl FrameView {
         (facing, elevation, horizontal.hypot(d[2]))
     }
 
-    /// The vertical exaggeration this frame was rendered with.
-    pub fn vertical_exaggeration(&self) -> f64 {
-        self.exaggeration
-    }
-
     /// The camera of this frame (local metres about the grid centre; exaggerated heights).
     pub fn camera(&self) -> &Camera {
         &self.camera
@@ -156,9 +171,12 @@ pub struct Renderer {
     shell: ShellOptions,
     range_m: (f32, f32),
     base_m: f32,
+    /// The vertical exaggeration in use (the job's, or the automatic choice).
+    exaggeration: f64,
     target: [f64; 3],
     distance_m: f64,
     level: u32,
+    ramp: ramp::ElevationRamp,
     buffers: scene::Buffers,
 }
 
@@ -175,6 +193,7 @@ fn apply_eye(
     g: &GridGeometry,
     view: &ViewOptions,
     range_m: (f32, f32),
+    k: f64,
 ) -> Result<ViewOptions, String> {
     let Some([ex, ey, ez]) = view.eye else {
         return Ok(view.clone());
@@ -187,7 +206,6 @@ fn apply_eye(
         .target
         .unwrap_or([(west + east) / 2.0, (south + north) / 2.0]);
     let unit = g.horizontal_unit.metres();
-    let k = view.vertical_exaggeration;
     let tz = f64::from(range_m.0 + range_m.1) / 2.0 * k;
     let d = [(tx - ex) * unit, (ty - ey) * unit, tz - ez * k];
     let horiz = (d[0] * d[0] + d[1] * d[1]).sqrt();
@@ -212,7 +230,27 @@ fn apply_eye(
 }
 
 impl Renderer {
-    /// Checks the options against the grid and allocates per-job buffers.
+    /// Checks the options against the grid and allocates per-job buffers; frames the whole grid
+    /// (see [`Renderer::framed`]).
+    ///
+    /// # Errors
+    /// A message naming the option at fault and the fix.
+    pub fn new(
+        geometry: &GridGeometry,
+        view: &ViewOptions,
+        light: &LightOptions,
+        elevation_range_m: (f32, f32),
+    ) -> Result<Renderer, String> {
+        let (lo, hi) = elevation_range_m;
+        let relief = if hi >= lo { f64::from(hi - lo) } else { 0.0 };
+        let focus = Focus::whole(geometry, relief);
+        Renderer::framed(geometry, view, light, elevation_range_m, &focus, &FREE_AREA)
+    }
+
+    /// Checks the options against the grid and allocates per-job buffers. View keys the job leaves
+    /// out are filled in by framing `focus` into the `free` part of the frame: the vertical
+    /// exaggeration by [`framing::auto_exaggeration`], the target (the focus's middle, slid to the
+    /// free area's middle for a fixed view) and the distance by [`framing::fit`].
     ///
     /// # Errors
     /// A message naming the option at fault and the fix.
@@ -221,13 +259,25 @@ impl Renderer {
     /// The frame-sized depth buffer (4 bytes a supersample) and the reduced-level vertex buffers
     /// (at most one vertex per supersample), once; each rayon thread also keeps one band's colour
     /// scratch (12 bytes a supersample of 16 output rows).
-    pub fn new(
+    pub fn framed(
         geometry: &GridGeometry,
         view: &ViewOptions,
         light: &LightOptions,
         elevation_range_m: (f32, f32),
+        focus: &Focus,
+        free: &FreeArea,
     ) -> Result<Renderer, String> {
-        let derived = apply_eye(geometry, view, elevation_range_m)?;
+        if let Some(k) = view.vertical_exaggeration {
+            check(k.is_finite() && k > 0.0 && k <= 100.0, || {
+                format!(
+                    "view.vertical_exaggeration: {k} must be above 0 and at most 100; use 1 for true scale, 2 to 5 to bring out low dunes, or leave it out to have it chosen"
+                )
+            })?;
+        }
+        let k = view.vertical_exaggeration.unwrap_or_else(|| {
+            framing::auto_exaggeration(focus.relief_m, focus.longer_side_m(geometry))
+        });
+        let derived = apply_eye(geometry, view, elevation_range_m, k)?;
         let v = &derived;
         check((1..=MAX_FRAME_PX).contains(&v.width), || {
             format!("view.width: {} is outside 1..={MAX_FRAME_PX}; give the frame width in pixels, e.g. 960", v.width)
@@ -279,17 +329,6 @@ impl Renderer {
             },
         )?;
         check(
-            v.vertical_exaggeration.is_finite()
-                && v.vertical_exaggeration > 0.0
-                && v.vertical_exaggeration <= 100.0,
-            || {
-                format!(
-                    "view.vertical_exaggeration: {} must be above 0 and at most 100; use 1 for true scale, 2 to 5 to bring out low dunes",
-                    v.vertical_exaggeration
-                )
-            },
-        )?;
-        check(
             v.lod_min_cell_px.is_finite() && (0.5..=16.0).contains(&v.lod_min_cell_px),
             || {
                 format!(
@@ -299,12 +338,11 @@ impl Renderer {
             },
         )?;
         let l = light;
-        check(
-            l.azimuth_deg.is_finite() && (0.0..360.0).contains(&l.azimuth_deg),
-            || {
-                format!("light.azimuth_deg: {} is outside [0, 360); give the sun's compass bearing, e.g. 315", l.azimuth_deg)
-            },
-        )?;
+        if let Some(az) = l.azimuth_deg {
+            check(az.is_finite() && (0.0..360.0).contains(&az), || {
+                format!("light.azimuth_deg: {az} is outside [0, 360); give the sun's compass bearing, e.g. 315, or leave it out for light from behind the viewer's left shoulder")
+            })?;
+        }
         check(
             l.altitude_deg.is_finite() && l.altitude_deg > 0.0 && l.altitude_deg <= 90.0,
             || {
@@ -360,12 +398,17 @@ impl Renderer {
             }
             None => lo - 0.2 * (hi - lo) - 1.0,
         };
-        let k = v.vertical_exaggeration;
         let unit = geometry.horizontal_unit.metres();
         let (west, south, east, north) = geometry.extent();
         let (cx, cy) = ((west + east) / 2.0, (south + north) / 2.0);
         let tz = f64::from(range_m.0 + range_m.1) / 2.0 * k;
-        let target = match v.target {
+        let focus_extent = focus.extent(geometry);
+        let focus_centre = [
+            ((focus_extent.0 + focus_extent.2) / 2.0 - cx) * unit,
+            ((focus_extent.1 + focus_extent.3) / 2.0 - cy) * unit,
+            tz,
+        ];
+        let mut target = match v.target {
             Some([x, y]) => {
                 check(
                     x.is_finite()
@@ -380,17 +423,14 @@ impl Renderer {
                 )?;
                 [(x - cx) * unit, (y - cy) * unit, tz]
             }
-            None => [0.0, 0.0, tz],
+            // An eye without a target looks at the grid's centre (as `apply_eye` assumed).
+            None if v.eye.is_some() => [0.0, 0.0, tz],
+            None => focus_centre,
         };
         // Corners of the terrain block, for framing and the inside/under checks.
         let (hw, hh) = ((east - west) / 2.0 * unit, (north - south) / 2.0 * unit);
         let ztop = f64::from(range_m.1) * k;
         let zbot = f64::from(base_m.min(range_m.0)) * k;
-        let corners: Vec<[f64; 3]> = [-hw, hw]
-            .iter()
-            .flat_map(|&x| [-hh, hh].map(move |y| [x, y]))
-            .flat_map(|[x, y]| [[x, y, ztop], [x, y, zbot]])
-            .collect();
         let distance_m = match v.distance_m {
             Some(d) => {
                 check(d.is_finite() && d > 0.0, || {
@@ -421,19 +461,22 @@ impl Renderer {
                 d
             }
             None => {
-                // The largest fit over the orbit keeps the grid in view on every frame.
-                let aspect = f64::from(v.width) / f64::from(v.height);
-                let steps = if v.orbit_deg == 0.0 { 0 } else { 72 };
-                (0..=steps)
-                    .map(|i| {
-                        let yaw = v.facing_deg + v.orbit_deg * i as f64 / 72.0;
-                        let f = camera::view_direction(yaw, v.elevation_deg);
-                        let c = Camera::look_at([0.0; 3], f, yaw, v.fov_deg, 1.0, 1.0);
-                        camera::fit_distance(
-                            &corners, target, c.fwd, c.right, c.up, v.fov_deg, aspect, 0.04,
-                        )
-                    })
-                    .fold(0.0, f64::max)
+                // The focus box (down to the block's base when it is the whole grid) inside the
+                // free area on every step of the orbit.
+                let base = (focus.is_whole(geometry) && v.block_sides).then_some(zbot / k);
+                let range = (f64::from(range_m.0), f64::from(range_m.1));
+                let box_corners = framing::framing_points(geometry, focus, k, range, base);
+                let shot = framing::Shot {
+                    facing_deg: v.facing_deg,
+                    elevation_deg: v.elevation_deg,
+                    fov_deg: v.fov_deg,
+                    orbit_deg: v.orbit_deg,
+                    width: f64::from(v.width),
+                    height: f64::from(v.height),
+                };
+                let f = framing::fit(&box_corners, target, &shot, free, v.target.is_none());
+                target = f.target;
+                f.distance_m
             }
         };
         // Level of detail from the projected cell size at the target, in output pixels (so the
@@ -457,15 +500,20 @@ impl Renderer {
         let buffers = scene::Buffers::new(geometry, v, level);
         Ok(Renderer {
             geometry: geometry.clone(),
-            view: v.clone(),
+            view: ViewOptions {
+                vertical_exaggeration: Some(k),
+                ..v.clone()
+            },
             light: l.clone(),
             water: WaterOptions::default(),
             shell: ShellOptions::default(),
             range_m,
             base_m,
+            exaggeration: k,
             target,
             distance_m,
             level,
+            ramp: ramp::ElevationRamp::default(),
             buffers,
         })
     }
@@ -502,13 +550,61 @@ impl Renderer {
             shell.opacity.is_finite() && (0.0..=1.0).contains(&shell.opacity),
             || {
                 format!(
-                    "shell.opacity: {} is outside 0..=1; e.g. 0.35",
+                    "shell.opacity: {} is outside 0..=1; e.g. 0.5",
                     shell.opacity
+                )
+            },
+        )?;
+        check(
+            shell.min_gap_m.is_finite() && (0.0..100.0).contains(&shell.min_gap_m),
+            || {
+                format!(
+                    "shell.min_gap_m: {} m is out of range; use 0 to 100 m, e.g. 0.3",
+                    shell.min_gap_m
+                )
+            },
+        )?;
+        check(
+            shell.full_gap_m.is_finite()
+                && shell.full_gap_m > shell.min_gap_m
+                && shell.full_gap_m <= 1000.0,
+            || {
+                format!(
+                    "shell.full_gap_m: {} m must be above shell.min_gap_m ({} m) and at most 1000; e.g. 2",
+                    shell.full_gap_m, shell.min_gap_m
                 )
             },
         )?;
         self.shell = shell.clone();
         Ok(())
+    }
+
+    /// Colours elevation on `ramp` from the next frame on.
+    pub fn set_elevation_ramp(&mut self, ramp: ramp::ElevationRamp) {
+        if ramp != self.ramp {
+            self.ramp = ramp;
+            self.buffers.set_elevation_ramp(ramp);
+        }
+    }
+
+    /// The vertical exaggeration in use: the job's, or the automatic choice.
+    pub fn vertical_exaggeration(&self) -> f64 {
+        self.exaggeration
+    }
+
+    /// The framing in use: the target (scene metres about the grid's centre, exaggerated height)
+    /// and the camera's distance from it.
+    pub fn framing(&self) -> framing::Framing {
+        framing::Framing {
+            target: self.target,
+            distance_m: self.distance_m,
+        }
+    }
+
+    /// The view as resolved: the job's keys with the automatic choices filled in (exaggeration;
+    /// distance and target in the scene's metres are in [`Renderer::framing`]).
+    pub fn view(&self) -> &ViewOptions {
+        &self.view
     }
 
     /// The level of detail drawn (0 = every cell; L = blocks of 2^L × 2^L cells).
@@ -549,6 +645,11 @@ impl Renderer {
             orbit_fraction.clamp(0.0, 1.0)
         };
         let yaw = v.facing_deg + v.orbit_deg * f;
+        let sun_azimuth_deg = self
+            .light
+            .azimuth_deg
+            .unwrap_or(yaw + SUN_FROM_VIEW_DEG)
+            .rem_euclid(360.0);
         let dir = camera::view_direction(yaw, v.elevation_deg);
         let d = self.distance_m;
         let t = self.target;
@@ -566,8 +667,9 @@ impl Renderer {
             camera,
             centre_map: ((west + east) / 2.0, (south + north) / 2.0),
             unit_m: self.geometry.horizontal_unit.metres(),
-            exaggeration: v.vertical_exaggeration,
+            exaggeration: self.exaggeration,
             target: t,
+            sun_azimuth_deg,
         }
     }
 }

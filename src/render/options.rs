@@ -4,6 +4,13 @@
 //! "Default: …"; unknown keys are refused. Ranges are checked in `Renderer::new` / `set_water` /
 //! `set_shell`, which name the offending key.
 
+/// Bearing of the default sun relative to the camera's line of sight, degrees (negative = to the
+/// left): light from behind the viewer's left shoulder, which keeps hills reading as hills in a
+/// perspective view (Imhof 1982, REFERENCES.md §17). At 120° rather than 135° the light rakes a
+/// little more across the view, so a dune shows a lit flank on the left and a shaded one on the
+/// right; the design value of this project, common practice, no source.
+pub const SUN_FROM_VIEW_DEG: f64 = -120.0;
+
 /// Largest frame side accepted, in pixels.
 pub const MAX_FRAME_PX: u32 = 8192;
 
@@ -34,8 +41,10 @@ pub struct ViewOptions {
     pub orbit_deg: f64,
     /// Ease the orbit in and out (zero turning speed at the first and last frame). Default: true.
     pub orbit_easing: bool,
-    /// Heights are multiplied by this for display (geometry, normals and shadows alike). Default: 2.
-    pub vertical_exaggeration: f64,
+    /// Heights are multiplied by this for display (geometry, normals and shadows alike), above 0
+    /// and at most 100; absent = chosen from the framed area's relief and size by the rule of
+    /// [`crate::render::framing::auto_exaggeration`] (1 to 5). Default: automatic.
+    pub vertical_exaggeration: Option<f64>,
     /// Anti-aliasing: each pixel is the mean of supersample × supersample samples, 1 to 4. Default: 2.
     pub supersample: u32,
     /// Level of detail: grids are reduced until a cell spans at least this many output pixels at
@@ -67,7 +76,7 @@ impl Default for ViewOptions {
             fov_deg: 40.0,
             orbit_deg: 0.0,
             orbit_easing: true,
-            vertical_exaggeration: 2.0,
+            vertical_exaggeration: None,
             supersample: 2,
             lod_min_cell_px: 2.0,
             block_sides: true,
@@ -95,8 +104,10 @@ impl ViewOptions {
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct LightOptions {
-    /// Sun azimuth, compass degrees clockwise from north, in [0, 360). Default: 315.
-    pub azimuth_deg: f64,
+    /// Sun azimuth, compass degrees clockwise from north, in [0, 360); absent = from behind the
+    /// viewer's left shoulder ([`SUN_FROM_VIEW_DEG`] from the line of sight), turning with the
+    /// camera through an orbit so relief never inverts. Default: behind the viewer's left shoulder.
+    pub azimuth_deg: Option<f64>,
     /// Sun altitude above the horizon in degrees, in (0, 90]. Default: 40.
     pub altitude_deg: f64,
     /// Share of light that reaches every surface regardless of orientation, in [0, 1]. Default: 0.25.
@@ -121,7 +132,7 @@ pub struct LightOptions {
 impl Default for LightOptions {
     fn default() -> Self {
         LightOptions {
-            azimuth_deg: 315.0,
+            azimuth_deg: None,
             altitude_deg: 40.0,
             ambient: 0.25,
             diffuse: 0.85,
@@ -158,21 +169,32 @@ impl Default for WaterOptions {
     }
 }
 
-/// A second surface (an earlier survey, a bedrock grid) drawn as a translucent shell.
+/// A second surface (an earlier survey, a design grid) drawn as a smooth translucent shell where it
+/// stands above the terrain. Both surfaces are smoothed over a few cells first (so survey noise
+/// neither speckles the shell nor punches holes in it), and the shell's opacity grows smoothly with
+/// its height above the terrain, from nothing at `min_gap_m` to `opacity` at `full_gap_m`.
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct ShellOptions {
-    /// Shell colour, sRGB. Default: [235, 235, 240].
+    /// Shell colour, sRGB. Default: [236, 240, 248].
     pub rgb: [u8; 3],
-    /// Opacity of the shell, 0 to 1. Default: 0.35.
+    /// Largest opacity of the shell, 0 to 1. Default: 0.5.
     pub opacity: f64,
+    /// Height gap above the terrain, metres, at which the shell starts to show, 0 to 100.
+    /// Default: 0.3.
+    pub min_gap_m: f64,
+    /// Height gap, metres, from which the shell has its full opacity; above `min_gap_m`.
+    /// Default: 2.
+    pub full_gap_m: f64,
 }
 
 impl Default for ShellOptions {
     fn default() -> Self {
         ShellOptions {
-            rgb: [235, 235, 240],
-            opacity: 0.35,
+            rgb: [236, 240, 248],
+            opacity: 0.5,
+            min_gap_m: 0.3,
+            full_gap_m: 2.0,
         }
     }
 }

@@ -1,6 +1,17 @@
 //! Elevation or change value -> linear-light RGB: the colour ramps, and linear -> sRGB bytes.
 //!
-//! Elevation uses viridis (Smith & van der Walt 2015, the matplotlib default map; REFERENCES.md §10),
+//! Elevation is coloured on one of two ramps ([`ElevationRamp`]), both light so that the shading,
+//! not the colour, carries the form (REFERENCES.md §17: keep the ramp's lightness range modest):
+//!
+//! - `sand-coast` (the default), this project's own natural-colour ramp for sand coasts, from wet
+//!   beach through dry beach and bare sand to vegetated dune and the highest dune sand. Its anchors
+//!   were chosen here (no published source): low saturation (CIE L*a*b* chroma at most 23), CIE L*
+//!   rising from about 75 to 92, so its luminance spans less than 1.8:1 while the default light
+//!   makes lit and shaded 30° slopes differ by more than 2:1.
+//! - `viridis`, a lighter treatment of viridis: each sRGB component `c` becomes `0.55 + 0.45·c`, which
+//!   keeps its order of hues and rising lightness but lifts the dark violet end.
+//!
+//! Viridis (Smith & van der Walt 2015, the matplotlib default map; REFERENCES.md §10) is
 //! perceptually uniform and readable with the common colour-vision deficiencies. It is rebuilt here
 //! from nine anchors of the published 256-entry table, joined linearly in sRGB; the end anchors are
 //! the REFERENCES.md §10 values, the seven inner ones are from memory. Change (DEM of difference)
@@ -22,6 +33,19 @@ const VIRIDIS: [(f32, [f32; 3]); 9] = [
     (224.0 / 255.0, [0.741388, 0.873449, 0.149561]),
     (1.0, [0.993248, 0.906157, 0.143936]),
 ];
+
+/// Sand-coast anchors `(position, sRGB 0-255)`, this project's own: wet beach, dry beach, bare sand,
+/// vegetated dune, highest dune sand. Positions are shares of the animation's elevation range.
+const SAND_COAST: [(f32, [u8; 3]); 5] = [
+    (0.0, [190, 183, 164]),
+    (0.15, [206, 194, 162]),
+    (0.40, [222, 206, 166]),
+    (0.70, [212, 218, 176]),
+    (1.0, [236, 231, 208]),
+];
+
+/// Share of the sRGB scale kept by the light treatment of viridis (the rest is a lift toward white).
+const VIRIDIS_LIGHT_KEEP: f32 = 0.45;
 
 /// RdBu-like diverging anchors, erosion (negative, red) to deposition (positive, blue), sRGB 0-255.
 const DIVERGING: [[u8; 3]; 11] = [
@@ -74,6 +98,60 @@ pub fn viridis_srgb(t: f32) -> [f32; 3] {
     [0, 1, 2].map(|k| c0[k] + (c1[k] - c0[k]) * f)
 }
 
+/// The sand-coast ramp at `t` in [0, 1], as sRGB components in [0, 1].
+pub fn sand_coast_srgb(t: f32) -> [f32; 3] {
+    let t = t.clamp(0.0, 1.0);
+    let i = SAND_COAST
+        .iter()
+        .position(|a| a.0 >= t)
+        .unwrap_or(SAND_COAST.len() - 1)
+        .max(1);
+    let (t0, c0) = SAND_COAST[i - 1];
+    let (t1, c1) = SAND_COAST[i];
+    let f = ((t - t0) / (t1 - t0)).clamp(0.0, 1.0);
+    [0, 1, 2].map(|k| (f32::from(c0[k]) + (f32::from(c1[k]) - f32::from(c0[k])) * f) / 255.0)
+}
+
+/// The light treatment of viridis at `t` in [0, 1], as sRGB components in [0, 1].
+pub fn viridis_light_srgb(t: f32) -> [f32; 3] {
+    viridis_srgb(t).map(|c| 1.0 - VIRIDIS_LIGHT_KEEP + VIRIDIS_LIGHT_KEEP * c)
+}
+
+/// The ramp that colours the terrain by elevation.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ElevationRamp {
+    /// Natural colours of a sand coast (wet beach to vegetated dune), light and low in saturation.
+    #[default]
+    SandCoast,
+    /// A lighter treatment of viridis.
+    Viridis,
+}
+
+impl ElevationRamp {
+    /// The name used in job files.
+    pub fn name(self) -> &'static str {
+        match self {
+            ElevationRamp::SandCoast => "sand-coast",
+            ElevationRamp::Viridis => "viridis",
+        }
+    }
+    /// The ramp named `name` in a job file, if there is one.
+    pub fn from_name(name: &str) -> Option<ElevationRamp> {
+        match name {
+            "sand-coast" => Some(ElevationRamp::SandCoast),
+            "viridis" => Some(ElevationRamp::Viridis),
+            _ => None,
+        }
+    }
+    /// The ramp at `t` in [0, 1], as sRGB components in [0, 1] (for tables and legends).
+    pub fn srgb(self, t: f32) -> [f32; 3] {
+        match self {
+            ElevationRamp::SandCoast => sand_coast_srgb(t),
+            ElevationRamp::Viridis => viridis_light_srgb(t),
+        }
+    }
+}
+
 /// The diverging change ramp at `t` in [-1, 1] (0 = no change), as sRGB components in [0, 1].
 pub fn diverging_srgb(t: f32) -> [f32; 3] {
     let x = (t.clamp(-1.0, 1.0) + 1.0) * 0.5 * (DIVERGING.len() - 1) as f32;
@@ -98,9 +176,13 @@ impl Ramp {
             .collect();
         Ramp { table }
     }
-    /// The elevation ramp (viridis).
+    /// The default elevation ramp ([`ElevationRamp::SandCoast`]).
     pub fn elevation() -> Ramp {
-        Ramp::from_srgb(viridis_srgb)
+        Ramp::elevation_on(ElevationRamp::default())
+    }
+    /// An elevation ramp.
+    pub fn elevation_on(ramp: ElevationRamp) -> Ramp {
+        Ramp::from_srgb(|t| ramp.srgb(t))
     }
     /// The change ramp (diverging, zero at the middle entry's edge) over [0, 1] = [-max, +max].
     pub fn change() -> Ramp {
@@ -165,6 +247,56 @@ mod tests {
             assert!(y > last, "luma not rising at {i}");
             last = y;
         }
+    }
+
+    /// Rec. 709 relative luminance of an sRGB colour (linear light).
+    fn luminance(c: [f32; 3]) -> f32 {
+        let l = c.map(srgb_to_linear);
+        0.2126 * l[0] + 0.7152 * l[1] + 0.0722 * l[2]
+    }
+
+    #[test]
+    fn elevation_ramps_are_light_and_rise_in_lightness() {
+        for ramp in [ElevationRamp::SandCoast, ElevationRamp::Viridis] {
+            let ys: Vec<f32> = (0..=100)
+                .map(|i| luminance(ramp.srgb(i as f32 / 100.0)))
+                .collect();
+            // Lightness rises monotonically, so the ramp also reads in grey; Rec. 709 luminance as
+            // the measure, common practice, no source.
+            assert!(ys.windows(2).all(|w| w[1] > w[0]), "{}", ramp.name());
+            let (lo, hi) = (ys[0], ys[100]);
+            // Check: Imhof (1982), REFERENCES.md §17 — the ramp's lightness range stays modest so
+            // shading carries the form; the bounds (1.8:1 sand coast, 3.5:1 light viridis, darkest
+            // above 0.2) are this project's design values, common practice, no source.
+            let most = if ramp == ElevationRamp::SandCoast {
+                1.8
+            } else {
+                3.5
+            };
+            assert!(hi / lo < most && lo > 0.2, "{}: {lo} .. {hi}", ramp.name());
+        }
+        // The light viridis keeps viridis's ends in order: violet-grey low, yellow high.
+        let (a, b) = (viridis_light_srgb(0.0), viridis_light_srgb(1.0));
+        assert!(a[2] > a[1] && b[0] > b[2]);
+        // The sand coast ramp is low in saturation: max − min component below 0.25 everywhere.
+        for i in 0..=100 {
+            let c = sand_coast_srgb(i as f32 / 100.0);
+            let spread = c.iter().cloned().fold(f32::MIN, f32::max)
+                - c.iter().cloned().fold(f32::MAX, f32::min);
+            assert!(spread < 0.25, "{i}: {c:?}");
+        }
+        // End anchors as designed (wet beach, highest dune sand).
+        let to8 = |c: [f32; 3]| c.map(|v| (v * 255.0).round() as u8);
+        assert_eq!(to8(sand_coast_srgb(0.0)), [190, 183, 164]);
+        assert_eq!(to8(sand_coast_srgb(1.0)), [236, 231, 208]);
+        assert_eq!(
+            ElevationRamp::from_name("sand-coast"),
+            Some(ElevationRamp::SandCoast)
+        );
+        assert_eq!(
+            ElevationRamp::from_name("viridis").map(|r| r.name()),
+            Some("viridis")
+        );
     }
 
     #[test]

@@ -24,6 +24,9 @@ pub struct Vert {
     pub iz: f32,
     /// Linear RGB.
     pub rgb: [f32; 3],
+    /// Opacity, 0 to 1: read only by translucent layers ([`draw_triangle_layer`]); opaque
+    /// surfaces leave it at 1.
+    pub a: f32,
 }
 
 impl Default for Vert {
@@ -33,6 +36,7 @@ impl Default for Vert {
             y: f32::NAN,
             iz: 0.0,
             rgb: [0.0; 3],
+            a: 1.0,
         }
     }
 }
@@ -128,8 +132,10 @@ pub fn draw_triangle(band: &mut Band, a: &Vert, b: &Vert, c: &Vert, two_sided: b
     }
 }
 
-/// Draws a front-facing triangle into a separate layer (its own colour and depth) but only where it
-/// is nearer than the opaque depth `under`: used for translucent surfaces, composited once later.
+/// Draws a front-facing triangle into a separate layer (its own colour and opacity, 4 floats a
+/// pixel in `band.rgb`, and depth) but only where it is nearer than the opaque depth `under`: used
+/// for translucent surfaces, composited once later. Colour and opacity are interpolated like the
+/// colour of [`draw_triangle`].
 #[inline]
 #[allow(clippy::neg_cmp_op_on_partial_ord)] // `!(a > 0)` also rejects NaN
 pub fn draw_triangle_layer(band: &mut Band, under: &[f32], a: &Vert, b: &Vert, c: &Vert) {
@@ -156,8 +162,9 @@ pub fn draw_triangle_layer(band: &mut Band, under: &[f32], a: &Vert, b: &Vert, c
                 if iz > band.depth[i] && iz > under[i] {
                     band.depth[i] = iz;
                     for k in 0..3 {
-                        band.rgb[i * 3 + k] = la * a.rgb[k] + lb * b.rgb[k] + lc * c.rgb[k];
+                        band.rgb[i * 4 + k] = la * a.rgb[k] + lb * b.rgb[k] + lc * c.rgb[k];
                     }
+                    band.rgb[i * 4 + 3] = la * a.a + lb * b.a + lc * c.a;
                 }
             }
         }
@@ -174,6 +181,7 @@ mod tests {
             y,
             iz,
             rgb: [g, g, g],
+            a: 1.0,
         }
     }
 

@@ -54,7 +54,13 @@ pub(super) fn build_sides(
         let bottom = side_lin.map(|c| c * shade * 0.55);
         let base = |p: [f32; 2], rgb: [f32; 3]| {
             let (x, y, iz) = cam.project([p[0], p[1], base_k]);
-            Vert { x, y, iz, rgb }
+            Vert {
+                x,
+                y,
+                iz,
+                rgb,
+                a: 1.0,
+            }
         };
         let v = [
             Vert { rgb: top, ..va },

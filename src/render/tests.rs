@@ -55,7 +55,7 @@ fn flat_plane_shades_to_sine_of_altitude_from_any_azimuth() {
     let mut seen = Vec::new();
     for az in [0.0, 90.0, 200.0, 315.0] {
         let light = LightOptions {
-            azimuth_deg: az,
+            azimuth_deg: Some(az),
             altitude_deg: 30.0,
             ambient: 0.0,
             diffuse: 1.0,
@@ -97,7 +97,7 @@ fn tall_block_hides_what_is_behind_it() {
     let view = ViewOptions {
         facing_deg: 0.0,
         elevation_deg: 30.0,
-        vertical_exaggeration: 1.0,
+        vertical_exaggeration: Some(1.0),
         ..plain_view()
     };
     let light = LightOptions::default();
@@ -140,10 +140,16 @@ fn nodata_is_not_drawn() {
     };
     let mut r = Renderer::new(&s.geometry, &view, &LightOptions::default(), (0.0, 10.0)).unwrap();
     let mut f = Frame::new(96, 64);
-    r.render_into(&s, 0.0, &mut f);
-    assert_eq!(r.depth_at(48, 32), 0.0, "the hole shows the sky");
+    let fv = r.render_into(&s, 0.0, &mut f);
+    let at = |row: usize, col: usize| {
+        let (x, y) = s.geometry.cell_center(row, col);
+        let (c, r) = fv.project(x, y, 5.0).unwrap();
+        (c as usize, r as usize)
+    };
+    let (hole, north, west) = (at(20, 20), at(5, 20), at(20, 5));
+    assert_eq!(r.depth_at(hole.0, hole.1), 0.0, "the hole shows the sky");
     assert!(
-        r.depth_at(48, 14) > 0.0 && r.depth_at(30, 32) > 0.0,
+        r.depth_at(north.0, north.1) > 0.0 && r.depth_at(west.0, west.1) > 0.0,
         "the ground around it is drawn"
     );
 }
@@ -151,14 +157,16 @@ fn nodata_is_not_drawn() {
 #[test]
 fn frame_view_gives_target_north_and_scale() {
     let s = synthetic_dunes(64, 64, 2.0);
+    let (w, so, e, n) = s.geometry.extent();
+    // A target given in the job is looked at as given (not slid to the free area's middle).
     let view = ViewOptions {
         facing_deg: 0.0,
+        target: Some([(w + e) / 2.0, (so + n) / 2.0]),
         ..plain_view()
     };
     let mut r = Renderer::new(&s.geometry, &view, &LightOptions::default(), (0.0, 15.0)).unwrap();
     let mut f = Frame::new(96, 64);
     let fv = r.render_into(&s, 0.0, &mut f);
-    let (w, so, e, n) = s.geometry.extent();
     // Check: analytic — the target (grid centre at mid elevation ×k) projects to the frame centre.
     let (c, row) = fv.project((w + e) / 2.0, (so + n) / 2.0, 7.5).unwrap();
     assert!((c - 48.0).abs() < 1e-3 && (row - 32.0).abs() < 1e-3);
@@ -213,7 +221,7 @@ fn bad_options_are_refused_with_the_option_named() {
         ),
         (
             ViewOptions {
-                vertical_exaggeration: 0.0,
+                vertical_exaggeration: Some(0.0),
                 ..v.clone()
             },
             l.clone(),
@@ -221,7 +229,7 @@ fn bad_options_are_refused_with_the_option_named() {
         ),
         (
             ViewOptions {
-                vertical_exaggeration: -1.0,
+                vertical_exaggeration: Some(-1.0),
                 ..v.clone()
             },
             l.clone(),
@@ -286,7 +294,7 @@ fn bad_options_are_refused_with_the_option_named() {
         (
             v.clone(),
             LightOptions {
-                azimuth_deg: 360.0,
+                azimuth_deg: Some(360.0),
                 ..l.clone()
             },
             "light.azimuth_deg",
@@ -332,6 +340,7 @@ fn eye_position_sets_the_view() {
     // Eye 300 m south of the centre and 300 m above the target (mid elevation 7.5 m × k 2 = 15 m).
     let view = ViewOptions {
         eye: Some([cx, cy - 300.0, (300.0 + 15.0) / 2.0]),
+        vertical_exaggeration: Some(2.0),
         ..plain_view()
     };
     let mut r = Renderer::new(&s.geometry, &view, &LightOptions::default(), (0.0, 15.0)).unwrap();
@@ -378,7 +387,7 @@ fn hollows_are_darkened_only_when_asked() {
     let s = surface(z, 1.0);
     let view = ViewOptions {
         elevation_deg: 90.0,
-        vertical_exaggeration: 1.0,
+        vertical_exaggeration: Some(1.0),
         ..plain_view()
     };
     let ambient_only = LightOptions {

@@ -124,12 +124,8 @@ impl<'a> Painter<'a> {
                 .map(|i| stack.z(i)),
         };
         if let Some(z) = shell_z {
-            shell_cells_into(
-                &mut self.shell.z,
-                z,
-                &self.surface.z,
-                job.shell_min_gap_m as f32,
-            );
+            // The renderer fades the shell in with its height above the surface.
+            self.shell.z.assign(z);
         }
         let shell = shell_z.map(|_| &self.shell);
         let colouring = match (self.change_colour, &job.colour) {
@@ -244,7 +240,7 @@ fn legend(job: &Job, stack: &AlignedStack, change_limit_m: Option<f64>) -> Legen
             Legend {
                 title: "Elevation".into(),
                 stops: (0..16)
-                    .map(|i| bytes(ramp::viridis_srgb(i as f32 / 15.0)))
+                    .map(|i| bytes(job.elevation_ramp.srgb(i as f32 / 15.0)))
                     .collect(),
                 min: lo as f64 / unit.metres(),
                 max: hi as f64 / unit.metres(),
@@ -312,22 +308,6 @@ fn largest_change_m(stack: &AlignedStack, since: ShellSurvey) -> f64 {
     most as f64
 }
 
-/// Keeps the shell's cells that stand at least `min_gap_m` above the surface; the rest become
-/// nodata, so the shell shows where sand used to be and never flickers against the surface.
-fn shell_cells_into(
-    out: &mut ndarray::Array2<f32>,
-    shell: &ndarray::Array2<f32>,
-    surface: &ndarray::Array2<f32>,
-    min_gap_m: f32,
-) {
-    ndarray::Zip::from(out)
-        .and(shell)
-        .and(surface)
-        .for_each(|o, &s, &z| {
-            *o = if s - z >= min_gap_m { s } else { f32::NAN };
-        });
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -341,15 +321,5 @@ mod tests {
         assert_eq!(earlier_survey(ShellSurvey::Previous, between), Some(2));
         assert_eq!(earlier_survey(ShellSurvey::Previous, m(3)), Some(2));
         assert_eq!(earlier_survey(ShellSurvey::Previous, m(0)), None);
-    }
-
-    #[test]
-    fn shell_keeps_only_cells_clearly_above_the_surface() {
-        let shell = ndarray::arr2(&[[5.0f32, 5.0, f32::NAN]]);
-        let surface = ndarray::arr2(&[[4.0f32, 4.9, 1.0]]);
-        let mut out = ndarray::Array2::zeros((1, 3));
-        shell_cells_into(&mut out, &shell, &surface, 0.3);
-        assert_eq!(out[[0, 0]], 5.0);
-        assert!(out[[0, 1]].is_nan() && out[[0, 2]].is_nan());
     }
 }

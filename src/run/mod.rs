@@ -32,7 +32,7 @@ use crate::geotiff;
 use crate::grid::GridGeometry;
 use crate::interp::flow::{self, FlowResult};
 use crate::job::{ColourBy, Job, Method};
-use crate::render::{Drape, Renderer};
+use crate::render::{framing, Drape, Focus, Renderer, FREE_AREA};
 use crate::survey;
 use crate::timeline::{self, Timeline};
 
@@ -154,6 +154,8 @@ pub(super) struct Prepared {
     pub(super) stack: AlignedStack,
     pub(super) timeline: Timeline,
     pub(super) renderer: Renderer,
+    /// The area framed when the job sets no distance.
+    pub(super) focus: Focus,
     pub(super) record: ChangeRecord,
     /// Per interval: the displacement field when the morph may use it (trusted), else None.
     pub(super) fields: Vec<Option<FlowResult>>,
@@ -189,11 +191,14 @@ fn prepare(job: &Job) -> Result<Prepared> {
     clock.lap("co-register");
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
     let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
+    let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
+    clock.lap("change record");
     let Scene {
         renderer,
+        focus,
         shell_grid,
         drape,
-    } = scene(job, &stack)?;
+    } = scene(job, &stack, &record)?;
     let frame_bytes = job.view.width as usize * job.view.height as usize * 4;
     if job.output.gif.is_some() && frame_bytes * timeline.frames.len() > FRAME_MEMORY_BUDGET {
         return Err(Error::job(
@@ -210,8 +215,6 @@ fn prepare(job: &Job) -> Result<Prepared> {
         ));
     }
     clock.lap("renderer, shell, drape");
-    let mut record = change::record(&stack, &job.change).map_err(|e| in_job_file(e, &job.path))?;
-    clock.lap("change record");
     let mut warnings = unit_warnings;
     warnings.extend(series::reprojection_warnings(&stack, &reprojections));
     warnings.extend(coreg_warnings);
@@ -257,6 +260,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         stack,
         timeline,
         renderer,
+        focus,
         record,
         fields,
         shell_grid,
@@ -269,16 +273,42 @@ fn prepare(job: &Job) -> Result<Prepared> {
 /// The renderer and what it draws besides the surveys, checked against the stack.
 pub(super) struct Scene {
     pub(super) renderer: Renderer,
+    /// What the camera frames (the landforms that change, or the whole grid).
+    pub(super) focus: Focus,
     pub(super) shell_grid: Option<ndarray::Array2<f32>>,
     pub(super) drape: Option<Drape>,
 }
 
-pub(super) fn scene(job: &Job, stack: &AlignedStack) -> Result<Scene> {
+/// The record's levels of detection decide what the camera frames, so the record comes first.
+pub(super) fn scene(job: &Job, stack: &AlignedStack, record: &ChangeRecord) -> Result<Scene> {
     let range = stack
         .elevation_range()
         .expect("align refuses all-nodata grids");
-    let mut renderer = Renderer::new(stack.geometry(), &job.view, &job.sun, range)
-        .map_err(|m| keyed_job_error(&job.path, "view", m))?;
+    let focus = focus_of(stack, record);
+    let mut renderer = Renderer::framed(
+        stack.geometry(),
+        &job.view,
+        &job.sun,
+        range,
+        &focus,
+        &FREE_AREA,
+    )
+    .map_err(|m| keyed_job_error(&job.path, "view", m))?;
+    renderer.set_elevation_ramp(job.elevation_ramp);
+    log::info!(
+        "view: vertical exaggeration {}{}, framing rows {}..{} and columns {}..{} (relief {:.1} m)",
+        renderer.vertical_exaggeration(),
+        if job.view.vertical_exaggeration.is_none() {
+            " (automatic)"
+        } else {
+            ""
+        },
+        focus.row0,
+        focus.row1,
+        focus.col0,
+        focus.col1,
+        focus.relief_m
+    );
     renderer
         .set_water(&job.water)
         .map_err(|m| keyed_job_error(&job.path, "water", m))?;
@@ -295,6 +325,7 @@ pub(super) fn scene(job: &Job, stack: &AlignedStack) -> Result<Scene> {
     };
     Ok(Scene {
         renderer,
+        focus,
         shell_grid,
         drape,
     })
@@ -304,6 +335,56 @@ pub(super) fn scene(job: &Job, stack: &AlignedStack) -> Result<Scene> {
 pub(super) fn pair_field(job: &Job, stack: &AlignedStack, i: usize) -> FlowResult {
     let cell_m = stack.geometry().cell_x_m();
     flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE)
+}
+
+/// How the frames were drawn, for `run.json`: the exaggeration used and whether it was chosen, the
+/// framed area and the camera's target and distance, the sun and the ramp.
+pub(super) fn view_as_run(
+    job: &Job,
+    stack: &AlignedStack,
+    renderer: &Renderer,
+    focus: &Focus,
+) -> serde_json::Value {
+    let g = stack.geometry();
+    let (west, south, east, north) = focus.extent(g);
+    let f = renderer.framing();
+    let (gw, gs, ge, gn) = g.extent();
+    let unit = g.horizontal_unit.metres();
+    let k = renderer.vertical_exaggeration();
+    serde_json::json!({
+        "vertical_exaggeration": k,
+        "vertical_exaggeration_source": if job.view.vertical_exaggeration.is_some() { "job" } else { "automatic" },
+        "vertical_exaggeration_rule": format!(
+            "exaggerated relief = {} x the framed area's longer side, rounded to 0.5, kept in {}..{}",
+            framing::AUTO_RELIEF_SHARE, framing::AUTO_EXAGGERATION_RANGE.0, framing::AUTO_EXAGGERATION_RANGE.1
+        ),
+        "framed_area_crs": { "west": west, "south": south, "east": east, "north": north },
+        "framed_area_relief_m": focus.relief_m,
+        "framed_area_is_whole_grid": focus.is_whole(g),
+        "camera_target_crs": [(gw + ge) / 2.0 + f.target[0] / unit, (gs + gn) / 2.0 + f.target[1] / unit, f.target[2] / k],
+        "camera_distance_m": f.distance_m,
+        "facing_deg": job.view.facing_deg,
+        "elevation_deg": job.view.elevation_deg,
+        "orbit_deg": job.view.orbit_deg,
+        "sun_azimuth_deg": job.sun.azimuth_deg.map_or_else(
+            || serde_json::json!(format!("follows the view: {} deg from the line of sight", crate::render::SUN_FROM_VIEW_DEG)),
+            |a| serde_json::json!(a),
+        ),
+        "sun_altitude_deg": job.sun.altitude_deg,
+        "elevation_ramp": job.elevation_ramp.name(),
+    })
+}
+
+/// The area the camera frames when the job sets no distance: where the surveys change beyond the
+/// level of detection of the record's pairs (see `render::framing::focus_of_change`).
+pub fn focus_of(stack: &AlignedStack, record: &ChangeRecord) -> Focus {
+    let surfaces: Vec<_> = (0..stack.len()).map(|i| stack.z(i)).collect();
+    let pairs: Vec<_> = record
+        .pairs
+        .iter()
+        .map(|p| (p.from_index, p.to_index, p.lod_m))
+        .collect();
+    framing::focus_of_change(stack.geometry(), &surfaces, &pairs)
 }
 
 /// Wall-clock time of each stage of a run, for `-v` and the benchmarks. Kept out of the record on

@@ -29,6 +29,7 @@ pub(super) fn write_outputs(
         stack,
         timeline,
         mut renderer,
+        focus,
         record,
         fields,
         shell_grid,
@@ -281,6 +282,7 @@ pub(super) fn write_outputs(
             overwrite,
             bagging_date: None,
             protected: super::protected(job),
+            view: Some(super::view_as_run(job, &stack, &renderer, &focus)),
         },
     )?;
     clock.lap("archive and checksums");

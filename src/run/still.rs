@@ -163,13 +163,14 @@ pub fn still(job: &Job, opts: &StillOptions) -> Result<StillReport> {
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();
     let timeline = timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s);
     let (t, orbit) = frame_at(&timeline, &stack, opts.at);
+    let record =
+        change::record(&stack, &job.change).map_err(|e| super::in_job_file(e, &job.path))?;
     let Scene {
         mut renderer,
         shell_grid,
         drape,
-    } = scene(job, &stack)?;
-    let record =
-        change::record(&stack, &job.change).map_err(|e| super::in_job_file(e, &job.path))?;
+        ..
+    } = scene(job, &stack, &record)?;
     // Only the field of the frame's own interval, and only when that interval morphs.
     let mut fields: Vec<Option<FlowResult>> = (0..stack.len() - 1).map(|_| None).collect();
     if let FrameKind::Interpolated { from, .. } = t.kind {
@@ -224,7 +225,7 @@ pub fn still(job: &Job, opts: &StillOptions) -> Result<StillReport> {
                 vj.view.orbit_deg = 0.0;
                 let Scene {
                     renderer: mut r, ..
-                } = scene(&vj, &stack)?;
+                } = scene(&vj, &stack, &record)?;
                 let mut f = Frame::new(job.view.width, job.view.height);
                 painter.paint(&mut r, &t, 0.0, &mut f);
                 let line = view_line(r.frame_view(0.0).view_values());

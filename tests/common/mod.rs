@@ -202,6 +202,8 @@ pub fn series_survey(
         let (e, n) = (c as f64 + 0.5 - east_m, -(r as f64 + 0.5) - north_m);
         (series_surface(e, n, after) + dz_m + rng.normal(sigma_m)) as f32
     })
+}
+
 /// Seeded normal noise: SplitMix64 (Steele, Lea & Flood 2014, from memory) and the sum of twelve
 /// uniforms minus six (variance 1; common practice, no source). Same numbers on every machine.
 pub struct Noise(pub u64);
@@ -244,4 +246,51 @@ pub fn noisy_series_job(dir: &Path, sigma_m: f64, extra_yaml: &str) -> PathBuf {
     let path = dir.join("job.yaml");
     std::fs::write(&path, job).unwrap();
     path
+}
+
+/// A seeded source of normal deviates (Box–Muller on a 64-bit linear congruential generator with
+/// Knuth's MMIX constants): the same seed gives the same numbers on every machine.
+pub struct SeededNoise(u64);
+
+impl SeededNoise {
+    /// A generator started at `seed`.
+    pub fn new(seed: u64) -> Self {
+        SeededNoise(seed)
+    }
+
+    fn uniform(&mut self) -> f64 {
+        self.0 = self
+            .0
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        ((self.0 >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    }
+
+    /// One deviate of mean 0 and standard deviation `sigma`.
+    pub fn normal(&mut self, sigma: f64) -> f64 {
+        let (a, b) = (self.uniform(), self.uniform());
+        sigma * (-2.0 * a.ln()).sqrt() * (std::f64::consts::TAU * b).cos()
+    }
+}
+
+/// A synthetic coastal survey: a beach rising gently from the south edge (0 m) inland at 1:40,
+/// a Gaussian dune of height `h` m and spread `sigma` cells centred at (`cx`, `cy`) cells, and
+/// seeded random survey noise of standard deviation `noise_m` on every cell.
+#[allow(clippy::too_many_arguments)]
+pub fn noisy_dune(
+    g: &GridGeometry,
+    cx: f64,
+    cy: f64,
+    h: f64,
+    sigma: f64,
+    noise_m: f64,
+    seed: u64,
+) -> Array2<f32> {
+    let mut noise = SeededNoise::new(seed);
+    Array2::from_shape_fn((g.rows, g.cols), |(r, c)| {
+        let (dx, dy) = (c as f64 - cx, r as f64 - cy);
+        let beach = (g.rows - 1 - r) as f64 * g.cell_y / 40.0;
+        let dune = h * (-(dx * dx + dy * dy) / (2.0 * sigma * sigma)).exp();
+        (beach + dune + noise.normal(noise_m)) as f32
+    })
 }
