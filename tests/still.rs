@@ -55,7 +55,7 @@ fn still_matches_the_rendered_frames_and_the_crest_ignores_noise() {
         report
             .warnings
             .iter()
-            .all(|w| !w.contains("no reliable displacement")),
+            .all(|w| !w.contains("linear blend instead")),
         "{:?}",
         report.warnings
     );
