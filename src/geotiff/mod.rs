@@ -11,6 +11,7 @@ mod keys;
 mod read;
 mod rgb;
 mod sample;
+mod structure;
 mod units;
 mod write;
 

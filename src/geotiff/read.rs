@@ -6,7 +6,7 @@
 //! cell: float32 files in metres are converted in place in the decoded buffer.
 
 use std::fs::File;
-use std::io::{BufReader, ErrorKind};
+use std::io::{BufReader, ErrorKind, Seek};
 use std::path::Path;
 
 use ndarray::Array2;
@@ -17,6 +17,7 @@ use tiff::{TiffError, TiffFormatError};
 use super::georef::{self, ModelTags};
 use super::keys::GeoKeys;
 use super::sample::to_metres;
+use super::structure;
 use super::units::{self, Units};
 use crate::error::{Error, Result};
 use crate::grid::{Grid, GridGeometry, LinearUnit, UnitSource};
@@ -165,11 +166,27 @@ pub fn read_grid_as(path: &Path, stated: StatedUnits) -> Result<(Grid, GridSourc
 pub(super) type Reader = Decoder<BufReader<File>>;
 
 /// Opens a TIFF with this reader's size limits; `fix_missing` ends the message for a missing file.
+///
+/// The header and first IFD are checked against the file's length first (`structure`), so the
+/// decoder never reserves more than the file's stored bytes can expand to.
 pub(super) fn open(path: &Path, fix_missing: &str) -> Result<Reader> {
-    let file = File::open(path).map_err(|e| match e.kind() {
+    let mut file = File::open(path).map_err(|e| match e.kind() {
         ErrorKind::NotFound => Error::input(path, format!("file not found; {fix_missing}")),
         _ => Error::io(path, e),
     })?;
+    let len = file.metadata().map_err(|e| Error::io(path, e))?.len();
+    {
+        let mut probe = BufReader::with_capacity(8 << 10, &mut file);
+        if let Some(c) = structure::check(&mut probe, len).map_err(|m| Error::input(path, m))? {
+            log::debug!(
+                "{}: {} bytes of pixel data for {} declared",
+                path.display(),
+                c.stored_bytes,
+                c.declared_bytes
+            );
+        }
+    }
+    file.rewind().map_err(|e| Error::io(path, e))?;
     let limits = {
         let mut l = Limits::default();
         let max = usize::try_from(MAX_DECODED_BYTES).unwrap_or(usize::MAX);
@@ -312,7 +329,7 @@ pub(super) fn short_tag<R: std::io::Read + std::io::Seek>(
 ) -> Result<Option<u16>, String> {
     let values: Option<Vec<u16>> = dec
         .find_tag_unsigned_vec(tag)
-        .map_err(|e| format!("tag {tag:?} cannot be read ({e}); the file is damaged"))?;
+        .map_err(|e| format!("tag {tag:?} cannot be read ({}); the file is damaged, export or copy it again", brief(e)))?;
     match values.as_deref() {
         None | Some([]) => Ok(None),
         Some([first, rest @ ..]) => {
@@ -320,7 +337,7 @@ pub(super) fn short_tag<R: std::io::Read + std::io::Seek>(
                 && matches!(tag, Tag::BitsPerSample | Tag::SampleFormat)
             {
                 return Err(format!(
-                    "bands differ in {tag:?} ({values:?}); write band 1 alone as a single-band GeoTIFF"
+                    "bands differ in {tag:?} ({}); write band 1 alone as a single-band GeoTIFF", brief(format!("{values:?}"))
                 ));
             }
             Ok(Some(*first))
@@ -333,7 +350,7 @@ fn f64_tag<R: std::io::Read + std::io::Seek>(
     tag: Tag,
     name: &str,
 ) -> Result<Option<Vec<f64>>, String> {
-    let bad = |e: TiffError| format!("{name} cannot be read ({e}); write the GeoTIFF again");
+    let bad = |e: TiffError| format!("{name} cannot be read ({}); write the GeoTIFF again", brief(e));
     match dec.find_tag(tag).map_err(bad)? {
         None => Ok(None),
         Some(v) => v.into_f64_vec().map(Some).map_err(bad),
@@ -350,7 +367,7 @@ fn read_keys<R: std::io::Read + std::io::Seek>(dec: &mut Decoder<R>) -> Result<G
         Err(e) => Err(e),
     }
     .map_err(|e| {
-        format!("GeoKeyDirectory (tag 34735) cannot be read ({e}); write the GeoTIFF again")
+        format!("GeoKeyDirectory (tag 34735) cannot be read ({}); write the GeoTIFF again", brief(e))
     })?;
     let doubles =
         f64_tag(dec, Tag::GeoDoubleParamsTag, "GeoDoubleParams (tag 34736)")?.unwrap_or_default();
@@ -368,12 +385,16 @@ fn read_nodata<R: std::io::Read + std::io::Seek>(
         Ok(None) => return Ok(None),
         Ok(Some(Value::Ascii(s))) => s,
         Ok(Some(other)) => {
+            let what = match other {
+                Value::List(v) => format!("a list of {} binary values", v.len()),
+                _ => "a binary value".to_string(),
+            };
             return Err(format!(
-                "GDAL_NODATA (tag 42113) holds {other:?} instead of text; write the nodata value as ASCII \
+                "GDAL_NODATA (tag 42113) holds {what} instead of text; write the nodata value as ASCII \
                  text such as \"-9999\""
-            ))
+            ));
         }
-        Err(e) => return Err(format!("GDAL_NODATA (tag 42113) cannot be read ({e}); write the GeoTIFF again")),
+        Err(e) => return Err(format!("GDAL_NODATA (tag 42113) cannot be read ({}); write the GeoTIFF again", brief(e))),
     };
     parse_nodata(&text).map(Some)
 }
@@ -382,8 +403,25 @@ fn read_nodata<R: std::io::Read + std::io::Seek>(
 fn parse_nodata(text: &str) -> Result<f64, String> {
     let t = text.trim_matches(|c: char| c.is_whitespace() || c == '\0');
     t.parse::<f64>().map_err(|_| {
-        format!("GDAL_NODATA (tag 42113) holds \"{t}\", which is not a number; set the nodata value to a number such as -9999")
+        format!(
+            "GDAL_NODATA (tag 42113) holds \"{}\", which is not a number; set the nodata value to a number \
+             such as -9999",
+            brief(t)
+        )
     })
+}
+
+/// At most `BRIEF_CHARS` characters of a text a file holds or a decoder reports, so a message
+/// stays a sentence or two whatever the file contains.
+const BRIEF_CHARS: usize = 100;
+
+/// `text` cut to `BRIEF_CHARS` characters, with "…" where it was cut.
+pub(super) fn brief(text: impl std::fmt::Display) -> String {
+    let t = text.to_string();
+    match t.char_indices().nth(BRIEF_CHARS) {
+        Some((i, _)) => format!("{}…", &t[..i]),
+        None => t,
+    }
 }
 
 /// Turns a decoder error into a message with a fix.
@@ -397,20 +435,31 @@ pub(super) fn tiff_message(e: TiffError) -> String {
              cell, export it again"
         ),
         TiffError::FormatError(f) => {
-            format!("corrupt TIFF structure ({f}); the file is damaged, export or copy it again")
+            format!(
+                "corrupt TIFF structure ({}); the file is damaged, export or copy it again",
+                brief(f)
+            )
         }
         TiffError::IoError(io) if io.kind() == ErrorKind::UnexpectedEof => {
             "the file ends early (truncated); copy or export it again".into()
         }
-        TiffError::IoError(io) => format!("cannot read the TIFF data ({io}); copy or export the file again"),
+        TiffError::IoError(io) => format!(
+            "cannot read the TIFF data ({}); copy or export the file again",
+            brief(io)
+        ),
         TiffError::UnsupportedError(u) => format!(
-            "uses a TIFF feature this reader does not support ({u}); write the grid as a single-band float32 \
-             GeoTIFF, uncompressed or with LZW or DEFLATE"
+            "uses a TIFF feature this reader does not support ({}); write the grid as a single-band \
+             float32 GeoTIFF, uncompressed or with LZW or DEFLATE",
+            brief(u)
         ),
         TiffError::LimitsExceeded | TiffError::IntSizeError => format!(
-            "the raster or one of its tags is too large to decode ({e}); crop or resample the grid"
+            "the raster or one of its tags is too large to decode ({}); crop or resample the grid",
+            brief(&e)
         ),
-        other => format!("cannot decode the TIFF ({other}); export the grid again as a GeoTIFF"),
+        other => format!(
+            "cannot decode the TIFF ({}); export the grid again as a GeoTIFF",
+            brief(other)
+        ),
     }
 }
 
