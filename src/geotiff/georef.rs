@@ -77,6 +77,23 @@ pub fn place(tags: &ModelTags, pixel_is_point: bool) -> Result<Placement, String
     Ok(p)
 }
 
+/// A number as a message shows it: up to 7 decimals, in scientific notation when very
+/// large or very small (Rust's `{}` would print 1e-300 as "0.000…" with 300 zeros).
+pub(super) fn number(v: f64) -> String {
+    let a = v.abs();
+    if v == 0.0 || !v.is_finite() || (1e-4..1e9).contains(&a) {
+        let s = format!("{v:.7}");
+        let s = if s.contains('.') {
+            s.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            s
+        };
+        if v.is_finite() { s } else { format!("{v}") }
+    } else {
+        format!("{v:.6e}")
+    }
+}
+
 fn from_scale_and_tiepoint(scale: &[f64], tie: &[f64]) -> Result<Placement, String> {
     let (sx, sy) = match scale {
         [sx, sy, ..] => (*sx, *sy),
@@ -90,14 +107,17 @@ fn from_scale_and_tiepoint(scale: &[f64], tie: &[f64]) -> Result<Placement, Stri
     };
     if sy < 0.0 && sy.is_finite() && sx > 0.0 {
         return Err(format!(
-            "ModelPixelScale (tag 33550) has a negative Sy ({sy}): rows run south to north; flip the \
-             grid to north-up (row 0 at the north edge) before using it"
+            "ModelPixelScale (tag 33550) has a negative Sy ({}): rows run south to north; flip the \
+             grid to north-up (row 0 at the north edge) before using it",
+            number(sy)
         ));
     }
     if !(sx > 0.0 && sy > 0.0 && sx.is_finite() && sy.is_finite()) {
         return Err(format!(
-            "ModelPixelScale (tag 33550) gives cell size Sx = {sx}, Sy = {sy}; both must be positive \
-             and finite; write the GeoTIFF again with the true cell size"
+            "ModelPixelScale (tag 33550) gives cell size Sx = {}, Sy = {}; both must be positive \
+             and finite; write the GeoTIFF again with the true cell size",
+            number(sx),
+            number(sy)
         ));
     }
     let [i, j, _k, x, y, _z] = match tie.get(..6) {
@@ -139,21 +159,25 @@ fn from_transformation(m: &[f64]) -> Result<Placement, String> {
     let tiny = 1e-12 * a.abs().max(f.abs());
     if b.abs() > tiny || e.abs() > tiny {
         return Err(format!(
-            "ModelTransformation (tag 34264) rotates or shears the grid (terms b = {b}, e = {e}); only \
-             north-up grids are supported; resample the grid to north-up (no rotation) before using it"
+            "ModelTransformation (tag 34264) rotates or shears the grid (terms b = {}, e = {}); only \
+             north-up grids are supported; resample the grid to north-up (no rotation) before using it",
+            number(b),
+            number(e)
         ));
     }
     if f > 0.0 && a > 0.0 {
         return Err(format!(
-            "ModelTransformation (tag 34264) has a positive y step ({f}): rows run south to north; flip \
-             the grid to north-up (row 0 at the north edge) before using it"
+            "ModelTransformation (tag 34264) has a positive y step ({}): rows run south to north; flip \
+             the grid to north-up (row 0 at the north edge) before using it",
+            number(f)
         ));
     }
     if !(a > 0.0 && f < 0.0 && a.is_finite() && f.is_finite()) {
         return Err(format!(
-            "ModelTransformation (tag 34264) gives cell size {a} x {}; both must be positive and finite; \
+            "ModelTransformation (tag 34264) gives cell size {} x {}; both must be positive and finite; \
              write the GeoTIFF again with the true cell size",
-            -f
+            number(a),
+            number(-f)
         ));
     }
     Ok(Placement {
@@ -249,5 +273,26 @@ mod tests {
             ..Default::default()
         };
         assert!(place(&gcps, false).unwrap_err().contains("ground control"));
+    }
+
+    #[test]
+    fn tiny_and_huge_numbers_stay_short_in_messages() {
+        // Found by the mutation test: a rotation term of 1e-300 was printed with 300 digits.
+        assert_eq!(number(0.5), "0.5");
+        assert_eq!(number(-2.0), "-2");
+        assert_eq!(number(500_000.25), "500000.25");
+        assert_eq!(number(1e-300), "1.000000e-300");
+        assert_eq!(number(-3.5e20), "-3.500000e20");
+        assert_eq!(number(f64::NAN), "NaN");
+        let mut m = vec![0.0; 16];
+        (m[0], m[1], m[3], m[5], m[7], m[15]) = (1.0, 1e-300, 10.0, -1.0, 20.0, 1.0);
+        // 1e-300 is below the rounding tolerance relative to a cell size of 1: not a rotation.
+        assert!(place(&ModelTags { transformation: Some(m.clone()), ..Default::default() }, false).is_ok());
+        m[0] = 1e-290;
+        m[5] = -1e-290;
+        m[1] = 1e-250;
+        let err = place(&ModelTags { transformation: Some(m), ..Default::default() }, false).unwrap_err();
+        assert!(err.len() < 300, "{err}");
+        assert!(err.contains("1.000000e-250"), "{err}");
     }
 }

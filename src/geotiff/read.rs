@@ -480,4 +480,45 @@ mod tests {
         assert_eq!(parse_nodata("-inf").unwrap(), f64::NEG_INFINITY);
         assert!(parse_nodata("none").unwrap_err().contains("42113"));
     }
+
+    /// A 3 x 2 float32 GeoTIFF with a GDAL_NODATA tag of whole numbers instead of text.
+    fn nodata_as_numbers(path: &Path) {
+        use tiff::encoder::{colortype::Gray32Float, TiffEncoder};
+        let mut out = std::io::BufWriter::new(File::create(path).unwrap());
+        let mut enc = TiffEncoder::new(&mut out).unwrap();
+        let mut image = enc.new_image::<Gray32Float>(3, 2).unwrap();
+        let dir = image.encoder();
+        dir.write_tag(Tag::ModelPixelScaleTag, &[1.0, 1.0, 0.0][..]).unwrap();
+        dir.write_tag(Tag::ModelTiepointTag, &[0.0, 0.0, 0.0, 10.0, 20.0, 0.0][..])
+            .unwrap();
+        dir.write_tag(Tag::GdalNodata, &[45u16, 57, 57, 57, 57][..]).unwrap();
+        image.write_data(&[1.0f32; 6]).unwrap();
+    }
+
+    #[test]
+    fn nodata_of_the_wrong_type_is_named_in_words() {
+        // Found by the mutation test: the message showed the decoder's value dump
+        // ("List([Short(45), …])").
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("nodata-numbers.tif");
+        nodata_as_numbers(&path);
+        let err = read_grid(&path).unwrap_err().to_string();
+        assert!(err.contains("holds a list of 5 binary values instead of text"), "{err}");
+        assert!(!err.contains("Short("), "{err}");
+    }
+
+    #[test]
+    fn decoder_details_are_kept_brief() {
+        // Found by the mutation test: an unsupported sample format listed all 65 535 values
+        // of the tag in the message (1.5 kB and more).
+        let long = "Unknown(42), ".repeat(500);
+        let b = brief(&long);
+        assert_eq!(b.chars().count(), BRIEF_CHARS + 1);
+        assert!(b.ends_with('…'));
+        assert_eq!(brief("short"), "short");
+        // Cut on a character boundary, never inside a multi-byte character.
+        assert!(brief("é".repeat(300)).starts_with("éé"));
+        let msg = parse_nodata(&"x".repeat(5000)).unwrap_err();
+        assert!(msg.len() < 300, "{msg}");
+    }
 }

@@ -397,3 +397,123 @@ fn image_budget<R: Read + Seek>(w: &mut Walker<R>, entries: &[Entry]) -> Result<
         declared_bytes: u64::try_from(declared).unwrap_or(u64::MAX),
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::io::Cursor;
+
+    /// A little-endian classic TIFF: header, one IFD at byte 8 with `entries` (tag, type, count,
+    /// value or offset), then `tail` from byte `8 + 2 + 12 n + 4`.
+    fn tiff(entries: &[(u16, u16, u32, u32)], tail: &[u8]) -> Vec<u8> {
+        let mut b = b"II*\0".to_vec();
+        b.extend(8u32.to_le_bytes());
+        b.extend((entries.len() as u16).to_le_bytes());
+        for &(tag, typ, count, value) in entries {
+            b.extend(tag.to_le_bytes());
+            b.extend(typ.to_le_bytes());
+            b.extend(count.to_le_bytes());
+            b.extend(value.to_le_bytes());
+        }
+        b.extend(0u32.to_le_bytes());
+        b.extend_from_slice(tail);
+        b
+    }
+
+    /// Where `tail` starts in [`tiff`] with `n` entries.
+    fn tail_at(n: u32) -> u32 {
+        8 + 2 + 12 * n + 4
+    }
+
+    /// A 4 x 2 float32 strip image, uncompressed, with its 32 bytes of pixels in the tail.
+    fn strip_image(width: u32, height: u32, compression: u32, byte_count: u32) -> Vec<u8> {
+        let n = 8;
+        tiff(
+            &[
+                (256, 4, 1, width),
+                (257, 4, 1, height),
+                (258, 3, 1, 32),
+                (259, 3, 1, compression),
+                (273, 4, 1, tail_at(n)),
+                (277, 3, 1, 1),
+                (279, 4, 1, byte_count),
+                (339, 3, 1, 3),
+            ],
+            &[0u8; 32],
+        )
+    }
+
+    fn run(b: &[u8]) -> Result<Option<Checked>, String> {
+        check(&mut Cursor::new(b), b.len() as u64)
+    }
+
+    #[test]
+    fn a_sound_image_passes_with_its_sizes() {
+        let c = run(&strip_image(4, 2, 1, 32)).unwrap().unwrap();
+        assert_eq!((c.stored_bytes, c.declared_bytes), (32, 32));
+    }
+
+    #[test]
+    fn huge_declared_grids_are_refused_before_decoding() {
+        // Found by the mutation test: a 30 000 x 30 000 float32 grid declared in a 600-byte file
+        // had the decoder reserve 3.4 GB; a 100 000 x 100 000 one is refused the same way.
+        for (w, h) in [(30_000, 30_000), (100_000, 100_000), (u32::MAX, u32::MAX)] {
+            let err = run(&strip_image(w, h, 1, 32)).unwrap_err();
+            assert!(err.contains(&format!("{w} x {h} cells")), "{err}");
+            assert!(err.contains("hold only 32 bytes"), "{err}");
+        }
+        // DEFLATE: at most 1032 times the stored bytes.
+        let err = run(&strip_image(4096, 4096, 8, 32)).unwrap_err();
+        assert!(err.contains("1032x"), "{err}");
+        // Check: 1032:1 is DEFLATE's largest expansion (258-byte matches in 2 bits); zlib technical
+        // details, from memory. 32 stored bytes may declare 33 024 decoded bytes, not one more.
+        assert!(run(&strip_image(8256, 1, 8, 32)).is_ok());
+        assert!(run(&strip_image(8257, 1, 8, 32)).is_err());
+    }
+
+    #[test]
+    fn values_and_strips_past_the_end_are_refused() {
+        // A tag of 100 million LONGs in a tiny file (the decoder would reserve them first).
+        let b = tiff(&[(256, 4, 1, 4), (33550, 4, 100_000_000, 8)], &[]);
+        let err = run(&b).unwrap_err();
+        assert!(err.contains("ModelPixelScale (tag 33550) declares 100000000 values"), "{err}");
+        // A strip whose byte count runs past the end of the file.
+        let err = run(&strip_image(4, 2, 1, 33)).unwrap_err();
+        assert!(err.contains("strip 0 of the image is 33 bytes"), "{err}");
+        // An offset near 2^32 overflows nothing.
+        let mut b = strip_image(4, 2, 1, 32);
+        let at = 8 + 2 + 12 * 4 + 8;
+        b[at..at + 4].copy_from_slice(&0xFFFF_FFF0u32.to_le_bytes());
+        assert!(run(&b).unwrap_err().contains("runs past the end"));
+    }
+
+    #[test]
+    fn impossible_directories_are_refused() {
+        let mut b = strip_image(4, 2, 1, 32);
+        b[8..10].copy_from_slice(&0xFFFFu16.to_le_bytes());
+        assert!(run(&b).unwrap_err().contains("declares 65535 entries"));
+        b[8..10].copy_from_slice(&0u16.to_le_bytes());
+        assert!(run(&b).unwrap_err().contains("declares 0 entries"));
+        let mut b = strip_image(4, 2, 1, 32);
+        b[4..8].copy_from_slice(&0xFFFF_FF00u32.to_le_bytes());
+        assert!(run(&b).unwrap_err().contains("past the end of the file"));
+        // BigTIFF with an entry count of 2^60.
+        let mut big = b"II+\0\x08\0\0\0".to_vec();
+        big.extend(16u64.to_le_bytes());
+        big.extend((1u64 << 60).to_le_bytes());
+        big.extend([0u8; 40]);
+        assert!(run(&big).unwrap_err().contains("entries"));
+    }
+
+    #[test]
+    fn negative_signed_sizes_and_other_files_are_left_to_the_decoder_or_refused() {
+        // SLONG width of -1.
+        let mut b = strip_image(4, 2, 1, 32);
+        b[8 + 2 + 2..8 + 2 + 4].copy_from_slice(&9u16.to_le_bytes());
+        b[8 + 2 + 8..8 + 2 + 12].copy_from_slice(&(-1i32).to_le_bytes());
+        assert!(run(&b).unwrap_err().contains("negative"));
+        // Not a TIFF: no verdict here, the decoder words it.
+        assert_eq!(run(b"GIF89a....").unwrap(), None);
+        assert_eq!(run(b"").unwrap(), None);
+    }
+}

@@ -244,6 +244,11 @@ pub fn mutate(rng: &mut Rng, map: &TiffMap, b: &mut Vec<u8>) -> String {
         2 => {
             // Truncation inside (or at an edge of) one region.
             let regions = map.regions(len);
+            if regions.is_empty() {
+                let cut = rng.below(len as u64) as usize;
+                b.truncate(cut);
+                return format!("truncated at {cut}");
+            }
             let (name, a, z) = regions[rng.below(regions.len() as u64) as usize];
             let cut = match rng.below(4) {
                 0 => a,
