@@ -128,6 +128,7 @@ fn grid_cases(seed: u64, first: u64, cases: u64) -> Tally {
         let path = scratch.path().join(&name);
         std::fs::write(&path, &b).unwrap();
         tally.cases += 1;
+        let started = std::time::Instant::now();
         for (reader, outcome) in [(Reader::Grid, judge_grid(&path)), (Reader::Rgb, judge_rgb(&path))] {
             match outcome {
                 Ok(true) => tally.accepted += 1,
@@ -146,6 +147,7 @@ fn grid_cases(seed: u64, first: u64, cases: u64) -> Tally {
                 }
             }
         }
+        tally.timed(started.elapsed().as_millis(), case, &what.join("; "));
     }
     tally.peak_bytes = mutation::PEAK_SEEN.with(|p| p.get());
     tally
@@ -172,12 +174,46 @@ fn job_scratch() -> (tempfile::TempDir, Vec<(String, Vec<u8>)>) {
     (d, jobs)
 }
 
+/// In the `Debug` text of a value, where a non-finite number shows (`NaN`, `inf`, `-inf` outside
+/// quoted strings), with the text before it so the field can be told.
+fn non_finite(debug: &str) -> Option<String> {
+    let mut plain = String::with_capacity(debug.len());
+    let mut quoted = false;
+    let mut escaped = false;
+    for c in debug.chars() {
+        if quoted {
+            match (escaped, c) {
+                (true, _) => escaped = false,
+                (false, '\\') => escaped = true,
+                (false, '"') => quoted = false,
+                _ => {}
+            }
+            plain.push(if quoted { ' ' } else { '"' });
+        } else {
+            quoted = c == '"';
+            plain.push(c);
+        }
+    }
+    let b = plain.as_bytes();
+    for word in ["NaN", "inf"] {
+        for (i, _) in plain.match_indices(word) {
+            let before = i.checked_sub(1).map(|j| b[j]);
+            let after = b.get(i + word.len()).copied();
+            let edge = |c: Option<u8>| c.is_none_or(|c| !c.is_ascii_alphanumeric() && c != b'_');
+            if edge(before) && edge(after) {
+                let from = plain[..i].char_indices().rev().nth(60).map_or(0, |(k, _)| k);
+                return Some(plain[from..i + word.len()].to_string());
+            }
+        }
+    }
+    None
+}
+
 /// Checks an accepted job: finite numbers, a plannable timeline, grids that read or are refused
 /// cleanly.
 fn judge_job(job: &job::Job) -> Result<(), String> {
-    let shown = format!("{job:?}");
-    if shown.contains("NaN") || shown.contains("inf") {
-        return Err("accepted a job holding a number that is not finite".into());
+    if let Some(near) = non_finite(&format!("{job:?}")) {
+        return Err(format!("accepted a job holding a number that is not finite: …{near}"));
     }
     if job.methods.len() + 1 != job.surveys.len() {
         return Err("accepted a job whose methods do not match its intervals".into());
@@ -213,10 +249,12 @@ fn job_cases(seed: u64, first: u64, cases: u64) -> Tally {
         let path = scratch.path().join("jobs").join(name);
         std::fs::write(&path, &b).unwrap();
         tally.cases += 1;
+        let started = std::time::Instant::now();
         let outcome = guarded(|| job::load(&path)).and_then(|r| match r {
             Err(e) => check_refusal(&e, &path).map(|()| false),
             Ok(j) => judge_job(&j).map(|()| true),
         });
+        tally.timed(started.elapsed().as_millis(), case, &what.join("; "));
         match outcome {
             Ok(true) => tally.accepted += 1,
             Ok(false) => tally.refused += 1,

@@ -185,6 +185,10 @@ pub struct Job {
     pub output: OutputSpec,
 }
 
+/// Largest job file read, in bytes. A job with stable-ground polygons of many thousand vertices
+/// stays well under this.
+pub const MAX_JOB_BYTES: u64 = 16 << 20;
+
 /// Reads and validates a job file.
 ///
 /// # Errors
@@ -196,6 +200,21 @@ pub fn load(path: &Path) -> Result<Job> {
             "file",
             "is a folder, not a job file; give the path of the job's YAML file (e.g. jobs/demo.yaml)",
         ));
+    }
+    // A job is a short text; refuse a large file (a grid given by mistake) before reading it all.
+    if let Ok(meta) = std::fs::metadata(path) {
+        if meta.len() > MAX_JOB_BYTES {
+            return Err(Error::job(
+                path,
+                "file",
+                format!(
+                    "is {} MiB, far more than a job file (a short YAML text, at most {} MiB); give the \
+                     path of the job's YAML file",
+                    meta.len() >> 20,
+                    MAX_JOB_BYTES >> 20
+                ),
+            ));
+        }
     }
     let text = std::fs::read_to_string(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => {
@@ -217,7 +236,30 @@ pub fn load(path: &Path) -> Result<Job> {
 /// # Errors
 /// As [`load`].
 pub fn parse(path: &Path, text: String) -> Result<Job> {
+    if let Some((line, column)) = validate::too_deep(&text) {
+        return Err(Error::job(
+            path,
+            format!("line {line} column {column}"),
+            format!(
+                "brackets nest more than {} deep here; a job's values nest only a few levels, \
+                 correct the brackets",
+                validate::MAX_FLOW_DEPTH
+            ),
+        ));
+    }
     let file: schema::JobFile =
         serde_yaml::from_str(&text).map_err(|e| validate::yaml_error(path, &text, &e))?;
-    validate::resolve(path, text, file)
+    validate::resolve(path, text, file).map_err(|e| match e {
+        // Messages may quote what the job holds; a quoted value of any length stays short.
+        Error::Job {
+            path,
+            place,
+            message,
+        } => Error::Job {
+            path,
+            place,
+            message: validate::brief_quotes(&message),
+        },
+        other => other,
+    })
 }

@@ -18,15 +18,31 @@ use crate::timeline::FramePlan;
 /// `frames_per_year: 12000`.
 pub const MAX_FRAMES: usize = 10_000;
 
-/// Turns a YAML parse error into a job error with its line, and a did-you-mean for unknown keys.
+/// Turns a YAML parse error into a job error with its line, a did-you-mean for unknown keys, and
+/// what to do for every kind of mistake the parser reports.
 pub(super) fn yaml_error(path: &Path, job_text: &str, e: &serde_yaml::Error) -> Error {
-    let place = e.location().map_or_else(
-        || "job file".to_string(),
-        |l| format!("line {} column {}", l.line(), l.column()),
-    );
     let raw = e.to_string();
     // serde_yaml appends " at line L column C"; the place already says it.
     let text = raw.split(" at line ").next().unwrap_or(&raw).to_string();
+    // The reader reports a bad character by its byte offset ("at position N") and places it at
+    // line 1 column 1; count the lines to the offset instead.
+    let offset_place = text
+        .split(" at position ")
+        .nth(1)
+        .and_then(|n| n.trim().parse::<usize>().ok())
+        .filter(|&n| n <= job_text.len())
+        .map(|n| {
+            let before = &job_text.as_bytes()[..n];
+            let line = before.iter().filter(|&&c| c == b'\n').count() + 1;
+            let column = n - before.iter().rposition(|&c| c == b'\n').map_or(0, |i| i + 1) + 1;
+            (line, column)
+        });
+    let place = match (offset_place, e.location()) {
+        (Some((line, column)), _) => format!("line {line} column {column}"),
+        (None, Some(l)) => format!("line {} column {}", l.line(), l.column()),
+        (None, None) => "job file".to_string(),
+    };
+    let text = text.split(" at position ").next().unwrap_or(&text).to_string();
     // A tab where YAML expects indentation: the parser's own words do not say so.
     let tab_line = e
         .location()
@@ -47,15 +63,140 @@ pub(super) fn yaml_error(path: &Path, job_text: &str, e: &serde_yaml::Error) -> 
         "; add it (see the job file section of the README)"
     } else if text.contains("unknown field") {
         "; remove it or correct its spelling"
+    } else if text.contains("unknown variant") {
+        "; use one of the values listed"
+    } else if text.contains("duplicate field") {
+        "; keep one of them and remove the other"
+    } else if text.contains("control characters are not allowed") {
+        "; the file holds a byte that is not text here, save the job file again as plain UTF-8 text"
+    } else if text.contains("recursion limit exceeded") {
+        "; the value is nested too deeply (job values nest only a few levels), correct it"
+    } else if text.contains("repetition limit exceeded") {
+        "; anchors and aliases expand to too much text, write the values out instead"
+    } else if text.contains("expected") && (text.contains("found") || text.contains("invalid")) {
+        "; correct the value (the README's job file section gives each key's kind of value)"
     } else {
-        ""
+        // Everything else is YAML syntax: an unclosed bracket or quote, a lost indentation.
+        "; check the YAML on this line and the one before it: indent with spaces, put a space after \
+         each colon and close every bracket and quote"
     };
-    Error::job(path, place, format!("{text}{hint}{fix}"))
+    Error::job(path, place, brief_quotes(&format!("{text}{hint}{fix}")))
+}
+
+/// Longest path shown whole in a message; a longer one keeps its start and its end.
+const PATH_CHARS: usize = 160;
+
+/// A path as a message shows it: whole, or its first and last 70 characters around "…" when
+/// longer than [`PATH_CHARS`] (a mangled job may name a path of any length).
+fn shown(p: &Path) -> String {
+    let text = p.display().to_string();
+    let n = text.chars().count();
+    if n <= PATH_CHARS {
+        return text;
+    }
+    let head: String = text.chars().take(70).collect();
+    let tail: String = text.chars().skip(n - 70).collect();
+    format!("{head}…{tail}")
+}
+
+/// Deepest nesting of flow brackets (`[` and `{`) accepted. A job nests a few levels (the
+/// stable-ground polygons are the deepest, at 3); serde_yaml itself stops at 128.
+pub(super) const MAX_FLOW_DEPTH: usize = 64;
+
+/// Where flow brackets first nest deeper than [`MAX_FLOW_DEPTH`], as (line, column), counting
+/// brackets outside quotes and comments.
+///
+/// Checked before the YAML parser runs: its scanner revisits every open bracket for each new
+/// token, so its time grows with the square of the depth (20 000 brackets, 40 kB of text, took
+/// 2.4 s; a megabyte of them would take most of an hour).
+pub(super) fn too_deep(text: &str) -> Option<(usize, usize)> {
+    let (mut depth, mut line, mut column) = (0usize, 1usize, 0usize);
+    let mut quote: Option<char> = None;
+    let mut comment = false;
+    let mut previous = '\n';
+    let mut escaped = false;
+    for c in text.chars() {
+        column += 1;
+        if c == '\n' {
+            (line, column, comment) = (line + 1, 0, false);
+            // A single-quoted or plain text may run over lines; a double-quoted one too.
+        }
+        match quote {
+            Some('"') if escaped => escaped = false,
+            Some('"') if c == '\\' => escaped = true,
+            Some(q) if c == q => quote = None,
+            Some(_) => {}
+            None if comment => {}
+            None => match c {
+                '#' if previous.is_whitespace() => comment = true,
+                '"' | '\'' if !previous.is_alphanumeric() => quote = Some(c),
+                '[' | '{' => {
+                    depth += 1;
+                    if depth > MAX_FLOW_DEPTH {
+                        return Some((line, column));
+                    }
+                }
+                ']' | '}' => depth = depth.saturating_sub(1),
+                _ => {}
+            },
+        }
+        previous = c;
+    }
+    None
+}
+
+/// Longest quoted text ("…" or `…`) kept whole in a message; longer quotes are cut with "…".
+const QUOTE_CHARS: usize = 60;
+
+/// A message with every quoted text cut to [`QUOTE_CHARS`] characters, so a value of 100 000
+/// characters in the job (or a whole line the parser quotes) cannot bury the message.
+pub(super) fn brief_quotes(message: &str) -> String {
+    let mut out = String::with_capacity(message.len().min(1024));
+    let mut open: Option<char> = None;
+    let mut inside = 0usize;
+    for c in message.chars() {
+        match open {
+            Some(q) if c == q => {
+                open = None;
+                out.push(c);
+            }
+            Some(_) => {
+                inside += 1;
+                if inside <= QUOTE_CHARS {
+                    out.push(c);
+                } else if inside == QUOTE_CHARS + 1 {
+                    out.push('…');
+                }
+            }
+            None => {
+                if c == '"' || c == '`' {
+                    open = Some(c);
+                    inside = 0;
+                }
+                out.push(c);
+            }
+        }
+    }
+    out
 }
 
 /// The parser's type words in the user's words: `u32` is "a whole number", `f64` "a number".
 fn plain_words(text: &str) -> String {
     let mut out = text.to_string();
+    // "expected struct SurveyEntry": the type's name means nothing to the user.
+    while let Some(i) = out.find("expected struct ") {
+        let name_start = i + "expected struct ".len();
+        let name_end = out[name_start..]
+            .find(|c: char| !c.is_alphanumeric() && c != '_')
+            .map_or(out.len(), |k| name_start + k);
+        let name = &out[name_start..name_end];
+        let plain = if name == "WithUnitStrict" {
+            "expected a number or a value with its unit"
+        } else {
+            "expected a map of keys"
+        };
+        out.replace_range(i..name_end, plain);
+    }
     for (rust, plain) in [
         ("expected u8", "expected a whole number"),
         ("expected u16", "expected a whole number"),
@@ -73,6 +214,8 @@ fn plain_words(text: &str) -> String {
         ("invalid type: sequence", "found a list"),
         ("invalid type: map", "found a map of keys"),
         ("invalid value: integer", "the whole number"),
+        ("invalid type: unit value", "found nothing (an empty value)"),
+        ("invalid type: boolean", "found"),
     ] {
         out = out.replace(rust, plain);
     }
@@ -102,7 +245,7 @@ fn date_problem(text: &str) -> String {
         let (y, m, d) = (n[0] as i32, n[1], n[2]);
         if parts[0].len() == 4 && !(1..=12).contains(&m) {
             return format!(
-                "\"{text}\": there is no month {m}; months run from 01 to 12 (YYYY-MM-DD)"
+                "\"{text}\": there is no month {m}; months run from 01 to 12 (YYYY-MM-DD), correct the month"
             );
         }
         if parts[0].len() == 4 && d > 0 {
@@ -150,7 +293,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         return Err(bad(
             "surveys",
             format!(
-                "{} survey(s) listed; at least two dated grids are needed to show change",
+                "{} survey(s) listed; at least two dated grids are needed to show change, list another survey",
                 f.surveys.len()
             ),
         ));
@@ -194,7 +337,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
                 &key("grid"),
                 format!(
                     "no file at {} (paths are relative to the job file's folder); correct the path",
-                    grid.display()
+                    shown(&grid)
                 ),
             ));
         }
@@ -246,7 +389,8 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             if !ok || a.west >= a.east || a.south >= a.north {
                 return Err(bad(
                     "area_of_interest",
-                    "needs west < east and south < north, in map coordinates of the grids' CRS"
+                    "needs west < east and south < north, in map coordinates of the grids' CRS; \
+                     correct the four values"
                         .into(),
                 ));
             }
@@ -387,7 +531,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
             if !p.is_file() {
                 return Err(bad(
                     "shell.grid",
-                    format!("no file at {} (paths are relative to the job file's folder); correct the path", p.display()),
+                    format!("no file at {} (paths are relative to the job file's folder); correct the path", shown(&p)),
                 ));
             }
             Some(p)
@@ -431,7 +575,7 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
                     "colour.drape",
                     format!(
                         "no file at {} (paths are relative to the job file's folder); correct the path",
-                        path.display()
+                        shown(&path)
                     ),
                 ));
             }
@@ -611,7 +755,7 @@ fn resolve_stable_ground(
             if !p.is_file() {
                 return Err(bad(
                     "stable_ground.mask",
-                    format!("no file at {} (paths are relative to the job file's folder); correct the path", p.display()),
+                    format!("no file at {} (paths are relative to the job file's folder); correct the path", shown(&p)),
                 ));
             }
             Some(StableGround::Mask(p))
@@ -974,5 +1118,78 @@ mod tests {
         }
         let e = err(&MINIMAL.replace("title: Test dune\n", "title: 12\nview: { width: wide }\n"));
         assert!(e.contains("line 3"), "{e}");
+    }
+
+    // Each test below pins a defect the mutation test of the readers found
+    // (tests/mutation_readers.rs); the case it came from is named.
+
+    #[test]
+    fn deep_brackets_are_refused_before_the_parser_runs() {
+        // "nesting 20000 deep": 40 kB of brackets kept the YAML scanner busy for 2.4 s, and the
+        // time grows with the square of the depth.
+        let deep = MINIMAL.replace("title: Test dune", &format!("title: {}", "[".repeat(200_000)));
+        let e = err(&deep);
+        assert!(e.contains("line 2 column 72"), "{e}");
+        assert!(e.contains("nest more than 64 deep"), "{e}");
+        // Brackets in quotes and comments do not count; the deepest real job (polygons) passes.
+        assert_eq!(too_deep(&format!("title: \"{}\" # {}\n", "[".repeat(100), "{".repeat(100))), None);
+        assert_eq!(too_deep(&format!("t: '{}'\n", "[".repeat(100))), None);
+        assert_eq!(too_deep("p: [[[0, 0], [1, 0], [1, 1]]]\n"), None);
+        assert_eq!(too_deep(&format!("t: {}", "[".repeat(65))), Some((1, 68)));
+    }
+
+    #[test]
+    fn every_parser_complaint_says_what_to_do() {
+        // "line 1 repeated", "value at 922 := !!binary …", a truncated flow map, a byte 0x01.
+        for (text, want) in [
+            (format!("format_version: 1\n{MINIMAL}"), "keep one of them and remove the other"),
+            (format!("{MINIMAL}animation: {{ dither: {{ kind: sparkle }} }}\n"), "use one of the values listed"),
+            (MINIMAL.replace("folder: out }", "folder: out"), "close every bracket and quote"),
+            (MINIMAL.replace("Test dune", "Test\u{1}dune"), "save the job file again as plain UTF-8"),
+            (MINIMAL.replace("title: Test dune", "title: [1]"), "correct the value"),
+            (MINIMAL.replace("format_version: 1", "format_version: ~"), "found nothing (an empty value)"),
+            (MINIMAL.replace("a.tif }", "a.tif, sigma_z_m: [1] }"), "expected a number or a value with its unit"),
+            (MINIMAL.replace("{ date: 2030-05-01, grid: a.tif }", "[1]"), "expected a map of keys"),
+        ] {
+            let e = err(&text);
+            assert!(e.contains(want), "expected `{want}` in: {e}");
+            assert!(!e.contains("struct "), "{e}");
+        }
+        // A control character is placed on its own line, not at line 1 column 1.
+        let e = err(&MINIMAL.replace("b.tif }", "b.tif\u{1} }"));
+        assert!(e.contains("line 5 column"), "{e}");
+    }
+
+    #[test]
+    fn long_values_are_cut_in_messages() {
+        // "value at 596 := a long value (200000 bytes)": the message quoted all of it.
+        let e = err(&MINIMAL.replace("title: Test dune", &format!("title: Test\nview: {{ width: {} }}", "x".repeat(200_000))));
+        assert!(e.len() < 400, "{} bytes: {}", e.len(), &e[..300]);
+        assert!(e.contains("x…\""), "{e}");
+        let e = err(&MINIMAL.replace("grid: a.tif", &format!("grid: {}.tif", "é".repeat(20_000))));
+        assert!(e.chars().count() < 500, "{e}");
+        assert!(e.contains("correct the path"), "{e}");
+        assert_eq!(brief_quotes("a \"short\" one"), "a \"short\" one");
+        let cut = brief_quotes(&format!("x `{}` y", "q".repeat(100)));
+        assert_eq!(cut, format!("x `{}…` y", "q".repeat(QUOTE_CHARS)));
+    }
+
+    #[test]
+    fn date_and_survey_count_messages_carry_a_fix() {
+        // "a date := 2041-00-10" and a job cut after its first survey.
+        let e = err(&MINIMAL.replace("2030-05-01", "2030-00-10"));
+        assert!(e.contains("correct the month"), "{e}");
+        let one = "format_version: 1\ntitle: T\nsurveys:\n  - { date: 2030-05-01, grid: a.tif }\noutput: { folder: out }\n";
+        assert!(err(one).contains("list another survey"));
+    }
+
+    #[test]
+    fn a_large_file_is_not_read_as_a_job() {
+        let d = job_dir();
+        let big = d.path().join("big.yaml");
+        let f = std::fs::File::create(&big).unwrap();
+        f.set_len(super::super::MAX_JOB_BYTES + 1).unwrap();
+        let e = super::super::load(&big).unwrap_err().to_string();
+        assert!(e.contains("far more than a job file"), "{e}");
     }
 }

@@ -55,9 +55,20 @@ pub struct Tally {
     pub refused: u64,
     pub peak_bytes: usize,
     pub failures: Vec<Failure>,
+    /// The slowest cases: (milliseconds, case, what was done), slowest first, at most 3.
+    pub slowest: Vec<(u128, u64, String)>,
 }
 
 impl Tally {
+    /// Notes how long a case took.
+    pub fn timed(&mut self, ms: u128, case: u64, what: &str) {
+        if self.slowest.len() < 3 || ms > self.slowest[2].0 {
+            self.slowest.push((ms, case, what.chars().take(120).collect()));
+            self.slowest.sort_by(|a, b| b.0.cmp(&a.0));
+            self.slowest.truncate(3);
+        }
+    }
+
     /// A summary for the test log, and every failure with how to repeat it.
     pub fn report(&self, seed: u64) -> String {
         let mut s = format!(
@@ -68,6 +79,9 @@ impl Tally {
             self.failures.len(),
             self.peak_bytes >> 10
         );
+        for (ms, case, what) in &self.slowest {
+            s.push_str(&format!("  slow: case {case} took {ms} ms: {what}\n"));
+        }
         for f in self.failures.iter().take(40) {
             s.push_str(&format!(
                 "  {:?} case {} on {}: {}\n      did: {}\n      kept: {}\n",
@@ -104,6 +118,8 @@ const INNARDS: &[&str] = &[
     "Utf8Error",
     "TiffError",
     "FormatError",
+    "struct ",
+    "enum ",
 ];
 
 /// Words with which a message tells the user what to do.
