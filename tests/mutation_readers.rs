@@ -209,12 +209,10 @@ fn non_finite(debug: &str) -> Option<String> {
     None
 }
 
-/// Checks an accepted job: finite numbers, a plannable timeline, grids that read or are refused
-/// cleanly.
+/// Checks an accepted job: a plannable timeline, grids that read or are refused cleanly, and the
+/// checks `render` makes before its first write passing or refusing cleanly, with no number that
+/// is not finite left in a job they pass.
 fn judge_job(job: &job::Job) -> Result<(), String> {
-    if let Some(near) = non_finite(&format!("{job:?}")) {
-        return Err(format!("accepted a job holding a number that is not finite: …{near}"));
-    }
     if job.methods.len() + 1 != job.surveys.len() {
         return Err("accepted a job whose methods do not match its intervals".into());
     }
@@ -230,6 +228,22 @@ fn judge_job(job: &job::Job) -> Result<(), String> {
     for s in &job.surveys {
         if let Err(e) = guarded(|| read_survey(s))? {
             check_refusal(&e, &s.grid)?;
+        }
+    }
+    // What the reader accepts, the checks before the first write (`dunereel check`) accept or
+    // refuse cleanly; an accepted job then holds no number that is not finite.
+    match guarded(|| dunereel::run::check_job(job, &dunereel::RunOptions::default()))? {
+        Ok(_) => {
+            if let Some(near) = non_finite(&format!("{job:?}")) {
+                return Err(format!("accepted a job holding a number that is not finite: …{near}"));
+            }
+        }
+        Err(e) => {
+            let path = match &e {
+                dunereel::Error::Input { path, .. } | dunereel::Error::Job { path, .. } => path.clone(),
+                _ => job.path.clone(),
+            };
+            check_refusal(&e, &path)?;
         }
     }
     Ok(())
@@ -295,6 +309,10 @@ fn pristine_fixtures_read_or_are_refused_cleanly() {
         std::fs::write(&path, text).unwrap();
         let job = job::load(&path).unwrap_or_else(|e| panic!("{name}: {e}"));
         judge_job(&job).unwrap_or_else(|e| panic!("{name}: {e}"));
+        // The pristine jobs pass the checks before the first write, so a mutated job the reader
+        // accepts is carried through them too.
+        dunereel::run::check_job(&job, &dunereel::RunOptions::default())
+            .unwrap_or_else(|e| panic!("{name}: {e}"));
     }
 }
 

@@ -249,6 +249,20 @@ pub fn parse(path: &Path, text: String) -> Result<Job> {
     }
     let file: schema::JobFile =
         serde_yaml::from_str(&text).map_err(|e| validate::yaml_error(path, &text, &e))?;
+    // Once the typed reading has passed (so aliases cannot expand without bound here), every
+    // number is checked to be finite, with its key path.
+    if let Ok(tree) = serde_yaml::from_str::<serde_yaml::Value>(&text) {
+        if let Some((key, v)) = validate::non_finite(&tree, String::new()) {
+            return Err(Error::job(
+                path,
+                key,
+                format!(
+                    "{v} is not a finite number; no job value may be infinite or not-a-number, \
+                     write an ordinary number such as 1.5"
+                ),
+            ));
+        }
+    }
     validate::resolve(path, text, file).map_err(|e| match e {
         // Messages may quote what the job holds; a quoted value of any length stays short.
         Error::Job {

@@ -83,6 +83,36 @@ pub(super) fn yaml_error(path: &Path, job_text: &str, e: &serde_yaml::Error) -> 
     Error::job(path, place, brief_quotes(&format!("{text}{hint}{fix}")))
 }
 
+/// The first number in a parsed job that is infinite or not a number (`.nan`, `.inf`, `1e309`),
+/// with its key path (`water.level_m`, `change.transect[1][0]`). No job value may be one: the
+/// stage checks that follow compare ranges, and a NaN passes every comparison it fails.
+pub(super) fn non_finite(v: &serde_yaml::Value, at: String) -> Option<(String, f64)> {
+    use serde_yaml::Value;
+    let join = |key: &str| {
+        if at.is_empty() {
+            key.to_string()
+        } else {
+            format!("{at}.{key}")
+        }
+    };
+    match v {
+        Value::Number(n) => n.as_f64().filter(|x| !x.is_finite()).map(|x| (at, x)),
+        Value::Sequence(items) => items
+            .iter()
+            .enumerate()
+            .find_map(|(i, item)| non_finite(item, format!("{at}[{i}]"))),
+        Value::Mapping(m) => m.iter().find_map(|(k, item)| {
+            let key = match k {
+                Value::String(s) => s.clone(),
+                other => serde_yaml::to_string(other).unwrap_or_default().trim().to_string(),
+            };
+            non_finite(item, join(&key))
+        }),
+        Value::Tagged(t) => non_finite(&t.value, at),
+        Value::Null | Value::Bool(_) | Value::String(_) => None,
+    }
+}
+
 /// Longest path shown whole in a message; a longer one keeps its start and its end.
 const PATH_CHARS: usize = 160;
 
@@ -510,6 +540,31 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
                 "{} puts the sun at or below the horizon; use degrees above the horizon in (0, 90]",
                 s.altitude_deg
             ),
+        ));
+    }
+
+    // The same ranges as the renderer's (`render::Renderer::new`), checked here so the message
+    // names the job's key (`sun.…`) and says what to write.
+    let d = crate::render::LightOptions::default();
+    for (name, val, lo, hi, default) in [
+        ("ambient", s.ambient, 0.0, 1.0, d.ambient),
+        ("diffuse", s.diffuse, 0.0, 2.0, d.diffuse),
+        ("specular", s.specular, 0.0, 1.0, d.specular),
+        ("shininess", s.shininess, 1.0, 1000.0, d.shininess),
+        ("shadow_softness_cells", s.shadow_softness_cells, 0.0, 10.0, d.shadow_softness_cells),
+        ("hollow_darkening", s.hollow_darkening, 0.0, 1.0, d.hollow_darkening),
+    ] {
+        if !(lo..=hi).contains(&val) {
+            return Err(bad(
+                &format!("sun.{name}"),
+                format!("{val} is out of range; use {lo} to {hi} (the default is {default})"),
+            ));
+        }
+    }
+    if !(s.intensity > 0.0 && s.intensity <= 10.0) {
+        return Err(bad(
+            "sun.intensity",
+            format!("{} is out of range; use a value above 0 and at most 10 (1 is full sunlight)", s.intensity),
         ));
     }
 
@@ -1191,5 +1246,41 @@ mod tests {
         f.set_len(super::super::MAX_JOB_BYTES + 1).unwrap();
         let e = super::super::load(&big).unwrap_err().to_string();
         assert!(e.contains("far more than a job file"), "{e}");
+    }
+
+    #[test]
+    fn numbers_that_are_not_finite_are_refused_with_their_key() {
+        // "value at 816 := .nan" (water.level_m) and "-.inf" (water.opacity) passed the reader and
+        // reached the renderer's checks, which word them without a fix.
+        for (text, key) in [
+            (format!("{MINIMAL}water: {{ level_m: .nan }}\n"), "water.level_m"),
+            (format!("{MINIMAL}water: {{ opacity: -.inf }}\n"), "water.opacity"),
+            (format!("{MINIMAL}change: {{ transect: [[0, 0], [-.inf, 1]] }}\n"), "change.transect[1][0]"),
+            (MINIMAL.replace("a.tif }", "a.tif, sigma_z_m: { value: .inf, unit: foot } }"), "surveys[0].sigma_z_m.value"),
+        ] {
+            let e = err(&text);
+            assert!(e.contains(&format!("{key}: ")), "expected `{key}` in: {e}");
+            assert!(e.contains("write an ordinary number"), "{e}");
+        }
+        // A title that reads like a number is text, and passes.
+        let d = job_dir();
+        assert!(parse(&d.path().join("job.yaml"), MINIMAL.replace("Test dune", "'.nan'")).is_ok());
+    }
+
+    #[test]
+    fn sun_options_are_checked_under_their_own_key() {
+        // "value at 1133 := -1" (sun.shadow_softness_cells): the renderer refused it as
+        // `light.shadow_softness_cells`, a key the job does not have, and said no fix.
+        for (entry, key) in [
+            ("shadow_softness_cells: -1", "sun.shadow_softness_cells"),
+            ("hollow_darkening: 4294967296", "sun.hollow_darkening"),
+            ("ambient: 1.5", "sun.ambient"),
+            ("shininess: 0", "sun.shininess"),
+            ("intensity: 0", "sun.intensity"),
+        ] {
+            let e = err(&format!("{MINIMAL}sun: {{ {entry} }}\n"));
+            assert!(e.contains(&format!("{key}: ")), "expected `{key}` in: {e}");
+            assert!(e.contains("use "), "{e}");
+        }
     }
 }
