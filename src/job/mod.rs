@@ -257,8 +257,8 @@ pub fn parse(path: &Path, text: String) -> Result<Job> {
                 path,
                 key,
                 format!(
-                    "{v} is not a finite number; no job value may be infinite or not-a-number, \
-                     write an ordinary number such as 1.5"
+                    "{v} is not a finite number (or is beyond 3.4e38); no job value may be infinite, \
+                     not-a-number or that large, write an ordinary number such as 1.5"
                 ),
             ));
         }

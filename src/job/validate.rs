@@ -14,6 +14,9 @@ use crate::render::ramp::ElevationRamp;
 use crate::render::ShellOptions;
 use crate::timeline::FramePlan;
 
+/// Longest `flow.*` length accepted, in metres: far beyond any dune's move between two surveys.
+pub const MAX_FLOW_LENGTH_M: f64 = 10_000.0;
+
 /// Most frames a job may ask for (about 14 minutes at 12 fps): a guard against typos such as
 /// `frames_per_year: 12000`.
 pub const MAX_FRAMES: usize = 10_000;
@@ -96,7 +99,11 @@ pub(super) fn non_finite(v: &serde_yaml::Value, at: String) -> Option<(String, f
         }
     };
     match v {
-        Value::Number(n) => n.as_f64().filter(|x| !x.is_finite()).map(|x| (at, x)),
+        // Beyond f32's range counts too: options stored as f32 would turn it into infinity.
+        Value::Number(n) => n
+            .as_f64()
+            .filter(|x| !(x.is_finite() && x.abs() <= f64::from(f32::MAX)))
+            .map(|x| (at, x)),
         Value::Sequence(items) => items
             .iter()
             .enumerate()
@@ -178,41 +185,64 @@ pub(super) fn too_deep(text: &str) -> Option<(usize, usize)> {
 /// Longest quoted text ("…" or `…`) kept whole in a message; longer quotes are cut with "…".
 const QUOTE_CHARS: usize = 60;
 
+/// Longest message head (what is wrong) kept whole; the fix after the last "; " is always kept.
+const HEAD_CHARS: usize = 320;
+
 /// A message with every quoted text cut to [`QUOTE_CHARS`] characters, so a value of 100 000
 /// characters in the job (or a whole line the parser quotes) cannot bury the message.
+///
+/// Only the part before the last "; " (what is wrong) is cut; the fix after it is kept whole. A
+/// quote mark with no partner (a mangled path may hold one) opens nothing, and a head still longer
+/// than [`HEAD_CHARS`] is cut there.
 pub(super) fn brief_quotes(message: &str) -> String {
-    let mut out = String::with_capacity(message.len().min(1024));
-    let mut open: Option<char> = None;
-    let mut inside = 0usize;
-    for c in message.chars() {
-        match open {
-            Some(q) if c == q => {
-                open = None;
-                out.push(c);
-            }
-            Some(_) => {
-                inside += 1;
-                if inside <= QUOTE_CHARS {
-                    out.push(c);
-                } else if inside == QUOTE_CHARS + 1 {
-                    out.push('…');
-                }
-            }
-            None => {
-                if c == '"' || c == '`' {
-                    open = Some(c);
-                    inside = 0;
-                }
-                out.push(c);
-            }
+    let (head, fix) = match message.rfind("; ") {
+        Some(i) => message.split_at(i),
+        None => (message, ""),
+    };
+    let chars: Vec<char> = head.chars().collect();
+    let mut out = String::with_capacity(head.len().min(1024) + fix.len());
+    let mut i = 0;
+    while i < chars.len() {
+        let c = chars[i];
+        out.push(c);
+        i += 1;
+        if c != '"' && c != '`' {
+            continue;
         }
+        let Some(len) = chars[i..].iter().position(|&d| d == c) else {
+            continue;
+        };
+        out.extend(&chars[i..i + len.min(QUOTE_CHARS)]);
+        if len > QUOTE_CHARS {
+            out.push('…');
+        }
+        out.push(c);
+        i += len + 1;
     }
+    if out.chars().count() > HEAD_CHARS {
+        out = out.chars().take(HEAD_CHARS).chain(['…']).collect();
+    }
+    out.push_str(fix);
     out
 }
 
 /// The parser's type words in the user's words: `u32` is "a whole number", `f64` "a number".
 fn plain_words(text: &str) -> String {
     let mut out = text.to_string();
+    // "expected internally tagged enum Dither", "expected enum Unit": type names mean nothing to
+    // the user.
+    for (rust, plain) in [
+        ("expected internally tagged enum ", "expected a map of keys with `kind`"),
+        ("expected enum ", "expected one of the words this key takes"),
+    ] {
+        while let Some(i) = out.find(rust) {
+            let name_start = i + rust.len();
+            let name_end = out[name_start..]
+                .find(|c: char| !c.is_alphanumeric() && c != '_')
+                .map_or(out.len(), |k| name_start + k);
+            out.replace_range(i..name_end, plain);
+        }
+    }
     // "expected struct SurveyEntry": the type's name means nothing to the user.
     while let Some(i) = out.find("expected struct ") {
         let name_start = i + "expected struct ".len();
@@ -594,7 +624,9 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         (None, ShellSurvey::Grid) => {
             return Err(bad(
                 "shell.grid",
-                "`survey: grid` needs `grid:`, the path of the grid to draw as the shell".into(),
+                "`survey: grid` needs `grid:`, the path of the grid to draw as the shell; add it, or \
+                 choose another shell.survey"
+                    .into(),
             ));
         }
         (Some(_), _) => {
@@ -678,6 +710,21 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         ));
     };
     f.flow.validate().map_err(|m| bad("flow", m))?;
+    // The displacement search visits every shift within these lengths; a typo such as
+    // `search_radius_m: 4e38` would overflow it (found by the mutation test of the readers).
+    for (key, v) in [
+        ("flow.window_m", f.flow.window_m),
+        ("flow.search_radius_m", f.flow.search_radius_m),
+        ("flow.fill_radius_m", f.flow.fill_radius_m),
+    ] {
+        if v > MAX_FLOW_LENGTH_M {
+            return Err(bad(
+                key,
+                format!("{v} m is more than the {MAX_FLOW_LENGTH_M} m this program searches; give the \
+                         largest distance the dune can have moved between two surveys, e.g. 60"),
+            ));
+        }
+    }
     if !f.labels.status {
         return Err(bad(
             "labels.status",
@@ -1282,5 +1329,28 @@ mod tests {
             assert!(e.contains(&format!("{key}: ")), "expected `{key}` in: {e}");
             assert!(e.contains("use "), "{e}");
         }
+    }
+
+    #[test]
+    fn findings_of_the_long_run_stay_fixed() {
+        // "search_radius_m: 3.4028236e38": the displacement search overflowed (a panic in a debug
+        // build, a search without end in a release build).
+        let e = err(&format!("{MINIMAL}flow: {{ search_radius_m: 3.4e30 }}\n"));
+        assert!(e.contains("flow.search_radius_m: ") && e.contains("e.g. 60"), "{e}");
+        // "spread: 3.4028236e38" became an infinite f32.
+        let e = err(&format!("{MINIMAL}animation: {{ dither: {{ kind: ordered, spread: 3.5e38 }} }}\n"));
+        assert!(e.contains("animation.dither.spread: "), "{e}");
+        // "dither: null": the parser named the enum type.
+        let e = err(&format!("{MINIMAL}animation: {{ dither: null }}\n"));
+        assert!(e.contains("expected a map of keys with `kind`") && !e.contains("enum"), "{e}");
+        // "survey: grid" without a grid: now says what to do.
+        let e = err(&format!("{MINIMAL}shell: {{ survey: grid }}\n"));
+        assert!(e.contains("add it"), "{e}");
+        // A path holding one quote mark: the fix after it survives whole.
+        let e = err(&MINIMAL.replace("grid: a.tif", "grid: 'a\"b.tif'"));
+        assert!(e.ends_with("correct the path"), "{e}");
+        assert_eq!(brief_quotes("a \"b; fix `c`"), "a \"b; fix `c`");
+        let long = format!("x {}; fix", "y".repeat(1000));
+        assert_eq!(brief_quotes(&long).chars().count(), HEAD_CHARS + 1 + "; fix".len());
     }
 }
