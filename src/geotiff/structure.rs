@@ -95,9 +95,14 @@ fn type_size(t: u16) -> Option<u64> {
     })
 }
 
-/// Whether a field type holds whole numbers (BYTE, SHORT, LONG, their signed forms, LONG8, IFD).
+/// Tags that size the raster or locate its pixels: their field types are checked, since the
+/// decoder accepts more types for them than TIFF allows (an UNDEFINED ImageLength was read as a
+/// byte; found by the mutation test).
+const SIZE_TAGS: [u16; 11] = [256, 257, 258, 273, 277, 278, 279, 322, 323, 324, 325];
+
+/// Whether a field type holds unsigned whole numbers (BYTE, SHORT, LONG, LONG8).
 fn is_integer(t: u16) -> bool {
-    matches!(t, 1 | 3 | 4 | 6 | 8 | 9 | 13 | 16 | 17 | 18)
+    matches!(t, 1 | 3 | 4 | 16)
 }
 
 /// One IFD entry as stored.
@@ -177,18 +182,11 @@ impl<R: Read + Seek> Walker<'_, R> {
                 .map_err(|_| truncated(at, self.len))?;
             buf
         };
-        let signed = matches!(e.typ, 6 | 8 | 9 | 17);
+        // Only the size tags are read here, and `check_size_types` has let through unsigned
+        // types alone.
         let mut out = Vec::with_capacity(n);
         for v in raw.chunks_exact(size as usize) {
-            let u = self.uint(v);
-            let negative = signed && (u >> (8 * size - 1)) & 1 == 1;
-            if negative {
-                return Err(format!(
-                    "{} holds a negative value; the file is damaged, export or copy it again",
-                    tag_name(e.tag)
-                ));
-            }
-            out.push(u);
+            out.push(self.uint(v));
         }
         Ok(out)
     }
@@ -246,6 +244,7 @@ pub(super) fn check<R: Read + Seek>(r: &mut R, len: u64) -> Result<Option<Checke
     };
     let entries = read_entries(&mut w, first_ifd)?;
     check_values(&mut w, &entries)?;
+    check_size_types(&entries)?;
     image_budget(&mut w, &entries).map(Some)
 }
 
@@ -308,6 +307,22 @@ fn check_values<R: Read + Seek>(w: &mut Walker<R>, entries: &[Entry]) -> Result<
         let at = w.uint(&e.field[..w.offset_size() as usize]);
         if at.checked_add(bytes).is_none_or(|end| end > w.len) {
             return Err(past_end(e, bytes, at, w.len));
+        }
+    }
+    Ok(())
+}
+
+/// TIFF 6.0 §8 gives the size and layout tags SHORT or LONG values (BigTIFF adds LONG8 for the
+/// offsets and byte counts); BYTE is let through as a harmless widening. Any other type is refused.
+fn check_size_types(entries: &[Entry]) -> Result<(), String> {
+    for e in entries.iter().filter(|e| SIZE_TAGS.contains(&e.tag)) {
+        if !matches!(e.typ, 1 | 3 | 4 | 16) {
+            return Err(format!(
+                "{} has field type {}, where TIFF allows only whole numbers (SHORT or LONG); the file \
+                 is damaged, export or copy it again",
+                tag_name(e.tag),
+                e.typ
+            ));
         }
     }
     Ok(())
@@ -506,14 +521,28 @@ mod tests {
     }
 
     #[test]
-    fn negative_signed_sizes_and_other_files_are_left_to_the_decoder_or_refused() {
-        // SLONG width of -1.
+    fn signed_sizes_are_refused_and_other_files_left_to_the_decoder() {
+        // SLONG width of -1: a signed type is not one TIFF allows for a size.
         let mut b = strip_image(4, 2, 1, 32);
         b[8 + 2 + 2..8 + 2 + 4].copy_from_slice(&9u16.to_le_bytes());
         b[8 + 2 + 8..8 + 2 + 12].copy_from_slice(&(-1i32).to_le_bytes());
-        assert!(run(&b).unwrap_err().contains("negative"));
+        assert!(run(&b).unwrap_err().contains("field type 9"));
         // Not a TIFF: no verdict here, the decoder words it.
         assert_eq!(run(b"GIF89a....").unwrap(), None);
         assert_eq!(run(b"").unwrap(), None);
+    }
+
+    #[test]
+    fn size_tags_of_other_types_are_refused() {
+        // "tag 257 type 3 -> 7; dimensions := 65535 x 65535": the decoder read the UNDEFINED
+        // ImageLength as its first byte (255) and reserved 63 MiB for a 600-byte file.
+        let mut b = strip_image(4, 2, 1, 32);
+        let at = 8 + 2 + 12 + 2;
+        b[at..at + 2].copy_from_slice(&7u16.to_le_bytes());
+        let err = run(&b).unwrap_err();
+        assert!(err.contains("ImageLength (tag 257) has field type 7"), "{err}");
+        // SHORT, LONG and BYTE pass.
+        b[at..at + 2].copy_from_slice(&3u16.to_le_bytes());
+        assert!(run(&b).is_ok());
     }
 }
