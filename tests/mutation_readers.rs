@@ -14,7 +14,7 @@
 //! never a panic, and never more than `ALLOC_LIMIT_BYTES` of heap at once (measured by a counting
 //! global allocator).
 //!
-//! `cargo test --test mutation_readers` runs 2 400 grid cases and 1 600 job cases with a fixed
+//! `cargo test --test mutation_readers` runs 4 000 grid cases and 2 000 job cases with a fixed
 //! seed. The longer run (DEVELOPERS.md) is
 //! `cargo test --release --test mutation_readers -- --ignored`, 100 000 cases of each kind, or any
 //! count and seed through `DUNEREEL_MUTATION_CASES` and `DUNEREEL_MUTATION_SEED`.
@@ -33,8 +33,8 @@ use mutation::{check_refusal, guarded, yaml_mut, Failure, Reader, Tally};
 #[global_allocator]
 static COUNTING: mutation::alloc::Counting = mutation::alloc::Counting;
 
-const GRID_CASES: u64 = 2_400;
-const JOB_CASES: u64 = 1_600;
+const GRID_CASES: u64 = 4_000;
+const JOB_CASES: u64 = 2_000;
 const LONG_CASES: u64 = 100_000;
 
 fn fixture_dir(kind: &str) -> PathBuf {

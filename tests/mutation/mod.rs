@@ -130,8 +130,9 @@ const FIXES: &[&str] = &[
     "export", "write", "copy", "give", "crop", "resample", "rectify", "flip", "set ", "correct",
     "check", "save", "assign", "use ", "remove", "add ", "list ", "lower", "keep", "indent", "quote",
     "reproject", "replace", "put ", "leave", "turn", "state", "delete", "choose", "name",
-    // A valid value to give instead ("outside 0..=1; e.g. 0.55").
+    // A valid value to give instead ("outside 0..=1; e.g. 0.55", "typical lidar values are …").
     "e.g.",
+    "typical",
 ];
 
 /// Checks a refusal: it names the file, says what is wrong in plain words, and how to fix it.
