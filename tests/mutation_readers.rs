@@ -15,9 +15,9 @@
 //! global allocator).
 //!
 //! `cargo test --test mutation_readers` runs 4 000 grid cases and 2 000 job cases with a fixed
-//! seed. The longer run (DEVELOPERS.md) is
-//! `cargo test --release --test mutation_readers -- --ignored`, 100 000 cases of each kind, or any
-//! count and seed through `DUNEREEL_MUTATION_CASES` and `DUNEREEL_MUTATION_SEED`.
+//! seed. The longer run (DEVELOPERS.md) is `cargo test --test mutation_readers -- --ignored`,
+//! 100 000 cases of each kind, or any count and seed through `DUNEREEL_MUTATION_CASES` and
+//! `DUNEREEL_MUTATION_SEED`; the debug build is meant, for its overflow checks.
 
 mod mutation;
 
@@ -331,6 +331,29 @@ fn job_reader_survives_mutated_job_files() {
 }
 
 #[test]
+fn a_declared_huge_grid_is_refused_before_allocating() {
+    // Every fixture with its ImageWidth and ImageLength set to 100 000: refused, naming the size,
+    // with less than 2 MiB of heap (the 1 MiB read buffer and the tag tables), never the 40 GB the
+    // header asks for.
+    let scratch = tempfile::tempdir().unwrap();
+    for p in mutation::fixtures(&fixture_dir("geotiff"), "tif") {
+        let mut b = std::fs::read(&p).unwrap();
+        let map = TiffMap::read(&b);
+        assert!(map.set_value(&mut b, 256, 0, 100_000) && map.set_value(&mut b, 257, 0, 100_000));
+        let path = scratch.path().join(p.file_name().unwrap());
+        std::fs::write(&path, &b).unwrap();
+        let (out, usage) = mutation::alloc::measure(|| read_grid(&path));
+        let e = out.expect_err("a 100 000 x 100 000 grid in a small file");
+        check_refusal(&e, &path).unwrap();
+        // A SHORT field holds 100 000 as 34 464 (its low 16 bits): still far beyond the file.
+        let (w, h) = (map.values(&b, 256).unwrap()[0], map.values(&b, 257).unwrap()[0]);
+        assert!(w > 30_000 && h > 30_000);
+        assert!(e.to_string().contains(&format!("{w} x {h} cells")), "{e}");
+        assert!(usage.peak_bytes < 2 << 20, "{}: {} bytes at peak", p.display(), usage.peak_bytes);
+    }
+}
+
+#[test]
 fn cases_repeat_exactly() {
     // The same seed and case number make the same file, byte for byte: a reported case can be
     // run again.
@@ -349,7 +372,7 @@ fn cases_repeat_exactly() {
     assert_ne!(make(1).0, make(2).0);
 }
 
-/// The longer run: `cargo test --release --test mutation_readers -- --ignored`
+/// The longer run: `cargo test --test mutation_readers -- --ignored`
 /// (`DUNEREEL_MUTATION_CASES`, `DUNEREEL_MUTATION_SEED` to change the count and the seed). It
 /// starts after the cases of the quick run, so it adds new ones.
 #[test]

@@ -155,7 +155,7 @@ impl TiffMap {
     }
 
     /// Sets value `index` of an integer tag (in place, keeping its type), if the tag is there.
-    fn set_value(&self, b: &mut [u8], tag: u16, index: usize, v: u64) -> bool {
+    pub fn set_value(&self, b: &mut [u8], tag: u16, index: usize, v: u64) -> bool {
         let Some(e) = self.entry(tag) else {
             return false;
         };
