@@ -96,7 +96,17 @@ fn judge_rgb(path: &Path) -> Result<bool, String> {
     }
 }
 
-/// Mutates the GeoTIFF fixtures `cases` times and reads each result with both GeoTIFF readers.
+/// Checks what `job::draft::draft` (`dunereel new`) made of a file.
+fn judge_draft(path: &Path, job: &Path) -> Result<bool, String> {
+    match guarded(|| job::draft::draft(&[path.to_path_buf()], job))? {
+        Err(e) => check_refusal(&e, path).map(|()| false),
+        Ok(text) if text.contains("surveys:") => Ok(true),
+        Ok(text) => Err(format!("drafted a job without surveys: {text}")),
+    }
+}
+
+/// Mutates the GeoTIFF fixtures `cases` times and reads each result with the GeoTIFF readers and
+/// the job drafter.
 fn grid_cases(seed: u64, first: u64, cases: u64) -> Tally {
     let fixtures = mutation::fixtures(&fixture_dir("geotiff"), "tif");
     let pristine: Vec<(Vec<u8>, TiffMap)> = fixtures
@@ -129,7 +139,12 @@ fn grid_cases(seed: u64, first: u64, cases: u64) -> Tally {
         std::fs::write(&path, &b).unwrap();
         tally.cases += 1;
         let started = std::time::Instant::now();
-        for (reader, outcome) in [(Reader::Grid, judge_grid(&path)), (Reader::Rgb, judge_rgb(&path))] {
+        let draft_job = scratch.path().join("drafted.yaml");
+        for (reader, outcome) in [
+            (Reader::Grid, judge_grid(&path)),
+            (Reader::Rgb, judge_rgb(&path)),
+            (Reader::Draft, judge_draft(&path, &draft_job)),
+        ] {
             match outcome {
                 Ok(true) => tally.accepted += 1,
                 Ok(false) => tally.refused += 1,

@@ -196,8 +196,11 @@ pub fn draft(grids: &[PathBuf], job_path: &Path) -> Result<String> {
     let mut found = Vec::with_capacity(grids.len());
     for g in grids {
         let path = std::path::absolute(g).map_err(|e| Error::io(g, e))?;
-        let (date, from) = find_date(&path)?;
+        // The grid first: its reading checks the TIFF structure against the file's length, so the
+        // DateTime tag read after it cannot ask for more than the file holds (found by the
+        // mutation test of the readers).
         let (_, source) = crate::geotiff::read_grid(&path)?;
+        let (date, from) = find_date(&path)?;
         found.push(Found {
             path,
             date,
@@ -356,5 +359,43 @@ mod tests {
             "North ridge, 2030-2034"
         );
         assert_eq!(yaml_text("a: b"), "\"a: b\"");
+    }
+
+    #[test]
+    fn a_damaged_date_tag_is_refused_before_it_is_read() {
+        // Found by the mutation test: the DateTime tag was read with the decoder's own limits, so
+        // a damaged count had it reserve up to 256 MiB for a file of a few hundred bytes. Now the
+        // grid is read (and its structure checked) first.
+        use tiff::encoder::{colortype::Gray32Float, TiffEncoder};
+        use tiff::tags::Tag;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("undated.tif");
+        {
+            let mut out = std::io::BufWriter::new(std::fs::File::create(&path).unwrap());
+            let mut enc = TiffEncoder::new(&mut out).unwrap();
+            let mut image = enc.new_image::<Gray32Float>(3, 2).unwrap();
+            let d = image.encoder();
+            d.write_tag(Tag::ModelPixelScaleTag, &[1.0, 1.0, 0.0][..]).unwrap();
+            d.write_tag(Tag::ModelTiepointTag, &[0.0, 0.0, 0.0, 10.0, 20.0, 0.0][..])
+                .unwrap();
+            d.write_tag(Tag::DateTime, "2031:03:27 10:00:00").unwrap();
+            image.write_data(&[1.0f32; 6]).unwrap();
+        }
+        // The undamaged file gives its date.
+        assert_eq!(find_date(&path).unwrap(), (d(2031, 3, 27), "TIFF DateTime tag"));
+        // Its DateTime entry (little-endian classic TIFF) with a count of 100 million.
+        let mut b = std::fs::read(&path).unwrap();
+        let ifd = u32::from_le_bytes(b[4..8].try_into().unwrap()) as usize;
+        let n = u16::from_le_bytes(b[ifd..ifd + 2].try_into().unwrap()) as usize;
+        let entry = (0..n)
+            .map(|i| ifd + 2 + 12 * i)
+            .find(|&e| u16::from_le_bytes(b[e..e + 2].try_into().unwrap()) == 306)
+            .unwrap();
+        b[entry + 4..entry + 8].copy_from_slice(&100_000_000u32.to_le_bytes());
+        std::fs::write(&path, &b).unwrap();
+        let e = draft(&[path.clone()], &dir.path().join("job.yaml"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("tag 306 declares 100000000 values"), "{e}");
     }
 }

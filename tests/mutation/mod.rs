@@ -32,6 +32,8 @@ pub enum Reader {
     Grid,
     /// `geotiff::read_rgb`.
     Rgb,
+    /// `job::draft::draft` (`dunereel new`), which also reads the TIFF DateTime tag.
+    Draft,
     /// `job::load`, and for an accepted job the survey grids and the timeline it describes.
     Job,
 }
