@@ -255,10 +255,12 @@ fn judge_job(job: &job::Job) -> Result<(), String> {
         }
         Err(e) => {
             let path = match &e {
-                dunereel::Error::Input { path, .. } | dunereel::Error::Job { path, .. } => path.clone(),
-                _ => job.path.clone(),
+                dunereel::Error::Input { path, .. }
+                | dunereel::Error::Job { path, .. }
+                | dunereel::Error::Output { path, .. } => path.clone(),
+                dunereel::Error::Io { .. } => job.path.clone(),
             };
-            check_refusal(&e, &path)?;
+            mutation::check_refusal_or_output(&e, &path)?;
         }
     }
     Ok(())

@@ -217,6 +217,26 @@ pub(super) fn georeference(
     let keys = read_keys(dec)?;
     let units = units::units(&keys)?;
     let placement = georef::place(&model, units.pixel_is_point)?;
+    // A cell size far outside what any elevation grid uses, or an extent that overflows, is damage
+    // (found by the mutation test: a cell height of 1e308 made the grid's south edge -infinity).
+    // 1 µm to 1000 km in CRS units: common practice, no source.
+    let (east, south) = (
+        placement.origin_x + layout.cols as f64 * placement.cell_x,
+        placement.origin_y - layout.rows as f64 * placement.cell_y,
+    );
+    if ![placement.cell_x, placement.cell_y]
+        .iter()
+        .all(|c| (1e-6..=1e6).contains(c))
+        || !(east.is_finite() && south.is_finite())
+    {
+        return Err(format!(
+            "georeferencing gives cells of {} x {} CRS units, which no elevation grid has (1e-6 to \
+             1e6 are accepted); the pixel scale or transformation (tags 33550, 34264) is damaged, \
+             write the GeoTIFF again with the true cell size",
+            georef::number(placement.cell_x),
+            georef::number(placement.cell_y)
+        ));
+    }
     let geometry = GridGeometry {
         cols: layout.cols,
         rows: layout.rows,
@@ -520,5 +540,33 @@ mod tests {
         assert!(brief("é".repeat(300)).starts_with("éé"));
         let msg = parse_nodata(&"x".repeat(5000)).unwrap_err();
         assert!(msg.len() < 300, "{msg}");
+    }
+
+    #[test]
+    fn absurd_cell_sizes_are_refused() {
+        // Found by the mutation test: ModelPixelScale Sy = 1e308 was accepted, and the grid's south
+        // edge became -infinity.
+        use tiff::encoder::{colortype::Gray32Float, TiffEncoder};
+        let dir = tempfile::tempdir().unwrap();
+        for (sy, ok) in [(1e308, false), (1e-9, false), (2e6, false), (0.5, true), (1e5, true)] {
+            let path = dir.path().join("scale.tif");
+            {
+                let mut out = std::io::BufWriter::new(File::create(&path).unwrap());
+                let mut enc = TiffEncoder::new(&mut out).unwrap();
+                let mut image = enc.new_image::<Gray32Float>(3, 2).unwrap();
+                let d = image.encoder();
+                d.write_tag(Tag::ModelPixelScaleTag, &[1.0, sy, 0.0][..]).unwrap();
+                d.write_tag(Tag::ModelTiepointTag, &[0.0, 0.0, 0.0, 10.0, 20.0, 0.0][..])
+                    .unwrap();
+                image.write_data(&[1.0f32; 6]).unwrap();
+            }
+            match read_grid(&path) {
+                Ok(_) => assert!(ok, "Sy = {sy} accepted"),
+                Err(e) => {
+                    assert!(!ok, "Sy = {sy}: {e}");
+                    assert!(e.to_string().contains("which no elevation grid has"), "{e}");
+                }
+            }
+        }
     }
 }

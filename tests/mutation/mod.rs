@@ -131,17 +131,29 @@ const INNARDS: &[&str] = &[
 const FIXES: &[&str] = &[
     "export", "write", "copy", "give", "crop", "resample", "rectify", "flip", "set ", "correct",
     "check", "save", "assign", "use ", "remove", "add ", "list ", "lower", "keep", "indent", "quote",
-    "reproject", "replace", "put ", "leave", "turn", "state", "delete", "choose", "name",
+    "reproject", "replace", "put ", "leave", "turn", "state", "delete", "choose", "name", "raise",
     // A valid value to give instead ("outside 0..=1; e.g. 0.55", "typical lidar values are …").
     "e.g.",
     "typical",
 ];
 
-/// Checks a refusal: it names the file, says what is wrong in plain words, and how to fix it.
+/// Checks a refusal of bad input: an input or job error that names the file, says what is wrong
+/// in plain words, and how to fix it.
 pub fn check_refusal(e: &Error, file: &Path) -> Result<(), String> {
+    check_message(e, file, false)
+}
+
+/// As [`check_refusal`], also accepting a refusal of the output folder (the checks before the
+/// first write make those too).
+pub fn check_refusal_or_output(e: &Error, file: &Path) -> Result<(), String> {
+    check_message(e, file, true)
+}
+
+fn check_message(e: &Error, file: &Path, output_ok: bool) -> Result<(), String> {
     let text = e.to_string();
     let named = match e {
         Error::Input { path, .. } | Error::Job { path, .. } => path == file,
+        Error::Output { path, .. } if output_ok => path == file,
         Error::Io { .. } | Error::Output { .. } => {
             return Err(format!("refused as an I/O or output error, not bad input: {text}"))
         }
@@ -155,7 +167,9 @@ pub fn check_refusal(e: &Error, file: &Path) -> Result<(), String> {
         }
     }
     let message = match e {
-        Error::Input { message, .. } | Error::Job { message, .. } => message,
+        Error::Input { message, .. } | Error::Job { message, .. } | Error::Output { message, .. } => {
+            message
+        }
         _ => unreachable!(),
     };
     if message.len() < 20 {

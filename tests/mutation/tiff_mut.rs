@@ -315,6 +315,9 @@ pub fn mutate(rng: &mut Rng, map: &TiffMap, b: &mut Vec<u8>) -> String {
         8 => {
             // Swapped byte order marker, the rest left as it was.
             let (from, to) = if map.little { (b"II", b"MM") } else { (b"MM", b"II") };
+            if b.len() < 2 {
+                return "(too short to swap the byte order)".into();
+            }
             b[..2].copy_from_slice(to);
             format!(
                 "byte order {} -> {}",
