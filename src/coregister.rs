@@ -636,7 +636,9 @@ pub fn coregister(
     let t = terrain(&reference, &g);
     let given_slice: Option<Vec<bool>> = given.map(|(m, _)| m.iter().copied().collect());
     let found = given.is_none();
+    // Surveys are estimated side by side and gathered in order, so the result is thread-count free.
     let mut estimates: Vec<Estimate> = (1..stack.len())
+        .into_par_iter()
         .map(|i| {
             estimate(
                 &reference,
@@ -657,6 +659,7 @@ pub fn coregister(
             .collect();
         if common.iter().filter(|&&s| s).count() >= opts.min_cells {
             estimates = (1..stack.len())
+                .into_par_iter()
                 .map(|i| {
                     estimate(
                         &reference,

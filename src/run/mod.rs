@@ -221,21 +221,20 @@ fn prepare(job: &Job) -> Result<Prepared> {
     warnings.append(&mut record.warnings);
     series::annotate_surveys(job, &mut record, &registrations, &reprojections);
 
-    // Migration comes from the landforms that changed beyond the LoD, not the whole relief.
-    warnings.extend(series::measure_landforms(
-        job,
-        &stack,
-        &mut record,
-        FLOW_MAX_SIDE,
-    ));
-    clock.lap("landforms");
-    // The displacement field of every consecutive pair, for the morph.
-    // Pairs are independent, so they are estimated side by side (each also uses rayon inside);
-    // results come back in pair order, so the output does not depend on the thread count.
-    let estimated: Vec<FlowResult> = (0..stack.len() - 1)
-        .into_par_iter()
-        .map(|i| pair_field(job, &stack, i))
-        .collect();
+    // Migration comes from the landforms that changed beyond the LoD, not the whole relief; the
+    // morph needs the displacement field of every consecutive pair. The two are independent, so
+    // they run side by side, and so do the pairs within each (results come back in pair order,
+    // so the output does not depend on the thread count).
+    let (landform_warnings, estimated) = rayon::join(
+        || series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE),
+        || {
+            (0..stack.len() - 1)
+                .into_par_iter()
+                .map(|i| pair_field(job, &stack, i))
+                .collect::<Vec<FlowResult>>()
+        },
+    );
+    warnings.extend(landform_warnings);
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for (i, result) in estimated.into_iter().enumerate() {
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
@@ -255,7 +254,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         }
     }
     record.warnings.extend(warnings.iter().cloned());
-    clock.lap("displacement fields");
+    clock.lap("landforms and displacement fields");
     Ok(Prepared {
         stack,
         timeline,
