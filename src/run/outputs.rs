@@ -222,9 +222,21 @@ pub(super) fn write_outputs(
             ],
             effort: geotiff::Effort::Fast,
         };
+        // A field estimated on blocks is written on the blocks: same origin, cells `step` times
+        // as large (the last row and column of blocks may reach past the survey grid's edge).
+        let g = stack.geometry();
+        let (rows, cols) = f.field.east_m.dim();
+        let step = f.field.step.max(1) as f64;
+        let block_grid = crate::grid::GridGeometry {
+            rows,
+            cols,
+            cell_x: g.cell_x * step,
+            cell_y: g.cell_y * step,
+            ..g.clone()
+        };
         geotiff::write_bands(
             &path,
-            stack.geometry(),
+            &block_grid,
             &[&f.field.east_m, &f.field.north_m],
             &wopts,
         )?;

@@ -5,7 +5,6 @@
 use std::path::Path;
 
 use ndarray::Array2;
-use rayon::prelude::*;
 
 use crate::align::AlignedStack;
 use crate::change::{self, ChangeRecord, LandformRecord};
@@ -178,10 +177,9 @@ pub(super) fn measure_landforms(
     max_side: usize,
 ) -> Vec<String> {
     // Pairs are independent: measured side by side, gathered in pair order (thread-count free).
-    let found: Vec<Vec<LandformRecord>> = record
-        .pairs
-        .par_iter_mut()
-        .map(|pair| {
+    // In waves of one pair per thread, so scratch memory is bounded by threads, not pairs.
+    let found: Vec<Vec<LandformRecord>> =
+        crate::waves::map_mut_in_waves(&mut record.pairs, |pair| {
             change::landforms(
                 stack,
                 pair,
@@ -190,8 +188,7 @@ pub(super) fn measure_landforms(
                 job.change.landform_min_area_m2,
                 max_side,
             )
-        })
-        .collect();
+        });
     let mut warnings = Vec::new();
     let mut rows = Vec::new();
     for (pair, found) in record.pairs.iter().zip(found) {
