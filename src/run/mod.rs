@@ -168,7 +168,21 @@ pub(super) struct Prepared {
     pub(super) timings: Vec<(&'static str, f64)>,
 }
 
+/// Which frames a run paints: all of them, or one part's share (whose pair fields are all a part
+/// estimates).
+#[derive(Debug, Clone)]
+pub(super) enum FrameShare {
+    /// Every frame (a whole run, or `assemble`).
+    All,
+    /// Only the frames of one part (`render --part`).
+    Part(parts::PartSpec),
+}
+
 fn prepare(job: &Job) -> Result<Prepared> {
+    prepare_share(job, FrameShare::All)
+}
+
+fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
     let mut clock = Stopwatch::start();
     // Grids are read side by side; the first failing survey in job order is the one reported.
     let surveys = job
@@ -227,11 +241,33 @@ fn prepare(job: &Job) -> Result<Prepared> {
     // so the output does not depend on the thread count).
     let (landform_warnings, estimated) = rayon::join(
         || series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE),
-        || crate::waves::map_in_waves(stack.len() - 1, |i| pair_field(job, &stack, i)),
+        || {
+            // A part estimates only the fields of the intervals its in-between frames fall in.
+            let needed: Vec<bool> = match &share {
+                FrameShare::All => vec![true; stack.len() - 1],
+                FrameShare::Part(spec) => {
+                    let mut needed = vec![false; stack.len() - 1];
+                    for t in &timeline.frames[spec.frames(timeline.frames.len())] {
+                        if !t.kind.is_measured() {
+                            needed[t.from] = true;
+                        }
+                    }
+                    needed
+                }
+            };
+            crate::waves::map_in_waves(stack.len() - 1, |i| {
+                needed[i].then(|| pair_field(job, &stack, i))
+            })
+        },
     );
     warnings.extend(landform_warnings);
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for (i, result) in estimated.into_iter().enumerate() {
+        let Some(result) = result else {
+            // Not this part's: its frames never reach this interval.
+            fields.push(None);
+            continue;
+        };
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
         if result.verdict.is_trusted() {
             fields.push(Some(result));
