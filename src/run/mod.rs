@@ -168,7 +168,21 @@ pub(super) struct Prepared {
     pub(super) timings: Vec<(&'static str, f64)>,
 }
 
+/// Which frames a run paints: all of them, or one part's share (whose pair fields are all a part
+/// estimates).
+#[derive(Debug, Clone)]
+pub(super) enum FrameShare {
+    /// Every frame (a whole run, or `assemble`).
+    All,
+    /// Only the frames of one part (`render --part`).
+    Part(parts::PartSpec),
+}
+
 fn prepare(job: &Job) -> Result<Prepared> {
+    prepare_share(job, FrameShare::All)
+}
+
+fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
     let mut clock = Stopwatch::start();
     // Grids are read side by side; the first failing survey in job order is the one reported.
     let surveys = job
@@ -221,23 +235,39 @@ fn prepare(job: &Job) -> Result<Prepared> {
     warnings.append(&mut record.warnings);
     series::annotate_surveys(job, &mut record, &registrations, &reprojections);
 
-    // Migration comes from the landforms that changed beyond the LoD, not the whole relief.
-    warnings.extend(series::measure_landforms(
-        job,
-        &stack,
-        &mut record,
-        FLOW_MAX_SIDE,
-    ));
-    clock.lap("landforms");
-    // The displacement field of every consecutive pair, for the morph.
-    // Pairs are independent, so they are estimated side by side (each also uses rayon inside);
-    // results come back in pair order, so the output does not depend on the thread count.
-    let estimated: Vec<FlowResult> = (0..stack.len() - 1)
-        .into_par_iter()
-        .map(|i| pair_field(job, &stack, i))
-        .collect();
+    // Migration comes from the landforms that changed beyond the LoD, not the whole relief; the
+    // morph needs the displacement field of every consecutive pair. The two are independent, so
+    // they run side by side, and so do the pairs within each (results come back in pair order,
+    // so the output does not depend on the thread count).
+    let (landform_warnings, estimated) = rayon::join(
+        || series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE),
+        || {
+            // A part estimates only the fields of the intervals its in-between frames fall in.
+            let needed: Vec<bool> = match &share {
+                FrameShare::All => vec![true; stack.len() - 1],
+                FrameShare::Part(spec) => {
+                    let mut needed = vec![false; stack.len() - 1];
+                    for t in &timeline.frames[spec.frames(timeline.frames.len())] {
+                        if !t.kind.is_measured() {
+                            needed[t.from] = true;
+                        }
+                    }
+                    needed
+                }
+            };
+            crate::waves::map_in_waves(stack.len() - 1, |i| {
+                needed[i].then(|| pair_field(job, &stack, i))
+            })
+        },
+    );
+    warnings.extend(landform_warnings);
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for (i, result) in estimated.into_iter().enumerate() {
+        let Some(result) = result else {
+            // Not this part's: its frames never reach this interval.
+            fields.push(None);
+            continue;
+        };
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
         if result.verdict.is_trusted() {
             fields.push(Some(result));
@@ -255,7 +285,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         }
     }
     record.warnings.extend(warnings.iter().cloned());
-    clock.lap("displacement fields");
+    clock.lap("landforms and displacement fields");
     Ok(Prepared {
         stack,
         timeline,
@@ -401,13 +431,28 @@ impl Stopwatch {
             laps: Vec::new(),
         }
     }
-    /// Records the time since the previous lap under `stage`.
+    /// Records the time since the previous lap under `stage`, and logs it with the process's peak
+    /// resident memory so far (where the system tells it), which shows the stage that sets the peak.
     pub(super) fn lap(&mut self, stage: &'static str) {
         let now = std::time::Instant::now();
-        self.laps
-            .push((stage, now.duration_since(self.last).as_secs_f64()));
+        let seconds = now.duration_since(self.last).as_secs_f64();
+        self.laps.push((stage, seconds));
         self.last = now;
+        match peak_resident_mib() {
+            Some(mib) => log::info!(
+                "stage {stage}: {seconds:.2} s; peak resident memory so far {mib:.0} MiB"
+            ),
+            None => log::info!("stage {stage}: {seconds:.2} s"),
+        }
     }
+}
+
+/// The process's peak resident memory (VmHWM) in MiB, read from /proc on Linux; None elsewhere.
+pub fn peak_resident_mib() -> Option<f64> {
+    let status = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
+    let kib: f64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kib / 1024.0)
 }
 
 /// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that

@@ -10,6 +10,8 @@
 //! each frame's crest figure. It is built under a hidden name and renamed into place when complete,
 //! so a part folder that exists is a finished part.
 //!
+//! A part reads and checks everything a whole run does, but estimates only the displacement fields
+//! of the intervals its in-between frames fall in, so N parts share the fields' cost.
 //! `assemble` reads the grids again (the record, the displacement fields and the poster need them),
 //! refuses parts that are missing, from another job, from other grids or from another split, then
 //! hands the frames, decoded from the parts' PNGs (lossless, so equal to the frames in memory), to
@@ -187,7 +189,8 @@ pub fn render_part(job: &Job, opts: &RunOptions, spec: PartSpec) -> Result<PartR
             "this part was rendered already; pass --overwrite to render it again, or assemble the job",
         ));
     }
-    let prepared = prepare(job)?;
+    // A part estimates only the displacement fields its own frames need.
+    let prepared = super::prepare_share(job, super::FrameShare::Part(spec))?;
     let (job_sha256, grids_sha256) = identity(job, &prepared);
     let Prepared {
         stack,
