@@ -38,7 +38,9 @@ const JOB_CASES: u64 = 2_000;
 const LONG_CASES: u64 = 100_000;
 
 fn fixture_dir(kind: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures").join(kind)
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures")
+        .join(kind)
 }
 
 /// Checks what `read_grid` returned for a file; `None` when all is well.
@@ -62,7 +64,9 @@ fn judge_grid(path: &Path) -> Result<bool, String> {
                     .iter()
                     .all(|v| v.is_finite())
             {
-                return Err(format!("accepted a grid with an impossible placement: {g:?}"));
+                return Err(format!(
+                    "accepted a grid with an impossible placement: {g:?}"
+                ));
             }
             if grid.z.iter().any(|v| v.is_infinite()) {
                 return Err("accepted a grid holding infinite elevations".into());
@@ -89,7 +93,9 @@ fn judge_rgb(path: &Path) -> Result<bool, String> {
                 ));
             }
             if !(g.cell_x > 0.0 && g.cell_y > 0.0 && g.cell_x.is_finite() && g.cell_y.is_finite()) {
-                return Err(format!("accepted an image with an impossible placement: {g:?}"));
+                return Err(format!(
+                    "accepted an image with an impossible placement: {g:?}"
+                ));
             }
             Ok(true)
         }
@@ -121,7 +127,11 @@ fn grid_cases(seed: u64, first: u64, cases: u64) -> Tally {
     let mut tally = Tally::default();
     for case in first..first + cases {
         let k = (case % fixtures.len() as u64) as usize;
-        let name = fixtures[k].file_name().unwrap().to_string_lossy().into_owned();
+        let name = fixtures[k]
+            .file_name()
+            .unwrap()
+            .to_string_lossy()
+            .into_owned();
         let (bytes, map) = &pristine[k];
         let mut rng = Rng::for_case(seed, case);
         let mut b = bytes.clone();
@@ -216,7 +226,11 @@ fn non_finite(debug: &str) -> Option<String> {
             let after = b.get(i + word.len()).copied();
             let edge = |c: Option<u8>| c.is_none_or(|c| !c.is_ascii_alphanumeric() && c != b'_');
             if edge(before) && edge(after) {
-                let from = plain[..i].char_indices().rev().nth(60).map_or(0, |(k, _)| k);
+                let from = plain[..i]
+                    .char_indices()
+                    .rev()
+                    .nth(60)
+                    .map_or(0, |(k, _)| k);
                 return Some(plain[from..i + word.len()].to_string());
             }
         }
@@ -235,8 +249,15 @@ fn judge_job(job: &job::Job) -> Result<(), String> {
     if !dates.windows(2).all(|w| w[0] < w[1]) {
         return Err("accepted surveys out of date order".into());
     }
-    let plan = guarded(|| Ok(dunereel::timeline::plan(&dates, job.frame_plan, job.fps, job.hold_s)))?
-        .map_err(|e| e.to_string())?;
+    let plan = guarded(|| {
+        Ok(dunereel::timeline::plan(
+            &dates,
+            job.frame_plan,
+            job.fps,
+            job.hold_s,
+        ))
+    })?
+    .map_err(|e| e.to_string())?;
     if plan.frames.len() > 10_000 {
         return Err(format!("accepted a job of {} frames", plan.frames.len()));
     }
@@ -250,7 +271,9 @@ fn judge_job(job: &job::Job) -> Result<(), String> {
     match guarded(|| dunereel::run::check_job(job, &dunereel::RunOptions::default()))? {
         Ok(_) => {
             if let Some(near) = non_finite(&format!("{job:?}")) {
-                return Err(format!("accepted a job holding a number that is not finite: …{near}"));
+                return Err(format!(
+                    "accepted a job holding a number that is not finite: …{near}"
+                ));
             }
         }
         Err(e) => {
@@ -276,7 +299,9 @@ fn job_cases(seed: u64, first: u64, cases: u64) -> Tally {
         let mut rng = Rng::for_case(seed, case);
         let mut b = pristine.clone();
         let rounds = 1 + usize::from(rng.below(4) == 0) + usize::from(rng.below(8) == 0);
-        let what: Vec<String> = (0..rounds).map(|_| yaml_mut::mutate(&mut rng, &mut b)).collect();
+        let what: Vec<String> = (0..rounds)
+            .map(|_| yaml_mut::mutate(&mut rng, &mut b))
+            .collect();
         let path = scratch.path().join("jobs").join(name);
         std::fs::write(&path, &b).unwrap();
         tally.cases += 1;
@@ -311,7 +336,11 @@ fn assert_clean(tally: &Tally, seed: u64) {
     eprintln!("{}", tally.report(seed));
     assert!(tally.failures.is_empty(), "{}", tally.report(seed));
     // A run where every case is refused (or every case is read) tests too little.
-    assert!(tally.accepted > 0 && tally.refused > 0, "{}", tally.report(seed));
+    assert!(
+        tally.accepted > 0 && tally.refused > 0,
+        "{}",
+        tally.report(seed)
+    );
 }
 
 #[test]
@@ -363,10 +392,18 @@ fn a_declared_huge_grid_is_refused_before_allocating() {
         let e = out.expect_err("a 100 000 x 100 000 grid in a small file");
         check_refusal(&e, &path).unwrap();
         // A SHORT field holds 100 000 as 34 464 (its low 16 bits): still far beyond the file.
-        let (w, h) = (map.values(&b, 256).unwrap()[0], map.values(&b, 257).unwrap()[0]);
+        let (w, h) = (
+            map.values(&b, 256).unwrap()[0],
+            map.values(&b, 257).unwrap()[0],
+        );
         assert!(w > 30_000 && h > 30_000);
         assert!(e.to_string().contains(&format!("{w} x {h} cells")), "{e}");
-        assert!(usage.peak_bytes < 2 << 20, "{}: {} bytes at peak", p.display(), usage.peak_bytes);
+        assert!(
+            usage.peak_bytes < 2 << 20,
+            "{}: {} bytes at peak",
+            p.display(),
+            usage.peak_bytes
+        );
     }
 }
 

@@ -88,7 +88,11 @@ pub(super) fn number(v: f64) -> String {
         } else {
             s
         };
-        if v.is_finite() { s } else { format!("{v}") }
+        if v.is_finite() {
+            s
+        } else {
+            format!("{v}")
+        }
     } else {
         format!("{v:.6e}")
     }
@@ -287,11 +291,25 @@ mod tests {
         let mut m = vec![0.0; 16];
         (m[0], m[1], m[3], m[5], m[7], m[15]) = (1.0, 1e-300, 10.0, -1.0, 20.0, 1.0);
         // 1e-300 is below the rounding tolerance relative to a cell size of 1: not a rotation.
-        assert!(place(&ModelTags { transformation: Some(m.clone()), ..Default::default() }, false).is_ok());
+        assert!(place(
+            &ModelTags {
+                transformation: Some(m.clone()),
+                ..Default::default()
+            },
+            false
+        )
+        .is_ok());
         m[0] = 1e-290;
         m[5] = -1e-290;
         m[1] = 1e-250;
-        let err = place(&ModelTags { transformation: Some(m), ..Default::default() }, false).unwrap_err();
+        let err = place(
+            &ModelTags {
+                transformation: Some(m),
+                ..Default::default()
+            },
+            false,
+        )
+        .unwrap_err();
         assert!(err.len() < 300, "{err}");
         assert!(err.contains("1.000000e-250"), "{err}");
     }

@@ -347,9 +347,12 @@ pub(super) fn short_tag<R: std::io::Read + std::io::Seek>(
     dec: &mut Decoder<R>,
     tag: Tag,
 ) -> Result<Option<u16>, String> {
-    let values: Option<Vec<u16>> = dec
-        .find_tag_unsigned_vec(tag)
-        .map_err(|e| format!("tag {tag:?} cannot be read ({}); the file is damaged, export or copy it again", brief(e)))?;
+    let values: Option<Vec<u16>> = dec.find_tag_unsigned_vec(tag).map_err(|e| {
+        format!(
+            "tag {tag:?} cannot be read ({}); the file is damaged, export or copy it again",
+            brief(e)
+        )
+    })?;
     match values.as_deref() {
         None | Some([]) => Ok(None),
         Some([first, rest @ ..]) => {
@@ -357,7 +360,8 @@ pub(super) fn short_tag<R: std::io::Read + std::io::Seek>(
                 && matches!(tag, Tag::BitsPerSample | Tag::SampleFormat)
             {
                 return Err(format!(
-                    "bands differ in {tag:?} ({}); write band 1 alone as a single-band GeoTIFF", brief(format!("{values:?}"))
+                    "bands differ in {tag:?} ({}); write band 1 alone as a single-band GeoTIFF",
+                    brief(format!("{values:?}"))
                 ));
             }
             Ok(Some(*first))
@@ -370,7 +374,12 @@ fn f64_tag<R: std::io::Read + std::io::Seek>(
     tag: Tag,
     name: &str,
 ) -> Result<Option<Vec<f64>>, String> {
-    let bad = |e: TiffError| format!("{name} cannot be read ({}); write the GeoTIFF again", brief(e));
+    let bad = |e: TiffError| {
+        format!(
+            "{name} cannot be read ({}); write the GeoTIFF again",
+            brief(e)
+        )
+    };
     match dec.find_tag(tag).map_err(bad)? {
         None => Ok(None),
         Some(v) => v.into_f64_vec().map(Some).map_err(bad),
@@ -387,7 +396,10 @@ fn read_keys<R: std::io::Read + std::io::Seek>(dec: &mut Decoder<R>) -> Result<G
         Err(e) => Err(e),
     }
     .map_err(|e| {
-        format!("GeoKeyDirectory (tag 34735) cannot be read ({}); write the GeoTIFF again", brief(e))
+        format!(
+            "GeoKeyDirectory (tag 34735) cannot be read ({}); write the GeoTIFF again",
+            brief(e)
+        )
     })?;
     let doubles =
         f64_tag(dec, Tag::GeoDoubleParamsTag, "GeoDoubleParams (tag 34736)")?.unwrap_or_default();
@@ -414,7 +426,12 @@ fn read_nodata<R: std::io::Read + std::io::Seek>(
                  text such as \"-9999\""
             ));
         }
-        Err(e) => return Err(format!("GDAL_NODATA (tag 42113) cannot be read ({}); write the GeoTIFF again", brief(e))),
+        Err(e) => {
+            return Err(format!(
+                "GDAL_NODATA (tag 42113) cannot be read ({}); write the GeoTIFF again",
+                brief(e)
+            ))
+        }
     };
     parse_nodata(&text).map(Some)
 }
@@ -508,10 +525,12 @@ mod tests {
         let mut enc = TiffEncoder::new(&mut out).unwrap();
         let mut image = enc.new_image::<Gray32Float>(3, 2).unwrap();
         let dir = image.encoder();
-        dir.write_tag(Tag::ModelPixelScaleTag, &[1.0, 1.0, 0.0][..]).unwrap();
+        dir.write_tag(Tag::ModelPixelScaleTag, &[1.0, 1.0, 0.0][..])
+            .unwrap();
         dir.write_tag(Tag::ModelTiepointTag, &[0.0, 0.0, 0.0, 10.0, 20.0, 0.0][..])
             .unwrap();
-        dir.write_tag(Tag::GdalNodata, &[45u16, 57, 57, 57, 57][..]).unwrap();
+        dir.write_tag(Tag::GdalNodata, &[45u16, 57, 57, 57, 57][..])
+            .unwrap();
         image.write_data(&[1.0f32; 6]).unwrap();
     }
 
@@ -523,7 +542,10 @@ mod tests {
         let path = dir.path().join("nodata-numbers.tif");
         nodata_as_numbers(&path);
         let err = read_grid(&path).unwrap_err().to_string();
-        assert!(err.contains("holds a list of 5 binary values instead of text"), "{err}");
+        assert!(
+            err.contains("holds a list of 5 binary values instead of text"),
+            "{err}"
+        );
         assert!(!err.contains("Short("), "{err}");
     }
 
@@ -548,14 +570,21 @@ mod tests {
         // edge became -infinity.
         use tiff::encoder::{colortype::Gray32Float, TiffEncoder};
         let dir = tempfile::tempdir().unwrap();
-        for (sy, ok) in [(1e308, false), (1e-9, false), (2e6, false), (0.5, true), (1e5, true)] {
+        for (sy, ok) in [
+            (1e308, false),
+            (1e-9, false),
+            (2e6, false),
+            (0.5, true),
+            (1e5, true),
+        ] {
             let path = dir.path().join("scale.tif");
             {
                 let mut out = std::io::BufWriter::new(File::create(&path).unwrap());
                 let mut enc = TiffEncoder::new(&mut out).unwrap();
                 let mut image = enc.new_image::<Gray32Float>(3, 2).unwrap();
                 let d = image.encoder();
-                d.write_tag(Tag::ModelPixelScaleTag, &[1.0, sy, 0.0][..]).unwrap();
+                d.write_tag(Tag::ModelPixelScaleTag, &[1.0, sy, 0.0][..])
+                    .unwrap();
                 d.write_tag(Tag::ModelTiepointTag, &[0.0, 0.0, 0.0, 10.0, 20.0, 0.0][..])
                     .unwrap();
                 image.write_data(&[1.0f32; 6]).unwrap();

@@ -358,8 +358,8 @@ fn image_budget<R: Read + Seek>(w: &mut Walker<R>, entries: &[Entry]) -> Result<
     let bands = first(w, entries, 277)?.unwrap_or(1).max(1);
     let bits = first(w, entries, 258)?.unwrap_or(1).max(1);
     let compression = first(w, entries, 259)?.unwrap_or(1);
-    let declared = u128::from(width) * u128::from(height) * u128::from(bands) * u128::from(bits)
-        / 8;
+    let declared =
+        u128::from(width) * u128::from(height) * u128::from(bands) * u128::from(bits) / 8;
     let tiled = entries.iter().any(|e| e.tag == 324);
     let (offsets_tag, counts_tag) = if tiled { (324, 325) } else { (273, 279) };
     let find = |tag: u16| entries.iter().find(|e| e.tag == tag).copied();
@@ -491,7 +491,10 @@ mod tests {
         // A tag of 100 million LONGs in a tiny file (the decoder would reserve them first).
         let b = tiff(&[(256, 4, 1, 4), (33550, 4, 100_000_000, 8)], &[]);
         let err = run(&b).unwrap_err();
-        assert!(err.contains("ModelPixelScale (tag 33550) declares 100000000 values"), "{err}");
+        assert!(
+            err.contains("ModelPixelScale (tag 33550) declares 100000000 values"),
+            "{err}"
+        );
         // A strip whose byte count runs past the end of the file.
         let err = run(&strip_image(4, 2, 1, 33)).unwrap_err();
         assert!(err.contains("strip 0 of the image is 33 bytes"), "{err}");
@@ -540,7 +543,10 @@ mod tests {
         let at = 8 + 2 + 12 + 2;
         b[at..at + 2].copy_from_slice(&7u16.to_le_bytes());
         let err = run(&b).unwrap_err();
-        assert!(err.contains("ImageLength (tag 257) has field type 7"), "{err}");
+        assert!(
+            err.contains("ImageLength (tag 257) has field type 7"),
+            "{err}"
+        );
         // SHORT, LONG and BYTE pass.
         b[at..at + 2].copy_from_slice(&3u16.to_le_bytes());
         assert!(run(&b).is_ok());

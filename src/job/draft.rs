@@ -375,14 +375,18 @@ mod tests {
             let mut enc = TiffEncoder::new(&mut out).unwrap();
             let mut image = enc.new_image::<Gray32Float>(3, 2).unwrap();
             let d = image.encoder();
-            d.write_tag(Tag::ModelPixelScaleTag, &[1.0, 1.0, 0.0][..]).unwrap();
+            d.write_tag(Tag::ModelPixelScaleTag, &[1.0, 1.0, 0.0][..])
+                .unwrap();
             d.write_tag(Tag::ModelTiepointTag, &[0.0, 0.0, 0.0, 10.0, 20.0, 0.0][..])
                 .unwrap();
             d.write_tag(Tag::DateTime, "2031:03:27 10:00:00").unwrap();
             image.write_data(&[1.0f32; 6]).unwrap();
         }
         // The undamaged file gives its date.
-        assert_eq!(find_date(&path).unwrap(), (d(2031, 3, 27), "TIFF DateTime tag"));
+        assert_eq!(
+            find_date(&path).unwrap(),
+            (d(2031, 3, 27), "TIFF DateTime tag")
+        );
         // Its DateTime entry (little-endian classic TIFF) with a count of 100 million.
         let mut b = std::fs::read(&path).unwrap();
         let ifd = u32::from_le_bytes(b[4..8].try_into().unwrap()) as usize;

@@ -37,7 +37,11 @@ pub(super) fn yaml_error(path: &Path, job_text: &str, e: &serde_yaml::Error) -> 
         .map(|n| {
             let before = &job_text.as_bytes()[..n];
             let line = before.iter().filter(|&&c| c == b'\n').count() + 1;
-            let column = n - before.iter().rposition(|&c| c == b'\n').map_or(0, |i| i + 1) + 1;
+            let column = n - before
+                .iter()
+                .rposition(|&c| c == b'\n')
+                .map_or(0, |i| i + 1)
+                + 1;
             (line, column)
         });
     let place = match (offset_place, e.location()) {
@@ -45,7 +49,11 @@ pub(super) fn yaml_error(path: &Path, job_text: &str, e: &serde_yaml::Error) -> 
         (None, Some(l)) => format!("line {} column {}", l.line(), l.column()),
         (None, None) => "job file".to_string(),
     };
-    let text = text.split(" at position ").next().unwrap_or(&text).to_string();
+    let text = text
+        .split(" at position ")
+        .next()
+        .unwrap_or(&text)
+        .to_string();
     // A tab where YAML expects indentation: the parser's own words do not say so.
     let tab_line = e
         .location()
@@ -111,7 +119,10 @@ pub(super) fn non_finite(v: &serde_yaml::Value, at: String) -> Option<(String, f
         Value::Mapping(m) => m.iter().find_map(|(k, item)| {
             let key = match k {
                 Value::String(s) => s.clone(),
-                other => serde_yaml::to_string(other).unwrap_or_default().trim().to_string(),
+                other => serde_yaml::to_string(other)
+                    .unwrap_or_default()
+                    .trim()
+                    .to_string(),
             };
             non_finite(item, join(&key))
         }),
@@ -217,7 +228,10 @@ fn plain_words(text: &str) -> String {
     // "expected internally tagged enum Dither", "expected enum Unit": type names mean nothing to
     // the user.
     for (rust, plain) in [
-        ("expected internally tagged enum ", "expected a map of keys with `kind`"),
+        (
+            "expected internally tagged enum ",
+            "expected a map of keys with `kind`",
+        ),
         ("expected enum ", "expected one of the words this key takes"),
     ] {
         while let Some(i) = out.find(rust) {
@@ -264,7 +278,10 @@ fn plain_words(text: &str) -> String {
             "untagged and internally tagged enums do not support enum input",
             "found a value marked with a YAML tag (`!name`), which job files do not use",
         ),
-        ("invalid type: enum", "found a value marked with a YAML tag (`!name`)"),
+        (
+            "invalid type: enum",
+            "found a value marked with a YAML tag (`!name`)",
+        ),
         ("invalid type: boolean", "found"),
     ] {
         out = out.replace(rust, plain);
@@ -571,8 +588,20 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         ("diffuse", s.diffuse, 0.0, 2.0, d.diffuse),
         ("specular", s.specular, 0.0, 1.0, d.specular),
         ("shininess", s.shininess, 1.0, 1000.0, d.shininess),
-        ("shadow_softness_cells", s.shadow_softness_cells, 0.0, 10.0, d.shadow_softness_cells),
-        ("hollow_darkening", s.hollow_darkening, 0.0, 1.0, d.hollow_darkening),
+        (
+            "shadow_softness_cells",
+            s.shadow_softness_cells,
+            0.0,
+            10.0,
+            d.shadow_softness_cells,
+        ),
+        (
+            "hollow_darkening",
+            s.hollow_darkening,
+            0.0,
+            1.0,
+            d.hollow_darkening,
+        ),
     ] {
         if !(lo..=hi).contains(&val) {
             return Err(bad(
@@ -584,7 +613,10 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
     if !(s.intensity > 0.0 && s.intensity <= 10.0) {
         return Err(bad(
             "sun.intensity",
-            format!("{} is out of range; use a value above 0 and at most 10 (1 is full sunlight)", s.intensity),
+            format!(
+                "{} is out of range; use a value above 0 and at most 10 (1 is full sunlight)",
+                s.intensity
+            ),
         ));
     }
 
@@ -710,8 +742,10 @@ pub(super) fn resolve(path: &Path, text: String, f: JobFile) -> Result<Job> {
         if v > MAX_FLOW_LENGTH_M {
             return Err(bad(
                 key,
-                format!("{v} m is more than the {MAX_FLOW_LENGTH_M} m this program searches; give the \
-                         largest distance the dune can have moved between two surveys, e.g. 60"),
+                format!(
+                    "{v} m is more than the {MAX_FLOW_LENGTH_M} m this program searches; give the \
+                         largest distance the dune can have moved between two surveys, e.g. 60"
+                ),
             ));
         }
     }
@@ -1219,12 +1253,18 @@ mod tests {
     fn deep_brackets_are_refused_before_the_parser_runs() {
         // "nesting 20000 deep": 40 kB of brackets kept the YAML scanner busy for 2.4 s, and the
         // time grows with the square of the depth.
-        let deep = MINIMAL.replace("title: Test dune", &format!("title: {}", "[".repeat(200_000)));
+        let deep = MINIMAL.replace(
+            "title: Test dune",
+            &format!("title: {}", "[".repeat(200_000)),
+        );
         let e = err(&deep);
         assert!(e.contains("line 2 column 72"), "{e}");
         assert!(e.contains("nest more than 64 deep"), "{e}");
         // Balanced brackets pass however many; the deepest real job (polygons) passes.
-        assert_eq!(too_deep(&format!("title: \"{}\"\n", "[]".repeat(1000))), None);
+        assert_eq!(
+            too_deep(&format!("title: \"{}\"\n", "[]".repeat(1000))),
+            None
+        );
         assert_eq!(too_deep("p: [[[0, 0], [1, 0], [1, 1]]]\n"), None);
         // A quote mark inside a plain text ("byte edit 127 := '") hid 20 000 brackets from an
         // earlier version of this check.
@@ -1236,14 +1276,38 @@ mod tests {
     fn every_parser_complaint_says_what_to_do() {
         // "line 1 repeated", "value at 922 := !!binary …", a truncated flow map, a byte 0x01.
         for (text, want) in [
-            (format!("format_version: 1\n{MINIMAL}"), "keep one of them and remove the other"),
-            (format!("{MINIMAL}animation: {{ dither: {{ kind: sparkle }} }}\n"), "use one of the values listed"),
-            (MINIMAL.replace("folder: out }", "folder: out"), "close every bracket and quote"),
-            (MINIMAL.replace("Test dune", "Test\u{1}dune"), "save the job file again as plain UTF-8"),
-            (MINIMAL.replace("title: Test dune", "title: [1]"), "correct the value"),
-            (MINIMAL.replace("format_version: 1", "format_version: ~"), "found nothing (an empty value)"),
-            (MINIMAL.replace("a.tif }", "a.tif, sigma_z_m: [1] }"), "expected a number or a value with its unit"),
-            (MINIMAL.replace("{ date: 2030-05-01, grid: a.tif }", "[1]"), "expected a map of keys"),
+            (
+                format!("format_version: 1\n{MINIMAL}"),
+                "keep one of them and remove the other",
+            ),
+            (
+                format!("{MINIMAL}animation: {{ dither: {{ kind: sparkle }} }}\n"),
+                "use one of the values listed",
+            ),
+            (
+                MINIMAL.replace("folder: out }", "folder: out"),
+                "close every bracket and quote",
+            ),
+            (
+                MINIMAL.replace("Test dune", "Test\u{1}dune"),
+                "save the job file again as plain UTF-8",
+            ),
+            (
+                MINIMAL.replace("title: Test dune", "title: [1]"),
+                "correct the value",
+            ),
+            (
+                MINIMAL.replace("format_version: 1", "format_version: ~"),
+                "found nothing (an empty value)",
+            ),
+            (
+                MINIMAL.replace("a.tif }", "a.tif, sigma_z_m: [1] }"),
+                "expected a number or a value with its unit",
+            ),
+            (
+                MINIMAL.replace("{ date: 2030-05-01, grid: a.tif }", "[1]"),
+                "expected a map of keys",
+            ),
         ] {
             let e = err(&text);
             assert!(e.contains(want), "expected `{want}` in: {e}");
@@ -1257,7 +1321,10 @@ mod tests {
     #[test]
     fn long_values_are_cut_in_messages() {
         // "value at 596 := a long value (200000 bytes)": the message quoted all of it.
-        let e = err(&MINIMAL.replace("title: Test dune", &format!("title: Test\nview: {{ width: {} }}", "x".repeat(200_000))));
+        let e = err(&MINIMAL.replace(
+            "title: Test dune",
+            &format!("title: Test\nview: {{ width: {} }}", "x".repeat(200_000)),
+        ));
         assert!(e.len() < 400, "{} bytes: {}", e.len(), &e[..300]);
         assert!(e.contains("x…\""), "{e}");
         let e = err(&MINIMAL.replace("grid: a.tif", &format!("grid: {}.tif", "é".repeat(20_000))));
@@ -1292,10 +1359,22 @@ mod tests {
         // "value at 816 := .nan" (water.level_m) and "-.inf" (water.opacity) passed the reader and
         // reached the renderer's checks, which word them without a fix.
         for (text, key) in [
-            (format!("{MINIMAL}water: {{ level_m: .nan }}\n"), "water.level_m"),
-            (format!("{MINIMAL}water: {{ opacity: -.inf }}\n"), "water.opacity"),
-            (format!("{MINIMAL}change: {{ transect: [[0, 0], [-.inf, 1]] }}\n"), "change.transect[1][0]"),
-            (MINIMAL.replace("a.tif }", "a.tif, sigma_z_m: { value: .inf, unit: foot } }"), "surveys[0].sigma_z_m.value"),
+            (
+                format!("{MINIMAL}water: {{ level_m: .nan }}\n"),
+                "water.level_m",
+            ),
+            (
+                format!("{MINIMAL}water: {{ opacity: -.inf }}\n"),
+                "water.opacity",
+            ),
+            (
+                format!("{MINIMAL}change: {{ transect: [[0, 0], [-.inf, 1]] }}\n"),
+                "change.transect[1][0]",
+            ),
+            (
+                MINIMAL.replace("a.tif }", "a.tif, sigma_z_m: { value: .inf, unit: foot } }"),
+                "surveys[0].sigma_z_m.value",
+            ),
         ] {
             let e = err(&text);
             assert!(e.contains(&format!("{key}: ")), "expected `{key}` in: {e}");
@@ -1303,7 +1382,11 @@ mod tests {
         }
         // A title that reads like a number is text, and passes.
         let d = job_dir();
-        assert!(parse(&d.path().join("job.yaml"), MINIMAL.replace("Test dune", "'.nan'")).is_ok());
+        assert!(parse(
+            &d.path().join("job.yaml"),
+            MINIMAL.replace("Test dune", "'.nan'")
+        )
+        .is_ok());
     }
 
     #[test]
@@ -1328,13 +1411,21 @@ mod tests {
         // "search_radius_m: 3.4028236e38": the displacement search overflowed (a panic in a debug
         // build, a search without end in a release build).
         let e = err(&format!("{MINIMAL}flow: {{ search_radius_m: 3.4e30 }}\n"));
-        assert!(e.contains("flow.search_radius_m: ") && e.contains("e.g. 60"), "{e}");
+        assert!(
+            e.contains("flow.search_radius_m: ") && e.contains("e.g. 60"),
+            "{e}"
+        );
         // "spread: 3.4028236e38" became an infinite f32.
-        let e = err(&format!("{MINIMAL}animation: {{ dither: {{ kind: ordered, spread: 3.5e38 }} }}\n"));
+        let e = err(&format!(
+            "{MINIMAL}animation: {{ dither: {{ kind: ordered, spread: 3.5e38 }} }}\n"
+        ));
         assert!(e.contains("animation.dither.spread: "), "{e}");
         // "dither: null": the parser named the enum type.
         let e = err(&format!("{MINIMAL}animation: {{ dither: null }}\n"));
-        assert!(e.contains("expected a map of keys with `kind`") && !e.contains("enum"), "{e}");
+        assert!(
+            e.contains("expected a map of keys with `kind`") && !e.contains("enum"),
+            "{e}"
+        );
         // "survey: grid" without a grid: now says what to do.
         let e = err(&format!("{MINIMAL}shell: {{ survey: grid }}\n"));
         assert!(e.contains("add it"), "{e}");
@@ -1343,13 +1434,18 @@ mod tests {
         assert!(e.ends_with("correct the path"), "{e}");
         assert_eq!(brief_quotes("a \"b; fix `c`"), "a \"b; fix `c`");
         let long = format!("x {}; fix", "y".repeat(1000));
-        assert_eq!(brief_quotes(&long).chars().count(), HEAD_CHARS + 1 + "; fix".len());
+        assert_eq!(
+            brief_quotes(&long).chars().count(),
+            HEAD_CHARS + 1 + "; fix".len()
+        );
     }
 
     #[test]
     fn yaml_tags_are_named_in_words() {
         // "value at 1582 := !custom 3" on animation.dither.spread: serde's words about enums.
-        let e = err(&format!("{MINIMAL}animation: {{ dither: {{ kind: ordered, spread: !custom 3 }} }}\n"));
+        let e = err(&format!(
+            "{MINIMAL}animation: {{ dither: {{ kind: ordered, spread: !custom 3 }} }}\n"
+        ));
         assert!(e.contains("YAML tag") && !e.contains("enum"), "{e}");
     }
 }

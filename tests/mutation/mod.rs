@@ -65,7 +65,8 @@ impl Tally {
     /// Notes how long a case took.
     pub fn timed(&mut self, ms: u128, case: u64, what: &str) {
         if self.slowest.len() < 3 || ms > self.slowest[2].0 {
-            self.slowest.push((ms, case, what.chars().take(120).collect()));
+            self.slowest
+                .push((ms, case, what.chars().take(120).collect()));
             self.slowest.sort_by(|a, b| b.0.cmp(&a.0));
             self.slowest.truncate(3);
         }
@@ -129,9 +130,37 @@ const INNARDS: &[&str] = &[
 
 /// Words with which a message tells the user what to do.
 const FIXES: &[&str] = &[
-    "export", "write", "copy", "give", "crop", "resample", "rectify", "flip", "set ", "correct",
-    "check", "save", "assign", "use ", "remove", "add ", "list ", "lower", "keep", "indent", "quote",
-    "reproject", "replace", "put ", "leave", "turn", "state", "delete", "choose", "name", "raise",
+    "export",
+    "write",
+    "copy",
+    "give",
+    "crop",
+    "resample",
+    "rectify",
+    "flip",
+    "set ",
+    "correct",
+    "check",
+    "save",
+    "assign",
+    "use ",
+    "remove",
+    "add ",
+    "list ",
+    "lower",
+    "keep",
+    "indent",
+    "quote",
+    "reproject",
+    "replace",
+    "put ",
+    "leave",
+    "turn",
+    "state",
+    "delete",
+    "choose",
+    "name",
+    "raise",
     // A valid value to give instead ("outside 0..=1; e.g. 0.55", "typical lidar values are …").
     "e.g.",
     "typical",
@@ -155,7 +184,9 @@ fn check_message(e: &Error, file: &Path, output_ok: bool) -> Result<(), String> 
         Error::Input { path, .. } | Error::Job { path, .. } => path == file,
         Error::Output { path, .. } if output_ok => path == file,
         Error::Io { .. } | Error::Output { .. } => {
-            return Err(format!("refused as an I/O or output error, not bad input: {text}"))
+            return Err(format!(
+                "refused as an I/O or output error, not bad input: {text}"
+            ))
         }
     };
     if !named || !text.starts_with(&file.display().to_string()) {
@@ -167,9 +198,9 @@ fn check_message(e: &Error, file: &Path, output_ok: bool) -> Result<(), String> 
         }
     }
     let message = match e {
-        Error::Input { message, .. } | Error::Job { message, .. } | Error::Output { message, .. } => {
-            message
-        }
+        Error::Input { message, .. }
+        | Error::Job { message, .. }
+        | Error::Output { message, .. } => message,
         _ => unreachable!(),
     };
     if message.len() < 20 {

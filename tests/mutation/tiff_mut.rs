@@ -314,7 +314,11 @@ pub fn mutate(rng: &mut Rng, map: &TiffMap, b: &mut Vec<u8>) -> String {
         }
         8 => {
             // Swapped byte order marker, the rest left as it was.
-            let (from, to) = if map.little { (b"II", b"MM") } else { (b"MM", b"II") };
+            let (from, to) = if map.little {
+                (b"II", b"MM")
+            } else {
+                (b"MM", b"II")
+            };
             if b.len() < 2 {
                 return "(too short to swap the byte order)".into();
             }
@@ -459,7 +463,10 @@ pub fn mutate(rng: &mut Rng, map: &TiffMap, b: &mut Vec<u8>) -> String {
 /// file uses) that expands to far more than the strip holds, appended and pointed to by the first
 /// chunk; sometimes with dimensions declared to match what it expands to.
 fn bomb(rng: &mut Rng, map: &TiffMap, b: &mut Vec<u8>) -> String {
-    let compression = map.values(b, 259).and_then(|v| v.first().copied()).unwrap_or(1);
+    let compression = map
+        .values(b, 259)
+        .and_then(|v| v.first().copied())
+        .unwrap_or(1);
     let expands_to = [1usize << 20, 8 << 20][rng.below(2) as usize];
     let lzw = match compression {
         8 | 32946 => false,
@@ -484,7 +491,8 @@ fn bomb(rng: &mut Rng, map: &TiffMap, b: &mut Vec<u8>) -> String {
         stream.len()
     );
     if rng.below(2) == 0 {
-        let (w, h) = [(100_000u64, 100_000u64), (4096, 4096), (30_000, 30_000)][rng.below(3) as usize];
+        let (w, h) =
+            [(100_000u64, 100_000u64), (4096, 4096), (30_000, 30_000)][rng.below(3) as usize];
         map.set_value(b, 256, 0, w);
         map.set_value(b, 257, 0, h);
         map.set_value(b, 278, 0, h);

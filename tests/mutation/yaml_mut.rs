@@ -194,7 +194,11 @@ pub fn mutate(rng: &mut Rng, b: &mut Vec<u8>) -> String {
                 _ => {
                     let pad = [&b" "[..], b"  ", b"   ", b"\t"][rng.below(4) as usize];
                     b.splice(s..s, pad.iter().copied());
-                    format!("line {} indented by {:?}", k + 1, String::from_utf8_lossy(pad))
+                    format!(
+                        "line {} indented by {:?}",
+                        k + 1,
+                        String::from_utf8_lossy(pad)
+                    )
                 }
             }
         }
@@ -211,14 +215,24 @@ pub fn mutate(rng: &mut Rng, b: &mut Vec<u8>) -> String {
                 _ => format!("\"{}\"", "\\u00e9".repeat(20_000)),
             };
             replace(b, place, long.as_bytes());
-            format!("value at {} := a long value ({} bytes)", place.0, long.len())
+            format!(
+                "value at {} := a long value ({} bytes)",
+                place.0,
+                long.len()
+            )
         }
         _ => {
             // A date made impossible, or a key misspelt.
             let text = String::from_utf8_lossy(b).into_owned();
             if let Some(i) = text.find("date: ") {
-                let bad = ["2041-02-30", "2041-00-10", "0000-01-01", "9999-12-31", "41-5-3", "2041-5-3T00"]
-                    [rng.below(6) as usize];
+                let bad = [
+                    "2041-02-30",
+                    "2041-00-10",
+                    "0000-01-01",
+                    "9999-12-31",
+                    "41-5-3",
+                    "2041-5-3T00",
+                ][rng.below(6) as usize];
                 let end = text[i + 6..]
                     .find(['\n', ',', '}'])
                     .map_or(text.len(), |e| i + 6 + e);
