@@ -59,11 +59,10 @@ fn judge_grid(path: &Path) -> Result<bool, String> {
             }
             let east = g.origin_x + g.cols as f64 * g.cell_x;
             let south = g.origin_y - g.rows as f64 * g.cell_y;
-            if !(g.cell_x > 0.0 && g.cell_y > 0.0)
-                || ![g.cell_x, g.cell_y, g.origin_x, g.origin_y, east, south]
-                    .iter()
-                    .all(|v| v.is_finite())
-            {
+            let finite = [g.cell_x, g.cell_y, g.origin_x, g.origin_y, east, south]
+                .iter()
+                .all(|v| v.is_finite());
+            if !(g.cell_x > 0.0 && g.cell_y > 0.0 && finite) {
                 return Err(format!(
                     "accepted a grid with an impossible placement: {g:?}"
                 ));

@@ -224,11 +224,10 @@ pub(super) fn georeference(
         placement.origin_x + layout.cols as f64 * placement.cell_x,
         placement.origin_y - layout.rows as f64 * placement.cell_y,
     );
-    if ![placement.cell_x, placement.cell_y]
+    let plausible = [placement.cell_x, placement.cell_y]
         .iter()
-        .all(|c| (1e-6..=1e6).contains(c))
-        || !(east.is_finite() && south.is_finite())
-    {
+        .all(|c| (1e-6..=1e6).contains(c));
+    if !(plausible && east.is_finite() && south.is_finite()) {
         return Err(format!(
             "georeferencing gives cells of {} x {} CRS units, which no elevation grid has (1e-6 to \
              1e6 are accepted); the pixel scale or transformation (tags 33550, 34264) is damaged, \

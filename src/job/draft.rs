@@ -397,7 +397,7 @@ mod tests {
             .unwrap();
         b[entry + 4..entry + 8].copy_from_slice(&100_000_000u32.to_le_bytes());
         std::fs::write(&path, &b).unwrap();
-        let e = draft(&[path.clone()], &dir.path().join("job.yaml"))
+        let e = draft(std::slice::from_ref(&path), &dir.path().join("job.yaml"))
             .unwrap_err()
             .to_string();
         assert!(e.contains("tag 306 declares 100000000 values"), "{e}");

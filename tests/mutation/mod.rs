@@ -67,7 +67,7 @@ impl Tally {
         if self.slowest.len() < 3 || ms > self.slowest[2].0 {
             self.slowest
                 .push((ms, case, what.chars().take(120).collect()));
-            self.slowest.sort_by(|a, b| b.0.cmp(&a.0));
+            self.slowest.sort_by_key(|s| std::cmp::Reverse(s.0));
             self.slowest.truncate(3);
         }
     }

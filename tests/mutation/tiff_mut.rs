@@ -478,7 +478,7 @@ fn bomb(rng: &mut Rng, map: &TiffMap, b: &mut Vec<u8>) -> String {
         return mutate(rng, map, b);
     }
     let at = b.len();
-    b.extend_from_slice(&stream);
+    b.extend_from_slice(stream);
     let (count_tag, offset_tag) = if map.entry(279).is_some() {
         (279, 273)
     } else {

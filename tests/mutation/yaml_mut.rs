@@ -239,7 +239,7 @@ pub fn mutate(rng: &mut Rng, b: &mut Vec<u8>) -> String {
                 replace(b, (i + 6, end), bad.as_bytes());
                 format!("a date := {bad}")
             } else {
-                return mutate(rng, b);
+                mutate(rng, b)
             }
         }
     }
