@@ -49,13 +49,14 @@ pub struct ViewerInputs<'a> {
 
 /// A column header split into words and unit: `net_volume_m3` -> ("net volume", "m³").
 pub fn column_label(name: &str) -> (String, String) {
-    const UNITS: [(&str, &str); 16] = [
+    const UNITS: [(&str, &str); 17] = [
         ("_m_per_yr", "m/yr"),
         ("_ft_per_yr", "ft/yr"),
         ("_usft_per_yr", "US ft/yr"),
         ("_m3", "m³"),
         ("_ft3", "ft³"),
         ("_usft3", "US ft³"),
+        ("_yd3", "yd³"),
         ("_m2", "m²"),
         ("_ft2", "ft²"),
         ("_usft2", "US ft²"),
@@ -84,6 +85,9 @@ fn words(stem: &str) -> String {
         "sigma_dod" => "σ of the difference",
         "volume_sigma_independent" => "± volume, independent cell errors (1σ)",
         "volume_bound_lod" => "± volume bound, all errors alike",
+        "net_volume_sign" => "sign of the detected net",
+        "net_volume_raw_sign" => "sign of the raw net",
+        "detected_share" => "share of the area flagged as change",
         "nodata_share" => "share of cells without data",
         other => return other.replace('_', " "),
     };

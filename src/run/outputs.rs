@@ -255,8 +255,46 @@ pub(super) fn write_outputs(
             content: ExtraContent::File(path),
         });
     }
+    // Every pair's DEM of difference and detection mask as rasters on the grids' georeference.
+    for pair in &record.pairs {
+        let (a, b) = (change::file_safe(&pair.from_id), change::file_safe(&pair.to_id));
+        let span = format!(
+            "{} ({}) to {} ({})",
+            pair.from_id, pair.from_date, pair.to_id, pair.to_date
+        );
+        let det = change::pair_detection(&stack, pair);
+        let rasters = [
+            (
+                format!("dod-{a}-{b}.tif"),
+                change::dod_grid(&stack, pair),
+                format!("DEM of difference {span}: later minus earlier, metres; positive = deposition"),
+            ),
+            (
+                format!("detected-{a}-{b}.tif"),
+                change::detection_raster(&det),
+                format!(
+                    "detected change {span}: -1 erosion, 1 deposition, 0 not detected (within LoD {:.3} m or in a patch under {:.1} m2)",
+                    pair.lod_m, pair.min_patch_m2
+                ),
+            ),
+        ];
+        for (name, grid, description) in rasters {
+            let path = scratch.join(&name);
+            let wopts = WriteOptions {
+                nodata: Some(-9999.0),
+                overwrite: false,
+                band_descriptions: vec![description],
+                effort: geotiff::Effort::Fast,
+            };
+            geotiff::write_bands(&path, stack.geometry(), &[&grid], &wopts)?;
+            extra.push(ExtraFile {
+                name: format!("fields/{name}"),
+                content: ExtraContent::File(path),
+            });
+        }
+    }
 
-    clock.lap("displacement rasters");
+    clock.lap("displacement and difference rasters");
     let figures = change::figures(&stack, &record, &job.change);
     clock.lap("maps and charts");
     // The viewer page is made from the files above, so it comes last among the extras.
