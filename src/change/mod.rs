@@ -20,13 +20,15 @@
 //!   record says so.
 
 pub mod crest;
+pub mod colour;
 pub mod detect;
 mod draw;
 pub mod landform;
-mod map;
+pub mod map;
+mod outline;
 pub mod metrics;
 pub mod record;
-mod transect;
+pub(crate) mod transect;
 
 use serde::Deserialize;
 
