@@ -162,7 +162,7 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         .fold(0.0f32, f32::max)
         + 1.2 * fs;
     let (pl, pr) = (5.0 * fs, width as f32 - 1.5 * fs - labels_w);
-    let pt = 12.0 + 1.6 * fs + 2.0 * line_h + n_shift as f32 * line_h + 0.8 * fs;
+    let pt = 12.0 + 1.6 * fs + 2.0 * line_h + (n_shift + 1) as f32 * line_h + 0.8 * fs;
     let pb = height as f32 - 3.6 * line_h;
     let mut layout = ChartLayout {
         text_px: fs,
@@ -242,7 +242,7 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         BLACK,
         &format!("Distance from the {start} end ({sym})"),
     );
-    draw::text(&mut f, pl - 0.6 * fs, pt - 1.5 * fs, fs, Anchor::Right, BLACK, &format!("Elevation ({sym})"));
+    draw::text(&mut f, 20.0, pt - 1.5 * fs, fs, Anchor::Left, BLACK, &format!("Elevation ({sym})"));
 
     // Profiles, oldest (palest) first so the latest lies on top; crest marks; end labels.
     let mut ends: Vec<(f32, [u8; 4], String)> = Vec::new();
@@ -272,23 +272,31 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         }
         crests.push(crest);
     }
-    // End labels, pushed apart so they never overlap, in date order.
-    let mut order: Vec<usize> = (0..ends.len()).collect();
-    order.sort_by(|&a, &b| ends[a].0.total_cmp(&ends[b].0));
-    let mut placed: Vec<f32> = Vec::new();
-    for &k in &order {
-        let y = ends[k].0 - 0.6 * fs;
-        let y = placed.last().map_or(y, |&p| y.max(p + line_h));
-        placed.push(y);
-        let (ly, colour, ref date) = ends[k];
-        let tx = pr + 1.0 * fs;
-        draw::line(&mut f, pr + 2.0, ly, tx - 3.0, y + 0.6 * fs, 1.5, colour);
-        draw::text_bold(&mut f, tx, y, fs, Anchor::Left, colour, date);
+    // End labels in date order, latest on top (the lines often meet at the ends, so their heights
+    // cannot order the labels), centred on the lines' mean end height and joined by leader lines.
+    if !ends.is_empty() {
+        let mean = ends.iter().map(|e| e.0).sum::<f32>() / ends.len() as f32;
+        let block = ends.len() as f32 * line_h;
+        let first = (mean - block / 2.0).clamp(pt, (pb - block).max(pt));
+        for (slot, (ly, colour, date)) in ends.iter().rev().enumerate() {
+            let y = first + slot as f32 * line_h;
+            let tx = pr + 1.2 * fs;
+            draw::line(&mut f, pr + 2.0, *ly, tx - 4.0, y + 0.6 * fs, 1.5, *colour);
+            draw::text_bold(&mut f, tx, y, fs, Anchor::Left, *colour, date);
+        }
     }
     // Crest shift along the transect for each drawn interval, in a band above the plot.
-    draw::text(&mut f, 20.0, pt - (n_shift as f32 + 1.0) * line_h - 0.4 * fs, fs, Anchor::Left, BLACK, "Crest (▼) moved along the transect:");
+    draw::text(
+        &mut f,
+        20.0,
+        pt - (n_shift as f32 + 2.0) * line_h - 0.4 * fs,
+        fs,
+        Anchor::Left,
+        BLACK,
+        "Crest (▼, the highest point of each profile) moved along the transect:",
+    );
     for k in 0..n_shift {
-        let y = pt - (n_shift - k) as f32 * line_h - 0.3 * fs;
+        let y = pt - (n_shift - k + 1) as f32 * line_h - 0.3 * fs;
         let (a, b) = (&record.surveys[drawn[k]], &record.surveys[drawn[k + 1]]);
         let mut span = None;
         let text = match (crests[k], crests[k + 1]) {
