@@ -162,7 +162,7 @@ pub fn dod_map_with_layout(
     // 16 px; a few rounds settle it.
     let mut fs = 16.0f32;
     let mut frame_layout = plan(stack, pair, opts, (mw, mh), fs);
-    for _ in 0..4 {
+    for _ in 0..20 {
         let need = (0.025 * frame_layout.height as f32).ceil();
         if fs >= need {
             break;
@@ -329,6 +329,7 @@ pub fn dod_map_with_layout(
             .as_ref()
             .map(|o| (o.level_m, pair.from_date.as_str(), pair.to_date.as_str())),
         ends,
+        mh,
     );
     scale_bar(
         &mut frame,
@@ -346,6 +347,11 @@ pub fn dod_map_with_layout(
         easting_labels_y: label_y,
     };
     (frame, layout)
+}
+
+/// Height of the legend's colour bar: 40 % of the map's, at least 6 text heights.
+fn legend_bar_h(fs: f32, map_h: u32) -> f32 {
+    (0.4 * map_h as f32).max(6.0 * fs).round()
 }
 
 fn polyline_length(l: &[(f32, f32)]) -> f32 {
@@ -408,7 +414,7 @@ fn plan(stack: &AlignedStack, pair: &PairRecord, opts: &ChangeOptions, (mw, mh):
         .collect();
     let top = (pad + 1.6 * fs + lines.len() as f32 * line_h + 0.4 * fs).ceil() as u32;
     let bottom = (0.5 * fs + 2.0 * line_h + 2.6 * fs + pad).ceil() as u32;
-    let legend_h = 16.0 * fs + 7.0 * line_h;
+    let legend_h = legend_bar_h(fs, mh) + 9.5 * line_h + 0.3 * fs;
     let height = (top + mh + bottom).max((top as f32 + legend_h + pad).ceil() as u32);
     Plan {
         left,
@@ -496,9 +502,10 @@ fn legend(
     lut: &[[u8; 4]; RAMP_LEN],
     outline: Option<(f64, &str, &str)>,
     ends: Option<(&str, &str)>,
+    map_h: u32,
 ) {
     let bar_w = 1.4 * fs;
-    let bar_h = 12.0 * fs;
+    let bar_h = legend_bar_h(fs, map_h);
     draw::text_bold(frame, x, y, fs, Anchor::Left, BLACK, &format!("Change ({sym})"));
     draw::text(frame, x, y + line_h, fs, Anchor::Left, BLACK, "raised (deposition)");
     let top = y + 2.0 * line_h + 0.3 * fs;

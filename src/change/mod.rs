@@ -197,3 +197,6 @@ pub mod bench_api {
 
 #[cfg(test)]
 pub(crate) mod testkit;
+
+#[cfg(test)]
+mod figure_tests;
