@@ -353,6 +353,9 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
         record.pairs.len(),
         sym = unit.symbol()
     ));
+    if unit != crate::grid::LinearUnit::Metre {
+        line("Every volume is also given in cubic yards (_yd3; international yard, 1 yd3 = 0.764554857984 m3).");
+    }
     line("Map coordinates (columns ending _crs) are in the grids' own CRS units.");
     line("");
     line("Only the survey dates are measurements. Nothing is known of the surface between two surveys;");
@@ -385,9 +388,14 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
     }
     for f in figures {
         let what = if f.file_name.starts_with("maps/") {
-            "DEM of difference map (grey: within the LoD)"
+            "DEM of difference map: detected change over a hillshade of the later survey, outlines at both dates"
         } else {
             "figure"
+        };
+        let what = if f.file_name.starts_with("charts/transect") {
+            "transect chart: profiles by date (pale = oldest), crest shifts, vertical exaggeration stated"
+        } else {
+            what
         };
         line(&format!("{:<18} {what}", f.file_name));
     }

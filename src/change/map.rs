@@ -10,10 +10,9 @@
 //!   all: the hillshade shows through (no flat grey that could read as a hole). The ramp starts a
 //!   fifth of the way out from its pale middle, so the faintest detected change is still a colour;
 //! - no data: a light hatch;
-//! - the outline of the landform at both dates: one contour, the same level for both (solid for the
-//!   later survey, dashed for the earlier). Own rule: the level is the local base (10th percentile of
-//!   both surveys' elevations) plus a fifth of the relief above it (to the 99.9th percentile), and at
-//!   least 2 LoD above the base, so noise on flat ground never draws an outline;
+//! - the outline of the landform at both dates: one contour of the relief above a local base, the
+//!   same level for both (solid for the later survey, dashed for the earlier); the rule is in
+//!   `change::outline`. Loops shorter than two text heights are left out as noise;
 //! - the transect, with its ends named by compass direction as on the transect chart;
 //! - map coordinates (CRS units) on the bottom and left edges, a scale bar and a north arrow.
 //!
