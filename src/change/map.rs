@@ -543,7 +543,7 @@ fn legend(
         fs,
         Anchor::Left,
         BLACK,
-        &format!("±{:.2}: LoD", lod * per),
+        &format!("±{:.2} = LoD", lod * per),
     );
     draw::text(frame, x, top + bar_h + 0.4 * fs, fs, Anchor::Left, BLACK, "lowered (erosion)");
     let mut ky = top + bar_h + 0.4 * fs + 1.5 * line_h;
