@@ -413,7 +413,7 @@ fn plan(stack: &AlignedStack, pair: &PairRecord, opts: &ChangeOptions, (mw, mh):
         .collect();
     let top = (pad + 1.6 * fs + lines.len() as f32 * line_h + 0.4 * fs).ceil() as u32;
     let bottom = (0.5 * fs + 2.0 * line_h + 2.6 * fs + pad).ceil() as u32;
-    let legend_h = legend_bar_h(fs, mh) + 9.5 * line_h + 0.3 * fs;
+    let legend_h = legend_bar_h(fs, mh) + 10.5 * line_h + 0.3 * fs;
     let height = (top + mh + bottom).max((top as f32 + legend_h + pad).ceil() as u32);
     Plan {
         left,
@@ -472,12 +472,22 @@ pub(super) fn volume_text(m3: f64, unit: crate::grid::LinearUnit, signed: bool) 
 
 fn range_text(lo_m3: f64, hi_m3: f64, unit: crate::grid::LinearUnit) -> String {
     let k = unit.metres().powi(3);
-    format!(
+    let main = format!(
         "{}\u{a0}to\u{a0}{}\u{a0}{}³",
         group(lo_m3 / k),
         group(hi_m3 / k),
         unit.symbol()
-    )
+    );
+    if unit == crate::grid::LinearUnit::Metre {
+        main
+    } else {
+        let yd = crate::archive::table::CUBIC_YARD_M3;
+        format!(
+            "{main} ({}\u{a0}to\u{a0}{}\u{a0}yd³)",
+            group(lo_m3 / yd),
+            group(hi_m3 / yd)
+        )
+    }
 }
 
 /// A number rounded to a whole unit with thin spaces between groups of three and a true minus.
@@ -565,6 +575,8 @@ fn legend(
     ky += line_h;
     if let Some((level, from, to)) = outline {
         let stroke = (fs / 8.0).max(1.5);
+        draw::text(frame, x, ky, fs, Anchor::Left, BLACK, "Landform outline,");
+        ky += line_h;
         draw::text(
             frame,
             x,
@@ -572,7 +584,7 @@ fn legend(
             fs,
             Anchor::Left,
             BLACK,
-            &format!("Outline: {:.1} {sym} above local base", level * per),
+            &format!("{:.1} {sym} above local base:", level * per),
         );
         ky += line_h;
         draw::polylines(
