@@ -232,7 +232,8 @@ pub fn dod_map_with_layout(
         )
     };
     // Outlines of the landform at both dates, one level above one local base.
-    let step = ((1.0 / scale).floor() as usize).max(1);
+    // The outline needs no more than one sample per map pixel.
+    let step = ((1.0 / scale).ceil() as usize).max(1);
     let outline = super::outline::outline(z0, z1, lod, step);
     if let Some(o) = &outline {
         let stroke = (fs / 8.0).max(1.5);
