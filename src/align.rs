@@ -56,6 +56,11 @@ impl AlignedStack {
     pub fn z(&self, i: usize) -> &Array2<f32> {
         &self.surveys[i].grid.z
     }
+    /// The elevations of survey `i`, to correct in place (used by `coregister`); the geometry and
+    /// the date order stay as they were.
+    pub(crate) fn z_mut(&mut self, i: usize) -> &mut Array2<f32> {
+        &mut self.surveys[i].grid.z
+    }
     /// Replaces the elevations of survey `i` with a corrected surface on the same grid (used by
     /// `coregister`); the geometry and the date order stay as they were.
     ///

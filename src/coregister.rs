@@ -40,7 +40,10 @@
 //! Conventions: offsets are those of the later survey relative to the first (`b(x) = a(x − d) + dz`),
 //! east and north in metres; the correction resamples it at `x + d` and subtracts `dz`.
 
+use std::borrow::Cow;
+
 use ndarray::Array2;
+
 use rayon::prelude::*;
 
 use crate::align::AlignedStack;
@@ -268,7 +271,7 @@ struct Estimate {
 /// tangents carry little information, dominate: on tests/survey_series.rs (noise 0.03 m) each step
 /// recovered only part of the remaining shift and the estimate stopped 0.1 m short. Multiplied
 /// through, each cell is weighted by its slope, which removes that dilution.
-fn fit_cosine(dh: &[f32], t: &Terrain, fit: &[usize]) -> Option<(f64, f64, f64, f64)> {
+fn fit_cosine(dh: &[f32], t: &Terrain, fit: &[u32]) -> Option<(f64, f64, f64, f64)> {
     let mut m = [[0f64; 3]; 3];
     let mut rhs = [0f64; 3];
     let (mut ss, mut sc, mut cc) = (0f64, 0f64, 0f64);
@@ -281,6 +284,7 @@ fn fit_cosine(dh: &[f32], t: &Terrain, fit: &[usize]) -> Option<(f64, f64, f64, 
         ]
     };
     for &k in fit {
+        let k = k as usize;
         let x = x_of(k);
         for i in 0..3 {
             for j in 0..3 {
@@ -312,6 +316,7 @@ fn fit_cosine(dh: &[f32], t: &Terrain, fit: &[usize]) -> Option<(f64, f64, f64, 
     let mut res: Vec<f32> = fit
         .iter()
         .map(|&k| {
+            let k = k as usize;
             let x = x_of(k);
             (dh[k] as f64 - sol[0] * x[0] - sol[1] * x[1] - sol[2]) as f32
         })
@@ -474,10 +479,11 @@ fn estimate(
     let mut dh = vec![0f32; reference.len()];
     let mut stable = vec![false; reference.len()];
     for _ in 0..MAX_ITERATIONS {
+        // Unshifted, the survey is used as it is (no copy of a grid that may be 64 MB).
         let moved = if east == 0.0 && north == 0.0 {
-            z.clone()
+            Cow::Borrowed(z)
         } else {
-            shifted(z, g, east / unit, north / unit)
+            Cow::Owned(shifted(z, g, east / unit, north / unit))
         };
         let zs = moved.as_slice().expect("standard layout");
         dh.par_iter_mut()
@@ -492,8 +498,10 @@ fn estimate(
         // random: keep cells steeper than SLOPE_NOISE_FACTOR times the slope noise.
         let (_, nmad_stable, _) = median_nmad(&dh, |k| stable[k]);
         let lo_eff = lo.max((SLOPE_NOISE_FACTOR * slope_noise(nmad_stable, g)) as f32);
-        let fit: Vec<usize> = (0..dh.len())
+        // Cell indices as u32 (half the memory of usize; a grid has far fewer than 2³² cells).
+        let fit: Vec<u32> = (0..dh.len())
             .filter(|&k| stable[k] && t.tan_slope[k] >= lo_eff && t.tan_slope[k] <= hi)
+            .map(|k| k as u32)
             .collect();
         if fit.len() < opts.min_cells {
             break;
@@ -527,9 +535,9 @@ fn estimate(
     }
     // Final differences at the final shift, the stable set, and the vertical offset.
     let moved = if horizontal_ok {
-        shifted(z, g, east / unit, north / unit)
+        Cow::Owned(shifted(z, g, east / unit, north / unit))
     } else {
-        z.clone()
+        Cow::Borrowed(z)
     };
     let zs = moved.as_slice().expect("standard layout");
     for (k, d) in dh.iter_mut().enumerate() {
@@ -552,7 +560,7 @@ fn estimate(
     if horizontal_ok {
         let (_, nmad_stable, _) = median_nmad(&dh, |k| stable[k]);
         let lo_eff = lo.max((SLOPE_NOISE_FACTOR * slope_noise(nmad_stable, g)) as f32);
-        let half = |parity: usize| -> Vec<usize> {
+        let half = |parity: usize| -> Vec<u32> {
             (0..dh.len())
                 .filter(|&k| {
                     let (r, c) = (k / g.cols, k % g.cols);
@@ -561,6 +569,7 @@ fn estimate(
                         && t.tan_slope[k] <= hi
                         && (r / 32 + c / 32) % 2 == parity
                 })
+                .map(|k| k as u32)
                 .collect()
         };
         let (h0, h1) = (half(0), half(1));
@@ -632,14 +641,19 @@ pub fn coregister(
     if let Some((m, _)) = given {
         assert_eq!(m.dim(), stack.z(0).dim(), "stable mask shape");
     }
-    let reference: Vec<f32> = stack.z(0).iter().copied().collect();
-    let t = terrain(&reference, &g);
-    let given_slice: Option<Vec<bool>> = given.map(|(m, _)| m.iter().copied().collect());
-    let found = given.is_none();
-    let mut estimates: Vec<Estimate> = (1..stack.len())
-        .map(|i| {
+    // The reference and its slopes live only while the offsets are estimated (at 4096² the
+    // slopes alone take 192 MB), and the reference is read in place, not copied.
+    let estimates = {
+        let reference_grid = stack.z(0).as_standard_layout();
+        let reference: &[f32] = reference_grid.as_slice().expect("standard layout");
+        let t = terrain(reference, &g);
+        let given_slice: Option<Vec<bool>> = given.map(|(m, _)| m.iter().copied().collect());
+        let found = given.is_none();
+        // In waves of one survey per thread: each holds a few grid-sized scratch arrays.
+        let mut estimates: Vec<Estimate> = crate::waves::map_in_waves(stack.len() - 1, |k| {
+            let i = k + 1;
             estimate(
-                &reference,
+                reference,
                 stack.z(i),
                 &g,
                 &t,
@@ -648,18 +662,17 @@ pub fn coregister(
                 found,
                 opts,
             )
-        })
-        .collect();
-    if found && stack.len() > 2 {
-        // Second pass: the cells stable against the first survey in every survey.
-        let common: Vec<bool> = (0..reference.len())
-            .map(|k| estimates.iter().all(|e| e.stable[k]))
-            .collect();
-        if common.iter().filter(|&&s| s).count() >= opts.min_cells {
-            estimates = (1..stack.len())
-                .map(|i| {
+        });
+        if found && stack.len() > 2 {
+            // Second pass: the cells stable against the first survey in every survey.
+            let common: Vec<bool> = (0..reference.len())
+                .map(|k| estimates.iter().all(|e| e.stable[k]))
+                .collect();
+            if common.iter().filter(|&&s| s).count() >= opts.min_cells {
+                estimates = crate::waves::map_in_waves(stack.len() - 1, |k| {
+                    let i = k + 1;
                     estimate(
-                        &reference,
+                        reference,
                         stack.z(i),
                         &g,
                         &t,
@@ -668,10 +681,11 @@ pub fn coregister(
                         true,
                         opts,
                     )
-                })
-                .collect();
+                });
+            }
         }
-    }
+        estimates
+    };
     let cell_area = g.cell_area_m2();
     for (k, e) in estimates.into_iter().enumerate() {
         let i = k + 1;
@@ -736,14 +750,15 @@ pub fn coregister(
         };
         if de != 0.0 || dn != 0.0 || dz != 0.0 {
             let unit = g.horizontal_unit.metres();
-            let mut z = if de != 0.0 || dn != 0.0 {
-                shifted(stack.z(i), &g, de / unit, dn / unit)
-            } else {
-                stack.z(i).clone()
-            };
             let dz32 = dz as f32;
-            z.par_mapv_inplace(|v| v - dz32);
-            stack.replace_z(i, z);
+            if de != 0.0 || dn != 0.0 {
+                let mut z = shifted(stack.z(i), &g, de / unit, dn / unit);
+                z.par_mapv_inplace(|v| v - dz32);
+                stack.replace_z(i, z);
+            } else {
+                // A vertical correction alone is made in place.
+                stack.z_mut(i).par_mapv_inplace(|v| v - dz32);
+            }
         }
         out.push(r);
     }

@@ -31,6 +31,7 @@ pub mod reproject;
 pub mod run;
 pub mod survey;
 pub mod timeline;
+pub mod waves;
 
 pub use error::{Error, Result};
 pub use job::Job;

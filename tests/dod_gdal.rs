@@ -46,7 +46,10 @@ fn gdal_check(earlier: &Path, later: &Path, dod: &Path, detected: &Path) -> Valu
 #[test]
 fn dod_geotiff_is_later_minus_earlier_on_the_grids_georeference() {
     let dir = tempfile::tempdir().unwrap();
-    let path = common::moving_dune_job(dir.path(), "coregister: false\noutput: { folder: out, gif: null, png_frames: false, poster: false }\n");
+    let path = common::moving_dune_job(
+        dir.path(),
+        "coregister: false\noutput: { folder: out, gif: null, png_frames: false, poster: false }\n",
+    );
     // A gap in the last survey: the DoD must carry nodata there.
     let g = common::geometry(64, 48);
     let mut z = common::gaussian_dune(&g, 16.0 + 18.0, 24.0, 4.5, 5.0);
@@ -67,11 +70,18 @@ fn dod_geotiff_is_later_minus_earlier_on_the_grids_georeference() {
     let report = run_job(&job, &RunOptions::default()).unwrap();
     let fields = report.folder.join("data/fields");
     let manifest = std::fs::read_to_string(report.folder.join("manifest-sha256.txt")).unwrap();
-    for (a, b) in [("2030-03-01", "2031-03-01"), ("2031-03-01", "2033-03-01"), ("2030-03-01", "2033-03-01")] {
+    for (a, b) in [
+        ("2030-03-01", "2031-03-01"),
+        ("2031-03-01", "2033-03-01"),
+        ("2030-03-01", "2033-03-01"),
+    ] {
         let dod = fields.join(format!("dod-{a}-{b}.tif"));
         let det = fields.join(format!("detected-{a}-{b}.tif"));
         // Both files are in the bag's manifest.
-        assert!(manifest.contains(&format!("data/fields/dod-{a}-{b}.tif")), "{manifest}");
+        assert!(
+            manifest.contains(&format!("data/fields/dod-{a}-{b}.tif")),
+            "{manifest}"
+        );
         assert!(manifest.contains(&format!("data/fields/detected-{a}-{b}.tif")));
         let v = gdal_check(
             &dir.path().join(format!("{a}.tif")),
@@ -90,10 +100,24 @@ fn dod_geotiff_is_later_minus_earlier_on_the_grids_georeference() {
         assert!(v["max_abs_diff"].as_f64().unwrap() < 1e-5, "{v}");
         assert!(v["nodata_cells_match"].as_bool().unwrap(), "{v}");
         assert!(v["compared_cells"].as_u64().unwrap() > 3000);
-        assert!(v["description"].as_str().unwrap().contains("later minus earlier"), "{v}");
+        assert!(
+            v["description"]
+                .as_str()
+                .unwrap()
+                .contains("later minus earlier"),
+            "{v}"
+        );
         // The detection mask: codes -1, 0, 1 only, nodata where the DoD has none.
-        let codes: Vec<f64> = v["detected_codes"].as_array().unwrap().iter().map(|c| c.as_f64().unwrap()).collect();
-        assert!(codes.iter().all(|c| [-1.0, 0.0, 1.0].contains(c)), "{codes:?}");
+        let codes: Vec<f64> = v["detected_codes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| c.as_f64().unwrap())
+            .collect();
+        assert!(
+            codes.iter().all(|c| [-1.0, 0.0, 1.0].contains(c)),
+            "{codes:?}"
+        );
         assert!(codes.contains(&-1.0) && codes.contains(&1.0), "{codes:?}");
         assert!(v["detected_nodata_cells_match"].as_bool().unwrap(), "{v}");
     }

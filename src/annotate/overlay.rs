@@ -88,7 +88,12 @@ impl InsetChart {
             if !y.is_finite() {
                 continue;
             }
-            let s = self.survey_sigma.get(k).copied().filter(|s| s.is_finite()).unwrap_or(0.0);
+            let s = self
+                .survey_sigma
+                .get(k)
+                .copied()
+                .filter(|s| s.is_finite())
+                .unwrap_or(0.0);
             lo = lo.min(y - s);
             hi = hi.max(y + s);
         }

@@ -470,7 +470,9 @@ impl Annotator {
         );
         // ±σ bars: one standard deviation of each survey, capped.
         for (k, &(x, y)) in pts.iter().enumerate() {
-            let Some(&s) = c.survey_sigma.get(k) else { continue };
+            let Some(&s) = c.survey_sigma.get(k) else {
+                continue;
+            };
             if !(s.is_finite() && s > 0.0) {
                 continue;
             }
@@ -481,7 +483,13 @@ impl Annotator {
             let wdt = (0.18 * u).max(1.0);
             shapes::stroke_polyline(&mut cv, &[(bx, top), (bx, bottom)], wdt, bar, None);
             shapes::stroke_polyline(&mut cv, &[(bx - cap, top), (bx + cap, top)], wdt, bar, None);
-            shapes::stroke_polyline(&mut cv, &[(bx - cap, bottom), (bx + cap, bottom)], wdt, bar, None);
+            shapes::stroke_polyline(
+                &mut cv,
+                &[(bx - cap, bottom), (bx + cap, bottom)],
+                wdt,
+                bar,
+                None,
+            );
         }
         for &(x, y) in &px {
             shapes::fill_circle(&mut cv, x, y, dot + 1.0, [0, 0, 0, 200]);

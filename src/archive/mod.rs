@@ -369,7 +369,9 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
     line("                   et al. 2003). *_raw columns count every cell; the others count only cells whose");
     line("                   change reaches the LoD (Wheaton et al. 2010). volume_sigma_independent: A*s*sqrt(n),");
     line("                   independent cell errors; volume_bound_lod: A*LoD*n, all errors alike (upper bound).");
-    line("                   Detected change: beyond the LoD and in a patch of one sign of at least");
+    line(
+        "                   Detected change: beyond the LoD and in a patch of one sign of at least",
+    );
     line("                   min_patch (a spatial-coherence filter after Wheaton et al. 2010); detected_share");
     line("                   is the share of the compared area flagged. Every net volume comes with its range:");
     line("                   net_volume_low/high_independent = net -/+ t*sigma_independent, and");

@@ -146,12 +146,18 @@ mod tests {
     fn lab_of_reference_colours() {
         // Check: CIE 15 L*a*b* of sRGB white (255,255,255) = (100, 0, 0) under D65; analytic, abs diff < 0.01
         let w = srgb_to_lab([255, 255, 255]);
-        assert!((w[0] - 100.0).abs() < 0.01 && w[1].abs() < 0.01 && w[2].abs() < 0.01, "{w:?}");
+        assert!(
+            (w[0] - 100.0).abs() < 0.01 && w[1].abs() < 0.01 && w[2].abs() < 0.01,
+            "{w:?}"
+        );
         // Check: CIE 15 — sRGB mid grey 119 has L* ≈ 50 (Y = 0.1845, L* = 50.03); hand-computed, abs diff < 0.05
         assert!((srgb_to_lab([119, 119, 119])[0] - 50.03).abs() < 0.05);
         // Check: from memory — sRGB red (255,0,0) is L*a*b* (53.24, 80.09, 67.20) under D65; abs diff < 0.1
         let r = srgb_to_lab([255, 0, 0]);
-        assert!((r[0] - 53.24).abs() < 0.1 && (r[1] - 80.09).abs() < 0.1 && (r[2] - 67.20).abs() < 0.1, "{r:?}");
+        assert!(
+            (r[0] - 53.24).abs() < 0.1 && (r[1] - 80.09).abs() < 0.1 && (r[2] - 67.20).abs() < 0.1,
+            "{r:?}"
+        );
         // Round trip.
         for c in [[12u8, 200, 80], [250, 250, 10], [0, 0, 0]] {
             assert_eq!(lab_to_srgb(srgb_to_lab(c)), Some(c));

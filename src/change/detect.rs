@@ -47,7 +47,8 @@ pub fn normal_cdf(x: f64) -> f64 {
     let t = 1.0 / (1.0 + 0.327_591_1 * z);
     let poly = t
         * (0.254_829_592
-            + t * (-0.284_496_736 + t * (1.421_413_741 + t * (-1.453_152_027 + t * 1.061_405_429))));
+            + t * (-0.284_496_736
+                + t * (1.421_413_741 + t * (-1.453_152_027 + t * 1.061_405_429))));
     let erfc = poly * (-z * z).exp();
     if x >= 0.0 {
         1.0 - 0.5 * erfc
@@ -104,7 +105,11 @@ pub fn detect(
     lod_m: f64,
     min_cells: usize,
 ) -> Detection {
-    assert_eq!(earlier.dim(), later.dim(), "detect needs grids of one shape");
+    assert_eq!(
+        earlier.dim(),
+        later.dim(),
+        "detect needs grids of one shape"
+    );
     let (rows, cols) = earlier.dim();
     let mut codes = Array2::from_elem((rows, cols), NONE);
     ndarray::Zip::from(&mut codes)
@@ -195,7 +200,11 @@ pub struct DetectedSums {
 
 /// Sums `later − earlier` over the cells the mask marks as detected, in fixed chunks combined in
 /// order (the same figures on any thread count).
-pub fn detected_sums(earlier: &Array2<f32>, later: &Array2<f32>, codes: &Array2<i8>) -> DetectedSums {
+pub fn detected_sums(
+    earlier: &Array2<f32>,
+    later: &Array2<f32>,
+    codes: &Array2<i8>,
+) -> DetectedSums {
     let a: Vec<f32>;
     let b: Vec<f32>;
     let m: Vec<i8>;
@@ -336,8 +345,14 @@ mod tests {
         let mut a = Array2::from_shape_fn((200, 150), |_| (noise() * 0.2) as f32);
         let b = Array2::from_shape_fn((200, 150), |_| (noise() * 0.2) as f32);
         a[[5, 5]] = f32::NAN;
-        let one = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
-        let four = rayon::ThreadPoolBuilder::new().num_threads(4).build().unwrap();
+        let one = rayon::ThreadPoolBuilder::new()
+            .num_threads(1)
+            .build()
+            .unwrap();
+        let four = rayon::ThreadPoolBuilder::new()
+            .num_threads(4)
+            .build()
+            .unwrap();
         let d1 = one.install(|| detect(&a, &b, 0.3, 4));
         let d4 = four.install(|| detect(&a, &b, 0.3, 4));
         assert_eq!(d1, d4);

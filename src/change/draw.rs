@@ -179,7 +179,12 @@ pub fn contour_lines(
                 }
             }
         }
-        out.push(chain.iter().filter_map(|id| point.get(id).copied()).collect());
+        out.push(
+            chain
+                .iter()
+                .filter_map(|id| point.get(id).copied())
+                .collect(),
+        );
     }
     out
 }
@@ -274,7 +279,16 @@ pub fn text_halo(
 ) {
     let white = [255, 255, 255, 255];
     let d = (size_px / 12.0).max(1.0);
-    for (dx, dy) in [(-d, 0.0), (d, 0.0), (0.0, -d), (0.0, d), (-d, -d), (d, d), (-d, d), (d, -d)] {
+    for (dx, dy) in [
+        (-d, 0.0),
+        (d, 0.0),
+        (0.0, -d),
+        (0.0, d),
+        (-d, -d),
+        (d, d),
+        (-d, d),
+        (d, -d),
+    ] {
         text_bold(frame, x + dx, y + dy, size_px, anchor, white, s);
     }
     text_bold(frame, x, y, size_px, anchor, rgba, s);

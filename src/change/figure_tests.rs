@@ -9,12 +9,18 @@ use super::{record, ChangeOptions};
 use crate::render::Frame;
 
 /// A dune moving east over a gently sloping plain, surveyed three times, with seeded noise.
-fn sample() -> (crate::align::AlignedStack, super::ChangeRecord, ChangeOptions) {
+fn sample() -> (
+    crate::align::AlignedStack,
+    super::ChangeRecord,
+    ChangeOptions,
+) {
     let g = geometry(160, 1.0);
     let noisy = |seed: u64, cx: f64, h: f64| {
         move |x: f64, y: f64| {
             // A hash of the position and seed as noise of about ±0.1 m (uniform), reproducible.
-            let k = ((x * 7919.0 + y * 104_729.0) as i64 as u64).wrapping_mul(6_364_136_223_846_793_005) ^ seed;
+            let k = ((x * 7919.0 + y * 104_729.0) as i64 as u64)
+                .wrapping_mul(6_364_136_223_846_793_005)
+                ^ seed;
             let u = ((k >> 33) % 1000) as f64 / 1000.0 - 0.5;
             2.0 + 0.01 * x + h * (-((x - cx).powi(2) + y * y) / 300.0).exp() + 0.2 * u
         }
@@ -55,14 +61,25 @@ fn dod_map_text_is_readable_and_stable_ground_shows_the_relief() {
     let pair = rec.pairs.last().unwrap();
     let (f, l) = dod_map_with_layout(&st, pair, &opts);
     // Check: issue requirement — text at least 2.5 % of the figure's height
-    assert!(l.text_px >= 0.025 * f.height as f32, "{} px on {}", l.text_px, f.height);
+    assert!(
+        l.text_px >= 0.025 * f.height as f32,
+        "{} px on {}",
+        l.text_px,
+        f.height
+    );
     // In the picture: the text size is the font's ascent-to-descent height (ab_glyph's scale, as
     // on the frames), in which DejaVu Sans digits stand 0.63 tall (0.729 em of 1.164 em; from
     // memory); the easting labels' ink must be at least 0.6 of 2.5 % of the height.
     let (left, _, mw, _) = l.map;
     let y = l.easting_labels_y as u32;
-    let (a, b) = ink_rows(&f, (left, left + mw), (y, y + (1.4 * l.text_px) as u32)).expect("labels drawn");
-    assert!((b - a + 1) as f32 >= 0.6 * 0.025 * f.height as f32, "ink {a}..{b}, text {} px, height {}", l.text_px, f.height);
+    let (a, b) =
+        ink_rows(&f, (left, left + mw), (y, y + (1.4 * l.text_px) as u32)).expect("labels drawn");
+    assert!(
+        (b - a + 1) as f32 >= 0.6 * 0.025 * f.height as f32,
+        "ink {a}..{b}, text {} px, height {}",
+        l.text_px,
+        f.height
+    );
     // Stable ground: plain relief greys (r = g = b) that vary with the hillshade, never one flat grey.
     let (_, top, _, mh) = l.map;
     let mut greys = std::collections::BTreeSet::new();
@@ -79,7 +96,10 @@ fn dod_map_text_is_readable_and_stable_ground_shows_the_relief() {
     for c in ramp() {
         let (h, chroma) = hue_chroma(srgb_to_lab([c[0], c[1], c[2]]));
         // Check: CIE 15 L*a*b* hue angle — greens lie near h_ab 130–160°; no entry there
-        assert!(chroma < 15.0 || !(100.0..180.0).contains(&h), "{c:?}: h {h:.0}, C {chroma:.0}");
+        assert!(
+            chroma < 15.0 || !(100.0..180.0).contains(&h),
+            "{c:?}: h {h:.0}, C {chroma:.0}"
+        );
     }
 }
 
@@ -91,7 +111,11 @@ fn transect_chart_orders_dates_by_lightness_and_keeps_the_labels_narrow() {
     // Check: issue requirement — text at least 2.5 % of the chart's height
     assert!(l.text_px >= 0.025 * f.height as f32);
     // Check: CIE 15 L* — neighbouring dates at least 15 L* apart, oldest palest
-    let lab: Vec<[f64; 3]> = l.colours.iter().map(|c| srgb_to_lab([c[0], c[1], c[2]])).collect();
+    let lab: Vec<[f64; 3]> = l
+        .colours
+        .iter()
+        .map(|c| srgb_to_lab([c[0], c[1], c[2]]))
+        .collect();
     assert_eq!(lab.len(), 3);
     for w in lab.windows(2) {
         assert!(w[0][0] - w[1][0] >= MIN_LIGHTNESS_STEP, "{w:?}");
@@ -99,8 +123,8 @@ fn transect_chart_orders_dates_by_lightness_and_keeps_the_labels_narrow() {
     // The lines really carry those colours: each is found in the plot.
     let (pl, pt, pr, pb) = l.plot;
     for c in &l.colours {
-        let found = (pt as u32..pb as u32)
-            .any(|y| (pl as u32..pr as u32).any(|x| px(&f, x, y) == *c));
+        let found =
+            (pt as u32..pb as u32).any(|y| (pl as u32..pr as u32).any(|x| px(&f, x, y) == *c));
         assert!(found, "{c:?} not drawn");
     }
     // Labels instead of a legend: what lies right of the plot is at most 15 % of the width
@@ -119,8 +143,13 @@ fn transect_chart_orders_dates_by_lightness_and_keeps_the_labels_narrow() {
 fn record_flags_a_net_whose_range_includes_zero() {
     let (_, rec, _) = sample();
     for p in &rec.pairs {
-        let zero_inside = p.net_volume_low_correlated_m3 <= 0.0 && p.net_volume_high_correlated_m3 >= 0.0;
-        assert_eq!(zero_inside, p.net_volume_sign.contains("sign not established"), "{p:?}");
+        let zero_inside =
+            p.net_volume_low_correlated_m3 <= 0.0 && p.net_volume_high_correlated_m3 >= 0.0;
+        assert_eq!(
+            zero_inside,
+            p.net_volume_sign.contains("sign not established"),
+            "{p:?}"
+        );
         // Independent range inside the correlated one.
         assert!(p.net_volume_low_correlated_m3 <= p.net_volume_low_independent_m3);
         assert!(p.net_volume_high_independent_m3 <= p.net_volume_high_correlated_m3);
@@ -130,8 +159,13 @@ fn record_flags_a_net_whose_range_includes_zero() {
     let p = &rec.pairs[0];
     let half = 1.96 * p.sigma_dod_m * (p.detected_cells as f64).sqrt();
     assert!((p.net_volume_high_independent_m3 - p.net_volume_m3 - half).abs() < 1e-6);
-    assert_eq!(super::record::net_sign(-1.0, 1.0, 20.0, 1.96), "sign not established");
-    assert!(super::record::net_sign(-10.0, 1.0, 20.0, 1.96).starts_with("loss if errors are independent"));
+    assert_eq!(
+        super::record::net_sign(-1.0, 1.0, 20.0, 1.96),
+        "sign not established"
+    );
+    assert!(super::record::net_sign(-10.0, 1.0, 20.0, 1.96)
+        .starts_with("loss if errors are independent"));
     assert_eq!(super::record::net_sign(-10.0, 1.0, 5.0, 1.96), "loss");
-    assert!(super::record::net_sign(10.0, 1.0, 20.0, 1.96).starts_with("gain if errors are independent"));
+    assert!(super::record::net_sign(10.0, 1.0, 20.0, 1.96)
+        .starts_with("gain if errors are independent"));
 }

@@ -237,8 +237,12 @@ pub fn dod_map_with_layout(
     let outline = super::outline::outline(z0, z1, lod, step);
     if let Some(o) = &outline {
         let stroke = (fs / 8.0).max(1.5);
-        for (z, dash) in [(&o.earlier, Some((1.6 * fs / 3.0, fs / 3.0))), (&o.later, None)] {
-            let mut lines = draw::contour_lines(z, o.level_m, o.step, scale, (left as f32, top as f32));
+        for (z, dash) in [
+            (&o.earlier, Some((1.6 * fs / 3.0, fs / 3.0))),
+            (&o.later, None),
+        ] {
+            let mut lines =
+                draw::contour_lines(z, o.level_m, o.step, scale, (left as f32, top as f32));
             // Loops shorter than two text heights are survey noise, not a landform.
             lines.retain(|l| polyline_length(l) >= 2.0 * fs);
             draw::polylines(&mut frame, &lines, stroke, OUTLINE, dash);
@@ -247,14 +251,41 @@ pub fn dod_map_with_layout(
     // The transect with its ends named.
     let ends = opts.transect.map(|[[x0, y0], [x1, y1]]| {
         let (a, b) = (to_px(x0, y0), to_px(x1, y1));
-        draw::line(&mut frame, a.0, a.1, b.0, b.1, (fs / 5.0).max(2.0) + 2.0, [255, 255, 255, 255]);
-        draw::line(&mut frame, a.0, a.1, b.0, b.1, (fs / 5.0).max(2.0), TRANSECT);
+        draw::line(
+            &mut frame,
+            a.0,
+            a.1,
+            b.0,
+            b.1,
+            (fs / 5.0).max(2.0) + 2.0,
+            [255, 255, 255, 255],
+        );
+        draw::line(
+            &mut frame,
+            a.0,
+            a.1,
+            b.0,
+            b.1,
+            (fs / 5.0).max(2.0),
+            TRANSECT,
+        );
         let (na, nb) = super::transect::end_names([[x0, y0], [x1, y1]]);
-        for ((px, py), name, (ox, oy)) in [(a, na, (a.0 - b.0, a.1 - b.1)), (b, nb, (b.0 - a.0, b.1 - a.1))] {
+        for ((px, py), name, (ox, oy)) in [
+            (a, na, (a.0 - b.0, a.1 - b.1)),
+            (b, nb, (b.0 - a.0, b.1 - a.1)),
+        ] {
             let len = ox.hypot(oy).max(1e-3);
             let (lx, ly) = (px + ox / len * 0.9 * fs, py + oy / len * 0.9 * fs);
             draw::fill_circle(&mut frame, px, py, fs / 4.0, TRANSECT);
-            draw::text_halo(&mut frame, lx, ly - 0.6 * fs, fs, Anchor::Centre, TRANSECT, name);
+            draw::text_halo(
+                &mut frame,
+                lx,
+                ly - 0.6 * fs,
+                fs,
+                Anchor::Centre,
+                TRANSECT,
+                name,
+            );
         }
         (na, nb)
     });
@@ -273,7 +304,15 @@ pub fn dod_map_with_layout(
     for &x in &ticks_x {
         let (px, _) = to_px(x, s);
         draw::fill_rect(&mut frame, px, (top + mh) as f32, 1.0, tick, BLACK);
-        draw::text(&mut frame, px, label_y, fs, Anchor::Centre, BLACK, &coordinate_text(x));
+        draw::text(
+            &mut frame,
+            px,
+            label_y,
+            fs,
+            Anchor::Centre,
+            BLACK,
+            &coordinate_text(x),
+        );
     }
     for &y in &ticks_y {
         let (_, py) = to_px(w, y);
@@ -311,10 +350,26 @@ pub fn dod_map_with_layout(
         id_and_date(&pair.from_id, &pair.from_date),
         id_and_date(&pair.to_id, &pair.to_date)
     );
-    draw::text_bold(&mut frame, left as f32, pad, 1.3 * fs, Anchor::Left, BLACK, &title);
+    draw::text_bold(
+        &mut frame,
+        left as f32,
+        pad,
+        1.3 * fs,
+        Anchor::Left,
+        BLACK,
+        &title,
+    );
     let y1 = pad + 1.6 * fs + 0.2 * fs;
     for (k, l) in lines.iter().enumerate() {
-        draw::text(&mut frame, left as f32, y1 + k as f32 * line_h, fs, Anchor::Left, BLACK, l);
+        draw::text(
+            &mut frame,
+            left as f32,
+            y1 + k as f32 * line_h,
+            fs,
+            Anchor::Left,
+            BLACK,
+            l,
+        );
     }
 
     legend(
@@ -339,7 +394,12 @@ pub fn dod_map_with_layout(
         fs,
         (per, sym),
     );
-    north_arrow(&mut frame, (left + mw) as f32 - 1.4 * fs, top as f32 + 0.8 * fs, fs);
+    north_arrow(
+        &mut frame,
+        (left + mw) as f32 - 1.4 * fs,
+        top as f32 + 0.8 * fs,
+        fs,
+    );
     let layout = MapLayout {
         text_px: fs,
         map: (left, top, mw, mh),
@@ -355,7 +415,9 @@ fn legend_bar_h(fs: f32, map_h: u32) -> f32 {
 }
 
 fn polyline_length(l: &[(f32, f32)]) -> f32 {
-    l.windows(2).map(|w| (w[1].0 - w[0].0).hypot(w[1].1 - w[0].1)).sum()
+    l.windows(2)
+        .map(|w| (w[1].0 - w[0].0).hypot(w[1].1 - w[0].1))
+        .sum()
 }
 
 /// Sizes that depend on the text size.
@@ -372,7 +434,13 @@ struct Plan {
 }
 
 /// Lays the figure out around a map of `mw` × `mh` pixels with text `fs` pixels high.
-fn plan(stack: &AlignedStack, pair: &PairRecord, opts: &ChangeOptions, (mw, mh): (u32, u32), fs: f32) -> Plan {
+fn plan(
+    stack: &AlignedStack,
+    pair: &PairRecord,
+    opts: &ChangeOptions,
+    (mw, mh): (u32, u32),
+    fs: f32,
+) -> Plan {
     let g = stack.geometry();
     let line_h = (fs * 1.3).ceil();
     let pad = fs.round();
@@ -516,8 +584,24 @@ fn legend(
 ) {
     let bar_w = 1.4 * fs;
     let bar_h = legend_bar_h(fs, map_h);
-    draw::text_bold(frame, x, y, fs, Anchor::Left, BLACK, &format!("Change ({sym})"));
-    draw::text(frame, x, y + line_h, fs, Anchor::Left, BLACK, "raised (deposition)");
+    draw::text_bold(
+        frame,
+        x,
+        y,
+        fs,
+        Anchor::Left,
+        BLACK,
+        &format!("Change ({sym})"),
+    );
+    draw::text(
+        frame,
+        x,
+        y + line_h,
+        fs,
+        Anchor::Left,
+        BLACK,
+        "raised (deposition)",
+    );
     let top = y + 2.0 * line_h + 0.3 * fs;
     for k in 0..bar_h as u32 {
         // Top of the bar is +limit, bottom is -limit; inside ±LoD the plain relief grey.
@@ -542,7 +626,15 @@ fn legend(
         } else {
             draw::format_tick(v, step).replace('-', "−")
         };
-        draw::text(frame, x + bar_w + 0.6 * fs, ty - 0.6 * fs, fs, Anchor::Left, BLACK, &label);
+        draw::text(
+            frame,
+            x + bar_w + 0.6 * fs,
+            ty - 0.6 * fs,
+            fs,
+            Anchor::Left,
+            BLACK,
+            &label,
+        );
         v += step;
     }
     // The not-detected band, named beside the bar.
@@ -556,23 +648,51 @@ fn legend(
         BLACK,
         &format!("±{:.2} = LoD", lod * per),
     );
-    draw::text(frame, x, top + bar_h + 0.4 * fs, fs, Anchor::Left, BLACK, "lowered (erosion)");
+    draw::text(
+        frame,
+        x,
+        top + bar_h + 0.4 * fs,
+        fs,
+        Anchor::Left,
+        BLACK,
+        "lowered (erosion)",
+    );
     let mut ky = top + bar_h + 0.4 * fs + 1.5 * line_h;
     let key_w = 2.2 * fs;
     // Relief without detected change.
     let g = shade_grey(0.7) as u8;
     draw::fill_rect(frame, x, ky, key_w, fs, [g, g, g, 255]);
     draw::stroke_rect(frame, x - 1.0, ky - 1.0, key_w + 2.0, fs + 2.0, BLACK);
-    draw::text(frame, x + key_w + 0.5 * fs, ky - 0.1 * fs, fs, Anchor::Left, BLACK, "no detected change");
+    draw::text(
+        frame,
+        x + key_w + 0.5 * fs,
+        ky - 0.1 * fs,
+        fs,
+        Anchor::Left,
+        BLACK,
+        "no detected change",
+    );
     ky += line_h;
     for k in 0..fs as u32 {
         for j in 0..key_w as u32 {
-            let c = if (j + k) % 8 < 2 { HATCH_DARK } else { HATCH_LIGHT };
+            let c = if (j + k) % 8 < 2 {
+                HATCH_DARK
+            } else {
+                HATCH_LIGHT
+            };
             draw::fill_rect(frame, x + j as f32, ky + k as f32, 1.0, 1.0, c);
         }
     }
     draw::stroke_rect(frame, x - 1.0, ky - 1.0, key_w + 2.0, fs + 2.0, BLACK);
-    draw::text(frame, x + key_w + 0.5 * fs, ky - 0.1 * fs, fs, Anchor::Left, BLACK, "no data");
+    draw::text(
+        frame,
+        x + key_w + 0.5 * fs,
+        ky - 0.1 * fs,
+        fs,
+        Anchor::Left,
+        BLACK,
+        "no data",
+    );
     ky += line_h;
     if let Some((level, from, to)) = outline {
         let stroke = (fs / 8.0).max(1.5);
@@ -595,7 +715,15 @@ fn legend(
             OUTLINE,
             Some((1.6 * fs / 3.0, fs / 3.0)),
         );
-        draw::text(frame, x + key_w + 0.5 * fs, ky - 0.1 * fs, fs, Anchor::Left, BLACK, from);
+        draw::text(
+            frame,
+            x + key_w + 0.5 * fs,
+            ky - 0.1 * fs,
+            fs,
+            Anchor::Left,
+            BLACK,
+            from,
+        );
         ky += line_h;
         draw::polylines(
             frame,
@@ -604,11 +732,27 @@ fn legend(
             OUTLINE,
             None,
         );
-        draw::text(frame, x + key_w + 0.5 * fs, ky - 0.1 * fs, fs, Anchor::Left, BLACK, to);
+        draw::text(
+            frame,
+            x + key_w + 0.5 * fs,
+            ky - 0.1 * fs,
+            fs,
+            Anchor::Left,
+            BLACK,
+            to,
+        );
         ky += line_h;
     }
     if let Some((a, b)) = ends {
-        draw::line(frame, x, ky + 0.5 * fs, x + key_w, ky + 0.5 * fs, (fs / 5.0).max(2.0), TRANSECT);
+        draw::line(
+            frame,
+            x,
+            ky + 0.5 * fs,
+            x + key_w,
+            ky + 0.5 * fs,
+            (fs / 5.0).max(2.0),
+            TRANSECT,
+        );
         draw::text(
             frame,
             x + key_w + 0.5 * fs,
@@ -651,8 +795,20 @@ fn scale_bar(
 fn north_arrow(frame: &mut Frame, x: f32, y: f32, fs: f32) {
     let (a, b) = (1.0 * fs, 2.4 * fs);
     draw::fill_circle(frame, x, y + 1.3 * fs, 1.5 * fs, [255, 255, 255, 200]);
-    draw::fill_triangle(frame, (x, y + a), (x - 0.5 * fs, y + b), (x, y + 0.8 * b), BLACK);
-    draw::fill_triangle(frame, (x, y + a), (x + 0.5 * fs, y + b), (x, y + 0.8 * b), [90, 90, 90, 255]);
+    draw::fill_triangle(
+        frame,
+        (x, y + a),
+        (x - 0.5 * fs, y + b),
+        (x, y + 0.8 * b),
+        BLACK,
+    );
+    draw::fill_triangle(
+        frame,
+        (x, y + a),
+        (x + 0.5 * fs, y + b),
+        (x, y + 0.8 * b),
+        [90, 90, 90, 255],
+    );
     draw::text_bold(frame, x, y - 0.1 * fs, fs, Anchor::Centre, BLACK, "N");
 }
 
@@ -677,7 +833,10 @@ mod tests {
         assert_eq!(ramp_index(-2.0, 0.2, 2.0), 0);
         // The faintest detected change starts a fifth of the way out, never at the pale middle.
         let at_lod = ramp_index(0.2, 0.2, 2.0);
-        assert_eq!(at_lod - RAMP_MID, (RAMP_SKIP * RAMP_MID as f64).round() as usize);
+        assert_eq!(
+            at_lod - RAMP_MID,
+            (RAMP_SKIP * RAMP_MID as f64).round() as usize
+        );
         assert_eq!(
             RAMP_MID - ramp_index(-0.7, 0.2, 2.0),
             ramp_index(0.7, 0.2, 2.0) - RAMP_MID
@@ -697,7 +856,10 @@ mod tests {
     fn coordinates_read_as_numbers() {
         assert_eq!(coordinate_text(5_800_200.0), "5\u{2009}800\u{2009}200");
         assert_eq!(coordinate_text(-1200.0), "−1\u{2009}200");
-        assert_eq!(coordinate_ticks(100.0, 420.0), vec![100.0, 200.0, 300.0, 400.0]);
+        assert_eq!(
+            coordinate_ticks(100.0, 420.0),
+            vec![100.0, 200.0, 300.0, 400.0]
+        );
         assert_eq!(group(-0.3), "0");
     }
 }

@@ -19,14 +19,14 @@
 //! - Only survey dates are measurements. Rates assume steady change between two surveys and every
 //!   record says so.
 
-pub mod crest;
 pub mod colour;
+pub mod crest;
 pub mod detect;
 mod draw;
 pub mod landform;
 pub mod map;
-mod outline;
 pub mod metrics;
+mod outline;
 pub mod record;
 pub(crate) mod transect;
 

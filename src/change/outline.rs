@@ -84,13 +84,19 @@ fn running_min(z: &Array2<f32>, half: usize) -> Array2<f32> {
     for r in 0..rows {
         let row: Vec<f32> = z.row(r).to_vec();
         min_1d(&row, half, &mut buf);
-        tmp.row_mut(r).iter_mut().zip(&buf).for_each(|(o, &v)| *o = v);
+        tmp.row_mut(r)
+            .iter_mut()
+            .zip(&buf)
+            .for_each(|(o, &v)| *o = v);
     }
     let mut out = Array2::from_elem((rows, cols), f32::NAN);
     for c in 0..cols {
         let col: Vec<f32> = tmp.column(c).to_vec();
         min_1d(&col, half, &mut buf);
-        out.column_mut(c).iter_mut().zip(&buf).for_each(|(o, &v)| *o = v);
+        out.column_mut(c)
+            .iter_mut()
+            .zip(&buf)
+            .for_each(|(o, &v)| *o = v);
     }
     out
 }
@@ -129,7 +135,11 @@ fn box_mean(z: &Array2<f32>, half: usize) -> Array2<f32> {
     for r in 0..rows {
         for c in 0..cols {
             let v = z[[r, c]];
-            let (s, k) = if v.is_finite() { (v as f64, 1) } else { (0.0, 0) };
+            let (s, k) = if v.is_finite() {
+                (v as f64, 1)
+            } else {
+                (0.0, 0)
+            };
             let i = (r + 1) * w + c + 1;
             sum[i] = s + sum[i - 1] + sum[i - w] - sum[i - w - 1];
             cnt[i] = k + cnt[i - 1] + cnt[i - w] - cnt[i - w - 1];
@@ -168,8 +178,19 @@ mod tests {
         // Check: analytic — a cone of 6 m: a fifth of its height (1.2 m) is reached 16 cells from
         // its centre; the plain's slope is not relief. Tolerance 3 cells (smoothing, base).
         assert!((o.level_m - 1.2).abs() < 0.3, "{}", o.level_m);
-        for &(r, c, inside) in &[(100, 100, true), (100, 110, true), (100, 140, false), (10, 10, false), (190, 190, false)] {
-            assert_eq!(o.later[[r, c]] as f64 > o.level_m, inside, "({r}, {c}): {}", o.later[[r, c]]);
+        for &(r, c, inside) in &[
+            (100, 100, true),
+            (100, 110, true),
+            (100, 140, false),
+            (10, 10, false),
+            (190, 190, false),
+        ] {
+            assert_eq!(
+                o.later[[r, c]] as f64 > o.level_m,
+                inside,
+                "({r}, {c}): {}",
+                o.later[[r, c]]
+            );
         }
         // Running minimum and mean agree with a direct computation on a small grid.
         let x = [3.0, 1.0, 4.0, f32::NAN, 5.0, 9.0, 2.0];
@@ -180,7 +201,9 @@ mod tests {
 
     #[test]
     fn flat_noise_draws_no_outline() {
-        let z = Array2::from_shape_fn((60, 60), |(r, c)| 2.0 + 0.05 * (((r * 7 + c * 13) % 5) as f32 - 2.0));
+        let z = Array2::from_shape_fn((60, 60), |(r, c)| {
+            2.0 + 0.05 * (((r * 7 + c * 13) % 5) as f32 - 2.0)
+        });
         assert!(outline(&z, &z, 0.3, 1).is_none());
     }
 }

@@ -133,7 +133,10 @@ pub fn transect_chart(record: &ChangeRecord, opts: &ChangeOptions) -> Frame {
 }
 
 /// As [`transect_chart`], with where its parts were put.
-pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -> (Frame, ChartLayout) {
+pub fn transect_chart_with_layout(
+    record: &ChangeRecord,
+    opts: &ChangeOptions,
+) -> (Frame, ChartLayout) {
     let (width, height) = CHART_SIZE;
     let fs = TEXT_PX;
     let line_h = (fs * 1.3).ceil();
@@ -204,11 +207,22 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         draw::format_tick(ve, if ve >= 10.0 { 1.0 } else { 0.1 })
     );
     if omitted > 0 {
-        sub.push_str(&format!(" {omitted} of {} surveys not drawn (see tables/transect.csv).", record.surveys.len()));
+        sub.push_str(&format!(
+            " {omitted} of {} surveys not drawn (see tables/transect.csv).",
+            record.surveys.len()
+        ));
     }
     let sub_lines = draw::wrap(&sub, fs, width as f32 - 40.0);
     for (k, l) in sub_lines.iter().take(2).enumerate() {
-        draw::text(&mut f, 20.0, 12.0 + 1.6 * fs + k as f32 * line_h, fs, Anchor::Left, BLACK, l);
+        draw::text(
+            &mut f,
+            20.0,
+            12.0 + 1.6 * fs + k as f32 * line_h,
+            fs,
+            Anchor::Left,
+            BLACK,
+            l,
+        );
     }
 
     let grid_rgba = [228, 228, 228, 255];
@@ -217,7 +231,15 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         let (x, _) = to_px(v, ylo);
         draw::fill_rect(&mut f, x, pt, 1.0, pb - pt, grid_rgba);
         draw::fill_rect(&mut f, x, pb, 1.0, 0.4 * fs, BLACK);
-        draw::text(&mut f, x, pb + 0.5 * fs, fs, Anchor::Centre, BLACK, &draw::format_tick(v, xstep));
+        draw::text(
+            &mut f,
+            x,
+            pb + 0.5 * fs,
+            fs,
+            Anchor::Centre,
+            BLACK,
+            &draw::format_tick(v, xstep),
+        );
         v += xstep;
     }
     let mut v = ylo;
@@ -225,14 +247,38 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         let (_, y) = to_px(0.0, v);
         draw::fill_rect(&mut f, pl, y, pr - pl, 1.0, grid_rgba);
         draw::fill_rect(&mut f, pl - 0.4 * fs, y, 0.4 * fs, 1.0, BLACK);
-        draw::text(&mut f, pl - 0.6 * fs, y - 0.6 * fs, fs, Anchor::Right, BLACK, &draw::format_tick(v, ystep));
+        draw::text(
+            &mut f,
+            pl - 0.6 * fs,
+            y - 0.6 * fs,
+            fs,
+            Anchor::Right,
+            BLACK,
+            &draw::format_tick(v, ystep),
+        );
         v += ystep;
     }
     draw::stroke_rect(&mut f, pl, pt, pr - pl + 1.0, pb - pt + 1.0, BLACK);
     // The ends, named where the axis starts and stops.
     let axis_y = pb + 0.5 * fs + line_h;
-    draw::text_bold(&mut f, pl, axis_y, fs, Anchor::Left, BLACK, &format!("◀ {start}"));
-    draw::text_bold(&mut f, pr, axis_y, fs, Anchor::Right, BLACK, &format!("{end} ▶"));
+    draw::text_bold(
+        &mut f,
+        pl,
+        axis_y,
+        fs,
+        Anchor::Left,
+        BLACK,
+        &format!("◀ {start}"),
+    );
+    draw::text_bold(
+        &mut f,
+        pr,
+        axis_y,
+        fs,
+        Anchor::Right,
+        BLACK,
+        &format!("{end} ▶"),
+    );
     draw::text(
         &mut f,
         (pl + pr) / 2.0,
@@ -242,7 +288,15 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         BLACK,
         &format!("Distance from the {start} end ({sym})"),
     );
-    draw::text(&mut f, 20.0, pt - 1.5 * fs, fs, Anchor::Left, BLACK, &format!("Elevation ({sym})"));
+    draw::text(
+        &mut f,
+        20.0,
+        pt - 1.5 * fs,
+        fs,
+        Anchor::Left,
+        BLACK,
+        &format!("Elevation ({sym})"),
+    );
 
     // Profiles, oldest (palest) first so the latest lies on top; crest marks; end labels.
     let mut ends: Vec<(f32, [u8; 4], String)> = Vec::new();
@@ -250,16 +304,23 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
     for (k, &i) in drawn.iter().enumerate() {
         let s = &record.surveys[i];
         let colour = colours[k];
-        let profile: Vec<&TransectPoint> = pts.iter().filter(|p| p.survey_id == s.survey_id).collect();
+        let profile: Vec<&TransectPoint> =
+            pts.iter().filter(|p| p.survey_id == s.survey_id).collect();
         let mut runs: Vec<Vec<(f32, f32)>> = vec![Vec::new()];
         for p in &profile {
             match p.elevation_m {
-                Some(z) => runs.last_mut().unwrap_or(&mut Vec::new()).push(to_px(p.distance_m * per, z * per)),
+                Some(z) => runs
+                    .last_mut()
+                    .unwrap_or(&mut Vec::new())
+                    .push(to_px(p.distance_m * per, z * per)),
                 None => runs.push(Vec::new()),
             }
         }
         draw::polylines(&mut f, &runs, 2.5, colour, None);
-        let last = profile.iter().rev().find_map(|p| p.elevation_m.map(|z| to_px(p.distance_m * per, z * per)));
+        let last = profile
+            .iter()
+            .rev()
+            .find_map(|p| p.elevation_m.map(|z| to_px(p.distance_m * per, z * per)));
         if let Some((_, y)) = last {
             ends.push((y, colour, s.date.clone()));
         }
@@ -267,8 +328,20 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         if let Some((d, z)) = crest {
             let (x, y) = to_px(d * per, z * per);
             let r = 0.45 * fs;
-            draw::fill_triangle(&mut f, (x - r - 1.5, y - 2.0 * r - 3.0), (x + r + 1.5, y - 2.0 * r - 3.0), (x, y - 1.0), BLACK);
-            draw::fill_triangle(&mut f, (x - r, y - 2.0 * r - 2.0), (x + r, y - 2.0 * r - 2.0), (x, y - 3.0), colour);
+            draw::fill_triangle(
+                &mut f,
+                (x - r - 1.5, y - 2.0 * r - 3.0),
+                (x + r + 1.5, y - 2.0 * r - 3.0),
+                (x, y - 1.0),
+                BLACK,
+            );
+            draw::fill_triangle(
+                &mut f,
+                (x - r, y - 2.0 * r - 2.0),
+                (x + r, y - 2.0 * r - 2.0),
+                (x, y - 3.0),
+                colour,
+            );
         }
         crests.push(crest);
     }
@@ -327,7 +400,9 @@ pub fn transect_chart_with_layout(record: &ChangeRecord, opts: &ChangeOptions) -
         };
         let tw = draw::text_width(fs, &text);
         let (tx, anchor) = match span {
-            Some((_, right)) if right + 0.5 * fs + tw <= width as f32 - 10.0 => (right + 0.5 * fs, Anchor::Left),
+            Some((_, right)) if right + 0.5 * fs + tw <= width as f32 - 10.0 => {
+                (right + 0.5 * fs, Anchor::Left)
+            }
             Some((left, _)) => (left - 0.5 * fs, Anchor::Right),
             None => (pl, Anchor::Left),
         };

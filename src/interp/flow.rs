@@ -347,12 +347,12 @@ pub fn estimate(
         |f: Vec<f32>| Array2::from_shape_vec((rows, cols), f).expect("field has the grid's shape");
     let k = s.cell_m as f32;
     FlowResult {
-        field: FlowField {
-            east_m: to_array(u.iter().map(|x| x * k).collect()),
-            north_m: to_array(v.iter().map(|y| -y * k).collect()),
-            quality: to_array(q),
-            cell_size_m: s.cell_m,
-        },
+        field: FlowField::full(
+            to_array(u.iter().map(|x| x * k).collect()),
+            to_array(v.iter().map(|y| -y * k).collect()),
+            to_array(q),
+            s.cell_m,
+        ),
         dominant: Some(dominant),
         verdict: Verdict::Trusted,
     }

@@ -69,8 +69,8 @@ pub fn morph_into(
     assert!(
         b.dim() == dim
             && out.dim() == dim
-            && field.east_m.dim() == dim
-            && field.north_m.dim() == dim,
+            && field.grid_dim == dim
+            && (field.step > 1 || (field.east_m.dim() == dim && field.north_m.dim() == dim)),
         "morph_into: arrays differ in shape"
     );
     let w = if w.is_nan() { 0.0 } else { w.clamp(0.0, 1.0) };
@@ -112,10 +112,17 @@ pub fn morph_into(
             .enumerate()
             .for_each(|(band, chunk)| {
                 let r0 = band * BAND_ROWS;
+                let (mut east_row, mut north_row) = (Vec::new(), Vec::new());
                 for (k, orow) in chunk.chunks_exact_mut(cols).enumerate() {
                     let r = r0 + k;
                     let base = r * cols;
-                    let (er, nr) = (&east[base..base + cols], &north[base..base + cols]);
+                    let (er, nr) = if field.step > 1 {
+                        // A field kept at block resolution, interpolated row by row.
+                        field.row_at(r, &mut east_row, &mut north_row);
+                        (&east_row[..], &north_row[..])
+                    } else {
+                        (&east[base..base + cols], &north[base..base + cols])
+                    };
                     for (c, ((o, &e), &n)) in orow.iter_mut().zip(er).zip(nr).enumerate() {
                         // Field in cells: columns east, rows south.
                         let du = e * inv_cell;
@@ -143,12 +150,12 @@ mod tests {
     use super::*;
 
     fn uniform_field(rows: usize, cols: usize, east_m: f32, north_m: f32, cell: f64) -> FlowField {
-        FlowField {
-            east_m: Array2::from_elem((rows, cols), east_m),
-            north_m: Array2::from_elem((rows, cols), north_m),
-            quality: Array2::ones((rows, cols)),
-            cell_size_m: cell,
-        }
+        FlowField::full(
+            Array2::from_elem((rows, cols), east_m),
+            Array2::from_elem((rows, cols), north_m),
+            Array2::ones((rows, cols)),
+            cell,
+        )
     }
 
     /// Gaussian of amplitude 2 and sigma 2 cells centred at column `x0`, constant along rows.

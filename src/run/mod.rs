@@ -221,21 +221,15 @@ fn prepare(job: &Job) -> Result<Prepared> {
     warnings.append(&mut record.warnings);
     series::annotate_surveys(job, &mut record, &registrations, &reprojections);
 
-    // Migration comes from the landforms that changed beyond the LoD, not the whole relief.
-    warnings.extend(series::measure_landforms(
-        job,
-        &stack,
-        &mut record,
-        FLOW_MAX_SIDE,
-    ));
-    clock.lap("landforms");
-    // The displacement field of every consecutive pair, for the morph.
-    // Pairs are independent, so they are estimated side by side (each also uses rayon inside);
-    // results come back in pair order, so the output does not depend on the thread count.
-    let estimated: Vec<FlowResult> = (0..stack.len() - 1)
-        .into_par_iter()
-        .map(|i| pair_field(job, &stack, i))
-        .collect();
+    // Migration comes from the landforms that changed beyond the LoD, not the whole relief; the
+    // morph needs the displacement field of every consecutive pair. The two are independent, so
+    // they run side by side, and so do the pairs within each (results come back in pair order,
+    // so the output does not depend on the thread count).
+    let (landform_warnings, estimated) = rayon::join(
+        || series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE),
+        || crate::waves::map_in_waves(stack.len() - 1, |i| pair_field(job, &stack, i)),
+    );
+    warnings.extend(landform_warnings);
     let mut fields = Vec::with_capacity(stack.len() - 1);
     for (i, result) in estimated.into_iter().enumerate() {
         let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
@@ -255,7 +249,7 @@ fn prepare(job: &Job) -> Result<Prepared> {
         }
     }
     record.warnings.extend(warnings.iter().cloned());
-    clock.lap("displacement fields");
+    clock.lap("landforms and displacement fields");
     Ok(Prepared {
         stack,
         timeline,
@@ -401,13 +395,28 @@ impl Stopwatch {
             laps: Vec::new(),
         }
     }
-    /// Records the time since the previous lap under `stage`.
+    /// Records the time since the previous lap under `stage`, and logs it with the process's peak
+    /// resident memory so far (where the system tells it), which shows the stage that sets the peak.
     pub(super) fn lap(&mut self, stage: &'static str) {
         let now = std::time::Instant::now();
-        self.laps
-            .push((stage, now.duration_since(self.last).as_secs_f64()));
+        let seconds = now.duration_since(self.last).as_secs_f64();
+        self.laps.push((stage, seconds));
         self.last = now;
+        match peak_resident_mib() {
+            Some(mib) => log::info!(
+                "stage {stage}: {seconds:.2} s; peak resident memory so far {mib:.0} MiB"
+            ),
+            None => log::info!("stage {stage}: {seconds:.2} s"),
+        }
     }
+}
+
+/// The process's peak resident memory (VmHWM) in MiB, read from /proc on Linux; None elsewhere.
+pub fn peak_resident_mib() -> Option<f64> {
+    let status = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
+    let kib: f64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kib / 1024.0)
 }
 
 /// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that

@@ -1,7 +1,8 @@
 //! Every file of one run: the PNG frames and their index, the GIF, the poster, the displacement
 //! rasters, then the archive that seals them with the change record.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
+use std::sync::mpsc;
 
 use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
 use crate::change;
@@ -12,9 +13,12 @@ use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
 use crate::render::Frame;
 
-use super::frames::Painter;
+use super::frames::{FrameFigures, Painter};
 use super::{effective_method, orbit_share, FrameSource, Prepared, RunOptions, RunReport};
+use crate::align::AlignedStack;
+use crate::interp::flow::FlowResult;
 use crate::job::Job;
+use crate::timeline::FrameTime;
 
 pub(super) fn write_outputs(
     job: &Job,
@@ -64,18 +68,16 @@ pub(super) fn write_outputs(
         shell_grid.as_ref(),
     );
 
-    // Render and label every frame; write the PNGs as they come and keep the frames for the GIF.
+    // Render and label every frame; the encoders take them as they come (see `FrameSinks`).
     let n = timeline.frames.len();
-    let mut frame = Frame::new(job.view.width, job.view.height);
-    let mut kept: Vec<Frame> = Vec::with_capacity(if job.output.gif.is_some() { n } else { 0 });
-    let mut png = if job.output.png_frames {
+    let png = if job.output.png_frames {
         let dir = scratch.join("frames");
         std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
         Some((png_seq::PngSequence::create(&dir, "frame-", n, false)?, dir))
     } else {
         None
     };
-    let mut video = match &job.output.video {
+    let video = match &job.output.video {
         Some(name) => {
             let (w, h) = (job.view.width, job.view.height);
             if w % 2 == 1 || h % 2 == 1 {
@@ -94,49 +96,25 @@ pub(super) fn write_outputs(
         }
         None => None,
     };
-    for t in &timeline.frames {
-        let figures = match &source {
-            FrameSource::Render => {
-                painter.paint(&mut renderer, t, orbit_share(t.index, n), &mut frame)
-            }
-            FrameSource::Parts(gathered) => gathered.load(t.index, &mut frame)?,
-        };
-        if let Some((seq, _)) = png.as_mut() {
-            let in_unit = |m: f64| m / unit.metres();
-            let crest_m = figures.crest_elevation_m.unwrap_or(f64::NAN);
-            let row = png_seq::IndexRow {
-                time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
-                status: if t.kind.is_measured() {
-                    RowStatus::Surveyed
-                } else {
-                    RowStatus::Interpolated
-                },
-                method: if t.kind.is_measured() {
-                    "survey".into()
-                } else {
-                    effective_method(job, &fields, t.from).name().into()
-                },
-                from_survey: stack.surveys()[t.from].id.clone(),
-                to_survey: stack.surveys()[t.to].id.clone(),
-                crest_elevation: in_unit(crest_m),
-                crest_height_above_reference: in_unit(crest_m - job.change.reference_elevation_m),
-                highest_cell_elevation: in_unit(
-                    figures.highest_cell_elevation_m.unwrap_or(f64::NAN),
-                ),
-                unit: unit.symbol().into(),
-            };
-            seq.write_frame(&frame, row)?;
-        }
-        if let Some((v, _)) = video.as_mut() {
-            v.write_frame(&frame, t.duration_s, t.kind.is_measured())?;
-        }
-        if job.output.gif.is_some() {
-            kept.push(frame.clone());
-        }
-        if let Some(cb) = &opts.progress {
-            cb(t.index + 1, n);
-        }
-    }
+    let sinks = FrameSinks {
+        job,
+        stack: &stack,
+        fields: &fields,
+        png,
+        video,
+        kept: Vec::with_capacity(if job.output.gif.is_some() { n } else { 0 }),
+    };
+    let paint = |t: &FrameTime, frame: &mut Frame| match &source {
+        FrameSource::Render => Ok(painter.paint(&mut renderer, t, orbit_share(t.index, n), frame)),
+        FrameSource::Parts(gathered) => gathered.load(t.index, frame),
+    };
+    let FrameSinks {
+        png, video, kept, ..
+    } = if rayon::current_num_threads() > 1 {
+        sinks.pipelined(&timeline.frames, paint, opts)?
+    } else {
+        sinks.inline(&timeline.frames, paint, opts)?
+    };
     // With a video, each frame's H.264 encoding is inside this lap too (it runs as frames come).
     clock.lap(if video.is_some() {
         "frames: surface, render, PNG, video"
@@ -244,9 +222,21 @@ pub(super) fn write_outputs(
             ],
             effort: geotiff::Effort::Fast,
         };
+        // A field estimated on blocks is written on the blocks: same origin, cells `step` times
+        // as large (the last row and column of blocks may reach past the survey grid's edge).
+        let g = stack.geometry();
+        let (rows, cols) = f.field.east_m.dim();
+        let step = f.field.step.max(1) as f64;
+        let block_grid = crate::grid::GridGeometry {
+            rows,
+            cols,
+            cell_x: g.cell_x * step,
+            cell_y: g.cell_y * step,
+            ..g.clone()
+        };
         geotiff::write_bands(
             &path,
-            stack.geometry(),
+            &block_grid,
             &[&f.field.east_m, &f.field.north_m],
             &wopts,
         )?;
@@ -256,43 +246,7 @@ pub(super) fn write_outputs(
         });
     }
     // Every pair's DEM of difference and detection mask as rasters on the grids' georeference.
-    for pair in &record.pairs {
-        let (a, b) = (change::file_safe(&pair.from_id), change::file_safe(&pair.to_id));
-        let span = format!(
-            "{} ({}) to {} ({})",
-            pair.from_id, pair.from_date, pair.to_id, pair.to_date
-        );
-        let det = change::pair_detection(&stack, pair);
-        let rasters = [
-            (
-                format!("dod-{a}-{b}.tif"),
-                change::dod_grid(&stack, pair),
-                format!("DEM of difference {span}: later minus earlier, metres; positive = deposition"),
-            ),
-            (
-                format!("detected-{a}-{b}.tif"),
-                change::detection_raster(&det),
-                format!(
-                    "detected change {span}: -1 erosion, 1 deposition, 0 not detected (within LoD {:.3} m or in a patch under {:.1} m2)",
-                    pair.lod_m, pair.min_patch_m2
-                ),
-            ),
-        ];
-        for (name, grid, description) in rasters {
-            let path = scratch.join(&name);
-            let wopts = WriteOptions {
-                nodata: Some(-9999.0),
-                overwrite: false,
-                band_descriptions: vec![description],
-                effort: geotiff::Effort::Fast,
-            };
-            geotiff::write_bands(&path, stack.geometry(), &[&grid], &wopts)?;
-            extra.push(ExtraFile {
-                name: format!("fields/{name}"),
-                content: ExtraContent::File(path),
-            });
-        }
-    }
+    extra.extend(difference_rasters(&stack, &record, scratch)?);
 
     clock.lap("displacement and difference rasters");
     let figures = change::figures(&stack, &record, &job.change);
@@ -353,4 +307,191 @@ fn files_under(dir: &Path, prefix: &str) -> Result<Vec<ExtraFile>> {
             content: ExtraContent::File(dir.join(n)),
         })
         .collect())
+}
+
+/// How many painted frames may wait for the encoders: enough to even out frames that take longer
+/// to paint or to encode, few enough that memory does not grow with the animation.
+const PIPELINE_DEPTH: usize = 3;
+
+/// Where each finished frame goes, in frame order: the PNG sequence (with its index row), the
+/// video encoder, and the frames kept for the GIF's palette.
+struct FrameSinks<'a> {
+    job: &'a Job,
+    stack: &'a AlignedStack,
+    fields: &'a [Option<FlowResult>],
+    png: Option<(png_seq::PngSequence, PathBuf)>,
+    video: Option<(VideoWriter, PathBuf)>,
+    kept: Vec<Frame>,
+}
+
+impl FrameSinks<'_> {
+    /// Hands frame `t` to every output. Gives the frame back when no output keeps it, so its
+    /// buffer can be painted again.
+    fn take(
+        &mut self,
+        t: &FrameTime,
+        figures: FrameFigures,
+        frame: Frame,
+    ) -> Result<Option<Frame>> {
+        let (job, unit) = (self.job, self.job.change.display_unit);
+        if let Some((seq, _)) = self.png.as_mut() {
+            let in_unit = |m: f64| m / unit.metres();
+            let crest_m = figures.crest_elevation_m.unwrap_or(f64::NAN);
+            let row = png_seq::IndexRow {
+                time: t.when.format("%Y-%m-%dT%H:%M:%S").to_string(),
+                status: if t.kind.is_measured() {
+                    RowStatus::Surveyed
+                } else {
+                    RowStatus::Interpolated
+                },
+                method: if t.kind.is_measured() {
+                    "survey".into()
+                } else {
+                    effective_method(job, self.fields, t.from).name().into()
+                },
+                from_survey: self.stack.surveys()[t.from].id.clone(),
+                to_survey: self.stack.surveys()[t.to].id.clone(),
+                crest_elevation: in_unit(crest_m),
+                crest_height_above_reference: in_unit(crest_m - job.change.reference_elevation_m),
+                highest_cell_elevation: in_unit(
+                    figures.highest_cell_elevation_m.unwrap_or(f64::NAN),
+                ),
+                unit: unit.symbol().into(),
+            };
+            seq.write_frame(&frame, row)?;
+        }
+        if let Some((v, _)) = self.video.as_mut() {
+            v.write_frame(&frame, t.duration_s, t.kind.is_measured())?;
+        }
+        if job.output.gif.is_some() {
+            self.kept.push(frame);
+            return Ok(None);
+        }
+        Ok(Some(frame))
+    }
+
+    /// Paints and encodes frame after frame on this thread (a one-thread run uses one core).
+    fn inline(
+        mut self,
+        frames: &[FrameTime],
+        mut paint: impl FnMut(&FrameTime, &mut Frame) -> Result<FrameFigures>,
+        opts: &RunOptions,
+    ) -> Result<Self> {
+        let (w, h) = (self.job.view.width, self.job.view.height);
+        let mut spare = None;
+        for t in frames {
+            let mut frame = spare.take().unwrap_or_else(|| Frame::new(w, h));
+            let figures = paint(t, &mut frame)?;
+            spare = self.take(t, figures, frame)?;
+            if let Some(cb) = &opts.progress {
+                cb(t.index + 1, frames.len());
+            }
+        }
+        Ok(self)
+    }
+
+    /// Paints on this thread (the renderer spreads each frame over the rayon pool) while a second
+    /// thread encodes the frames painted before, through a channel of [`PIPELINE_DEPTH`] frames.
+    /// Frames reach the encoders in order, so the files are the same as [`FrameSinks::inline`]'s.
+    fn pipelined(
+        self,
+        frames: &[FrameTime],
+        mut paint: impl FnMut(&FrameTime, &mut Frame) -> Result<FrameFigures>,
+        opts: &RunOptions,
+    ) -> Result<Self> {
+        let (w, h) = (self.job.view.width, self.job.view.height);
+        let (to_encoder, painted) =
+            mpsc::sync_channel::<(usize, FrameFigures, Frame)>(PIPELINE_DEPTH);
+        let (give_back, spares) = mpsc::channel::<Frame>();
+        std::thread::scope(|scope| {
+            let encoder = scope.spawn(move || -> Result<Self> {
+                let mut sinks = self;
+                for (i, figures, frame) in painted {
+                    if let Some(frame) = sinks.take(&frames[i], figures, frame)? {
+                        // The painter may be done already; then the buffer is simply dropped.
+                        let _ = give_back.send(frame);
+                    }
+                }
+                Ok(sinks)
+            });
+            let mut painting = Ok(());
+            for t in frames {
+                let mut frame = spares.try_recv().unwrap_or_else(|_| Frame::new(w, h));
+                match paint(t, &mut frame) {
+                    Ok(figures) => {
+                        // A closed channel means the encoder stopped on an error; it reports it.
+                        if to_encoder.send((t.index, figures, frame)).is_err() {
+                            break;
+                        }
+                    }
+                    Err(e) => {
+                        painting = Err(e);
+                        break;
+                    }
+                }
+                if let Some(cb) = &opts.progress {
+                    cb(t.index + 1, frames.len());
+                }
+            }
+            drop(to_encoder);
+            let encoded = encoder
+                .join()
+                .unwrap_or_else(|panic| std::panic::resume_unwind(panic));
+            painting.and(encoded)
+        })
+    }
+}
+
+/// Writes every pair's DEM of difference (`dod-A-B.tif`, float32 metres, later minus earlier) and
+/// detection mask (`detected-A-B.tif`: -1 erosion, 1 deposition, 0 not detected) into `scratch`,
+/// on the grids' georeference with nodata -9999, and names them for `data/fields/`.
+fn difference_rasters(
+    stack: &AlignedStack,
+    record: &change::ChangeRecord,
+    scratch: &Path,
+) -> Result<Vec<ExtraFile>> {
+    let mut out = Vec::new();
+    for pair in &record.pairs {
+        let (a, b) = (
+            change::file_safe(&pair.from_id),
+            change::file_safe(&pair.to_id),
+        );
+        let span = format!(
+            "{} ({}) to {} ({})",
+            pair.from_id, pair.from_date, pair.to_id, pair.to_date
+        );
+        let det = change::pair_detection(stack, pair);
+        let rasters = [
+            (
+                format!("dod-{a}-{b}.tif"),
+                change::dod_grid(stack, pair),
+                format!(
+                    "DEM of difference {span}: later minus earlier, metres; positive = deposition"
+                ),
+            ),
+            (
+                format!("detected-{a}-{b}.tif"),
+                change::detection_raster(&det),
+                format!(
+                    "detected change {span}: -1 erosion, 1 deposition, 0 not detected (within LoD {:.3} m or in a patch under {:.1} m2)",
+                    pair.lod_m, pair.min_patch_m2
+                ),
+            ),
+        ];
+        for (name, grid, description) in rasters {
+            let path = scratch.join(&name);
+            let wopts = WriteOptions {
+                nodata: Some(-9999.0),
+                overwrite: false,
+                band_descriptions: vec![description],
+                effort: geotiff::Effort::Fast,
+            };
+            geotiff::write_bands(&path, stack.geometry(), &[&grid], &wopts)?;
+            out.push(ExtraFile {
+                name: format!("fields/{name}"),
+                content: ExtraContent::File(path),
+            });
+        }
+    }
+    Ok(out)
 }

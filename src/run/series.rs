@@ -7,7 +7,7 @@ use std::path::Path;
 use ndarray::Array2;
 
 use crate::align::AlignedStack;
-use crate::change::{self, ChangeRecord};
+use crate::change::{self, ChangeRecord, LandformRecord};
 use crate::coregister::{self, Registration, StableSource};
 use crate::error::{Error, Result};
 use crate::geotiff;
@@ -176,17 +176,22 @@ pub(super) fn measure_landforms(
     record: &mut ChangeRecord,
     max_side: usize,
 ) -> Vec<String> {
+    // Pairs are independent: measured side by side, gathered in pair order (thread-count free).
+    // In waves of one pair per thread, so scratch memory is bounded by threads, not pairs.
+    let found: Vec<Vec<LandformRecord>> =
+        crate::waves::map_mut_in_waves(&mut record.pairs, |pair| {
+            change::landforms(
+                stack,
+                pair,
+                &job.flow,
+                job.change.landform_join_m,
+                job.change.landform_min_area_m2,
+                max_side,
+            )
+        });
     let mut warnings = Vec::new();
     let mut rows = Vec::new();
-    for pair in record.pairs.iter_mut() {
-        let found = change::landforms(
-            stack,
-            pair,
-            &job.flow,
-            job.change.landform_join_m,
-            job.change.landform_min_area_m2,
-            max_side,
-        );
+    for (pair, found) in record.pairs.iter().zip(found) {
         if let Some(site) = found.last() {
             if site.status != "measured" {
                 warnings.push(format!(

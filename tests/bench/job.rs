@@ -3,9 +3,11 @@
 //! supersample 2, shadows, morph, the first survey as the earlier surface, GIF + PNG frames + record.
 //! Targets: ≤ 12 s on the 2-core machine, ≥ 180 % CPU; 2 threads ≥ 1.8× faster than 1.
 //!
-//! Prints, per thread count, the median wall time of several runs and the process CPU share
-//! (CPU seconds / wall seconds, from /proc/self/stat). Run with `cargo bench --bench job`;
-//! `JOB_BENCH_RUNS=1` for a quick look.
+//! Prints, per supersample (2, then 1) and thread count, the median wall time of several runs and
+//! the process CPU share (CPU seconds / wall seconds, from /proc/self/stat), then the stage table
+//! (`RunReport::timings`) of the median two-thread run at supersample 2. Run with
+//! `cargo bench --bench job`; `JOB_BENCH_RUNS=1` for a quick look, `JOB_BENCH_SS=2` for one
+//! supersample only.
 
 use std::path::Path;
 use std::process::Command;
@@ -37,13 +39,13 @@ surveys:
   - { date: 2051-05-08, grid: grids/quellan-2034-05-08.tif, sigma_z_m: 0.08 }
 timeline: { frames_per_year: 6, fps: 12, hold_s: 1.0 }
 in_between: { method: morph }
-view: { width: 1280, height: 720, supersample: 2 }
+view: { width: 1280, height: 720, supersample: SS }
 sun: { shadows: true }
 shell: { survey: first }
 output: { folder: out, gif: bench.gif, png_frames: true, poster: true, overwrite: true }
 ";
 
-fn run_once(job: &job::Job, threads: usize) -> (f64, f64) {
+fn run_once(job: &job::Job, threads: usize) -> (f64, f64, Vec<(&'static str, f64)>) {
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()
@@ -63,7 +65,7 @@ fn run_once(job: &job::Job, threads: usize) -> (f64, f64) {
     let cpu = process_cpu_s().unwrap_or(0.0) - cpu0;
     let report = report.expect("the bench job runs");
     assert!(report.frames >= 150, "{} frames", report.frames);
-    (wall, cpu / wall)
+    (wall, cpu / wall, report.timings)
 }
 
 fn main() {
@@ -75,28 +77,48 @@ fn main() {
         .status()
         .unwrap();
     assert!(status.success(), "the demo generator failed");
-    let path = dir.path().join("job.yaml");
-    std::fs::write(&path, JOB).unwrap();
-    let job = job::load(Path::new(&path)).unwrap();
     let runs: usize = std::env::var("JOB_BENCH_RUNS")
         .ok()
         .and_then(|v| v.parse().ok())
         .unwrap_or(3);
-    println!("standard job: 5 surveys of 1024², 25 years, 6 frames/yr, 1280x720, ss2, shadows, morph, shell, GIF + PNG + record");
-    let mut medians = Vec::new();
-    for threads in [1, 2] {
-        let (mut walls, mut shares) = (Vec::new(), Vec::new());
-        for _ in 0..runs {
-            let (w, s) = run_once(&job, threads);
-            walls.push(w);
-            shares.push(s);
+    let supersamples: Vec<u32> = match std::env::var("JOB_BENCH_SS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+    {
+        Some(ss) => vec![ss],
+        None => vec![2, 1],
+    };
+    println!("standard job: 5 surveys of 1024², 25 years, 6 frames/yr, 1280x720, shadows, morph, shell, GIF + PNG + record");
+    let mut table = None;
+    for ss in supersamples {
+        let path = dir.path().join(format!("job-ss{ss}.yaml"));
+        std::fs::write(&path, JOB.replace("SS", &ss.to_string())).unwrap();
+        let job = job::load(Path::new(&path)).unwrap();
+        let mut medians = Vec::new();
+        for threads in [1, 2] {
+            let mut results: Vec<(f64, f64, Vec<(&'static str, f64)>)> =
+                (0..runs).map(|_| run_once(&job, threads)).collect();
+            results.sort_by(|a, b| a.0.total_cmp(&b.0));
+            let share = median(results.iter().map(|r| r.1).collect());
+            let (wall, _, timings) = results.swap_remove(results.len() / 2);
+            println!(
+                "  supersample {ss}, {threads} thread(s): median {wall:6.2} s over {runs} runs, CPU {:4.0} %",
+                100.0 * share
+            );
+            medians.push(wall);
+            if threads == 2 && (ss == 2 || table.is_none()) {
+                table = Some((ss, timings));
+            }
         }
-        let (w, s) = (median(walls), median(shares));
         println!(
-            "  {threads} thread(s): median {w:6.2} s over {runs} runs, CPU {:4.0} %",
-            100.0 * s
+            "  supersample {ss}: 2 threads vs 1: {:.2}x faster",
+            medians[0] / medians[1]
         );
-        medians.push(w);
     }
-    println!("  2 threads vs 1: {:.2}x faster", medians[0] / medians[1]);
+    if let Some((ss, timings)) = table {
+        println!("stages of the median 2-thread run at supersample {ss} (wall seconds):");
+        for (stage, s) in timings {
+            println!("  {stage:<40} {s:7.2}");
+        }
+    }
 }

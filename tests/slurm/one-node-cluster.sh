@@ -16,6 +16,9 @@ cd "$(dirname "$0")/../.."
 top=$(pwd)
 bin=${1:-$top/target/debug/dunereel}
 fail() { echo "one-node-cluster: FAILED: $*" >&2; exit 1; }
+# The array tasks run in the work folder and find dunereel on PATH: a relative path would not
+# resolve there, and every task would exit 127 ("command not found").
+[ -e "$bin" ] && bin=$(realpath "$bin")
 
 [ "$(id -u)" = 0 ] || fail "must run as root (it configures Slurm and MUNGE)"
 [ -x "$bin" ] || fail "no dunereel binary at $bin; build it first (cargo build)"
@@ -96,12 +99,20 @@ export PATH="$(dirname "$bin"):$PATH" JOB=site.yaml PARTS=3
 ids=$(bash submit.sh) || fail "submitting the README's scripts failed"
 assemble_id=$(echo "$ids" | tail -n1)
 echo "submitted: $(echo "$ids" | tr '\n' ' ')"
+# Wait for the assemble job, but not for ever: when an array task fails, Slurm leaves the
+# `afterok` job pending with the reason DependencyNeverSatisfied, and it would never start.
+state=
 for _ in $(seq 300); do
-  state=$(scontrol show job "$assemble_id" 2>/dev/null | sed -n 's/.*JobState=\([A-Z_]*\).*/\1/p')
+  info=$(scontrol show job "$assemble_id" 2>/dev/null || true)
+  state=$(echo "$info" | sed -n 's/.*JobState=\([A-Z_]*\).*/\1/p')
   case "$state" in COMPLETED|FAILED|CANCELLED|TIMEOUT|NODE_FAIL|OUT_OF_MEMORY) break ;; esac
+  if echo "$info" | grep -q 'Reason=DependencyNeverSatisfied'; then
+    state="never started: a part failed (DependencyNeverSatisfied)"
+    break
+  fi
   sleep 1
 done
-[ "$state" = COMPLETED ] || { cat ./*.log >&2 || true; fail "the assemble job ended $state"; }
+[ "$state" = COMPLETED ] || { tail -n 20 ./*.log >&2 || true; fail "the assemble job ended ${state:-unknown, still waiting after 300 s}"; }
 
 "$bin" render site.yaml --output "$work/one-machine" -q
 folder=$(sed -n 's/^  folder: //p' site.yaml)

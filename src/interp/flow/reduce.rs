@@ -9,7 +9,6 @@
 use ndarray::Array2;
 
 use super::{estimate, FlowField, FlowOptions, FlowResult};
-use crate::grid::sample_bilinear;
 
 /// Like [`estimate`], but on grids larger than `max_side` cells a side works on block means of
 /// `k × k` cells (the smallest whole `k` that brings both sides within `max_side`), then
@@ -32,19 +31,12 @@ pub fn estimate_within(
         cell_size_m * k as f64,
         opts,
     );
-    let up = |f: &Array2<f32>| {
-        Array2::from_shape_fn((rows, cols), |(r, c)| {
-            // Cell centre of the fine cell, in coarse cell coordinates (centres at whole numbers).
-            let rr = (r as f64 + 0.5) / k as f64 - 0.5;
-            let cc = (c as f64 + 0.5) / k as f64 - 0.5;
-            sample_bilinear(f, rr, cc)
-        })
-    };
+    // Kept at block resolution: `FlowField::row_at` interpolates it where the morph needs it.
     let field = FlowField {
-        east_m: up(&coarse.field.east_m),
-        north_m: up(&coarse.field.north_m),
-        quality: up(&coarse.field.quality),
         cell_size_m,
+        step: k,
+        grid_dim: (rows, cols),
+        ..coarse.field
     };
     FlowResult {
         field,
@@ -114,17 +106,60 @@ mod tests {
             (d.east_m - 12.0).abs() < 0.1 && (d.north_m + 7.5).abs() < 0.1,
             "{d:?}"
         );
-        assert_eq!(res.field.east_m.dim(), (600, 600));
+        assert_eq!(res.field.grid_dim, (600, 600));
+        assert_eq!((res.field.step, res.field.east_m.dim()), (3, (200, 200)));
         let (mut se, mut n) = (0.0, 0);
+        let (mut east, mut north) = (Vec::new(), Vec::new());
         for ((r, c), &v) in a.indexed_iter() {
+            if c == 0 {
+                res.field.row_at(r, &mut east, &mut north);
+            }
             if v - (1.0 + 0.01 * c as f32) > 2.0 {
-                let e = res.field.east_m[[r, c]] as f64 - 12.0;
-                let s = res.field.north_m[[r, c]] as f64 + 7.5;
+                let e = east[c] as f64 - 12.0;
+                let s = north[c] as f64 + 7.5;
                 se += e * e + s * s;
                 n += 1;
             }
         }
         let rms = (se / n as f64).sqrt();
         assert!(rms < 0.3, "rms {rms}");
+    }
+
+    #[test]
+    fn a_block_field_reads_like_bilinear_upsampling() {
+        // Check: `grid::sample_bilinear` (bilinear interpolation, cell centres at whole numbers) —
+        // the row-by-row reading of a field kept on 3×3 blocks equals sampling each grid cell's
+        // centre in block coordinates, including the partial last row and column of blocks.
+        let (rows, cols, k) = (20usize, 17usize, 3usize);
+        let blocks = (rows.div_ceil(k), cols.div_ceil(k));
+        let east = Array2::from_shape_fn(blocks, |(r, c)| (r * 7 + c * 3) as f32 * 0.25 - 2.0);
+        let north = Array2::from_shape_fn(blocks, |(r, c)| ((r * c) as f32).sin());
+        let field = FlowField {
+            quality: Array2::ones(blocks),
+            east_m: east.clone(),
+            north_m: north.clone(),
+            cell_size_m: 1.0,
+            step: k,
+            grid_dim: (rows, cols),
+        };
+        let (mut e, mut n) = (Vec::new(), Vec::new());
+        for r in 0..rows {
+            field.row_at(r, &mut e, &mut n);
+            assert_eq!(e.len(), cols);
+            for c in 0..cols {
+                let rr = (r as f64 + 0.5) / k as f64 - 0.5;
+                let cc = (c as f64 + 0.5) / k as f64 - 0.5;
+                assert_eq!(
+                    e[c],
+                    crate::grid::sample_bilinear(&east, rr, cc),
+                    "east {r},{c}"
+                );
+                assert_eq!(
+                    n[c],
+                    crate::grid::sample_bilinear(&north, rr, cc),
+                    "north {r},{c}"
+                );
+            }
+        }
     }
 }

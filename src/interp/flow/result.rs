@@ -3,6 +3,11 @@
 use ndarray::Array2;
 
 /// The displacement field on the grid of the earlier survey, in metres, with its quality.
+///
+/// A field estimated on block means (`flow::estimate_within` on a large grid) is kept at that
+/// resolution: one value per `step × step` block of grid cells, the block's value standing at the
+/// block's centre. [`FlowField::row_at`] gives the field at any grid row, bilinearly interpolated,
+/// so a 4096² pair costs the memory of a 1024² field (12 MB instead of 192 MB).
 #[derive(Debug, Clone)]
 pub struct FlowField {
     /// East component of the displacement from the earlier to the later survey, metres.
@@ -12,8 +17,13 @@ pub struct FlowField {
     /// Per-cell quality from 0 to 1 (local NCC after warping); 0 where the vector was filled in
     /// rather than measured (flat, ramp, nodata, outlier, or below `min_quality`).
     pub quality: Array2<f32>,
-    /// Cell width in metres the components were converted with.
+    /// Cell width in metres the components were converted with (of the survey grid, not of the
+    /// blocks).
     pub cell_size_m: f64,
+    /// Grid cells per field value along each axis: 1 when the arrays have the grid's shape.
+    pub step: usize,
+    /// (rows, cols) of the survey grid the field belongs to.
+    pub grid_dim: (usize, usize),
 }
 
 impl FlowField {
@@ -24,6 +34,73 @@ impl FlowField {
             north_m: Array2::zeros((rows, cols)),
             quality: Array2::zeros((rows, cols)),
             cell_size_m,
+            step: 1,
+            grid_dim: (rows, cols),
+        }
+    }
+
+    /// A field whose arrays have the grid's shape (`step` 1).
+    pub fn full(
+        east_m: Array2<f32>,
+        north_m: Array2<f32>,
+        quality: Array2<f32>,
+        cell_size_m: f64,
+    ) -> Self {
+        let grid_dim = east_m.dim();
+        FlowField {
+            east_m,
+            north_m,
+            quality,
+            cell_size_m,
+            step: 1,
+            grid_dim,
+        }
+    }
+
+    /// East and north components along grid row `r`, one value per grid column, into `east` and
+    /// `north` (resized to the grid's width). With `step` 1 they are copies of the arrays' row;
+    /// otherwise each grid cell's centre is placed in block coordinates (block centres at whole
+    /// numbers) and the blocks are interpolated bilinearly (`grid::sample_bilinear`).
+    pub fn row_at(&self, r: usize, east: &mut Vec<f32>, north: &mut Vec<f32>) {
+        let cols = self.grid_dim.1;
+        east.resize(cols, 0.0);
+        north.resize(cols, 0.0);
+        if self.step <= 1 {
+            for (d, &v) in east.iter_mut().zip(self.east_m.row(r)) {
+                *d = v;
+            }
+            for (d, &v) in north.iter_mut().zip(self.north_m.row(r)) {
+                *d = v;
+            }
+            return;
+        }
+        // The same arithmetic as `grid::sample_bilinear` (fine-cell centres always fall inside
+        // the blocks' span), with the row's two block rows and weights found once.
+        let k = self.step as f64;
+        let (brows, bcols) = self.east_m.dim();
+        if brows == 0 || bcols == 0 {
+            east.fill(f32::NAN);
+            north.fill(f32::NAN);
+            return;
+        }
+        let rr = ((r as f64 + 0.5) / k - 0.5).clamp(0.0, (brows - 1) as f64);
+        let r0 = rr.floor() as usize;
+        let r1 = (r0 + 1).min(brows - 1);
+        let fr = (rr - r0 as f64) as f32;
+        let blend = |z: &Array2<f32>, c0: usize, c1: usize, fc: f32| -> f32 {
+            let pick = |rr: usize, cc: usize, w: f32| if w == 0.0 { 0.0 } else { z[[rr, cc]] * w };
+            pick(r0, c0, (1.0 - fr) * (1.0 - fc))
+                + pick(r0, c1, (1.0 - fr) * fc)
+                + pick(r1, c0, fr * (1.0 - fc))
+                + pick(r1, c1, fr * fc)
+        };
+        for c in 0..cols {
+            let cc = ((c as f64 + 0.5) / k - 0.5).clamp(0.0, (bcols - 1) as f64);
+            let c0 = cc.floor() as usize;
+            let c1 = (c0 + 1).min(bcols - 1);
+            let fc = (cc - c0 as f64) as f32;
+            east[c] = blend(&self.east_m, c0, c1, fc);
+            north[c] = blend(&self.north_m, c0, c1, fc);
         }
     }
 }

@@ -1,0 +1,75 @@
+//! Work on whole surveys or pairs, side by side but never more at once than the pool has threads.
+//!
+//! A plain `par_iter` over surveys lets rayon start another survey whenever a thread waits inside
+//! one (the per-survey steps are parallel too), so a 12-survey job could hold the scratch arrays of
+//! many surveys at once: at 4096² each takes hundreds of MB. Mapping in waves of
+//! `rayon::current_num_threads()` items bounds that memory by the thread count, not the number of
+//! surveys. Results come back in item order, so the output does not depend on the thread count.
+
+use rayon::prelude::*;
+
+/// `f(i)` for every `i` in `0..n`, in waves of at most one item per pool thread; results in order.
+pub fn map_in_waves<T: Send>(n: usize, f: impl Fn(usize) -> T + Sync) -> Vec<T> {
+    let wave = rayon::current_num_threads().max(1);
+    let mut out = Vec::with_capacity(n);
+    let mut start = 0;
+    while start < n {
+        let end = (start + wave).min(n);
+        out.extend((start..end).into_par_iter().map(&f).collect::<Vec<T>>());
+        start = end;
+    }
+    out
+}
+
+/// `f(item)` for every item of `items`, in waves as [`map_in_waves`]; results in order.
+pub fn map_mut_in_waves<I: Send, T: Send>(
+    items: &mut [I],
+    f: impl Fn(&mut I) -> T + Sync,
+) -> Vec<T> {
+    let wave = rayon::current_num_threads().max(1);
+    let mut out = Vec::with_capacity(items.len());
+    for chunk in items.chunks_mut(wave) {
+        out.extend(chunk.par_iter_mut().map(&f).collect::<Vec<T>>());
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::sync::atomic::{AtomicUsize, Ordering};
+
+    #[test]
+    fn waves_keep_order_and_bound_the_items_in_flight() {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(2)
+            .build()
+            .unwrap();
+        let (live, most) = (AtomicUsize::new(0), AtomicUsize::new(0));
+        let out = pool.install(|| {
+            map_in_waves(9, |i| {
+                let now = live.fetch_add(1, Ordering::SeqCst) + 1;
+                most.fetch_max(now, Ordering::SeqCst);
+                // Nested parallel work, where a plain par_iter would steal further items.
+                let s: usize = (0..20_000usize).into_par_iter().map(|k| k % 7).sum();
+                live.fetch_sub(1, Ordering::SeqCst);
+                i * 10 + s % 1
+            })
+        });
+        assert_eq!(out, (0..9).map(|i| i * 10).collect::<Vec<_>>());
+        assert!(
+            most.load(Ordering::SeqCst) <= 2,
+            "{} in flight",
+            most.load(Ordering::SeqCst)
+        );
+        let mut items: Vec<usize> = (0..5).collect();
+        let doubled = pool.install(|| {
+            map_mut_in_waves(&mut items, |x| {
+                *x += 1;
+                *x * 2
+            })
+        });
+        assert_eq!(items, vec![1, 2, 3, 4, 5]);
+        assert_eq!(doubled, vec![2, 4, 6, 8, 10]);
+    }
+}
