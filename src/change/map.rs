@@ -193,14 +193,7 @@ pub fn dod_map_with_layout(
     let lod = pair.lod_m;
     let (z0, z1) = (stack.z(pair.from_index), stack.z(pair.to_index));
     let det: Detection = super::pair_detection(stack, pair);
-    let hs = shade::hillshade(
-        z1,
-        g.cell_x_m(),
-        g.cell_y_m(),
-        SUN_AZIMUTH_DEG,
-        SUN_ALTITUDE_DEG,
-        SHADE_EXAGGERATION,
-    );
+    let hs = hillshade(z1, g);
     let row_bytes = width as usize * 4;
     let map_rows = &mut frame.rgba[top as usize * row_bytes..(top + mh) as usize * row_bytes];
     map_rows
@@ -407,6 +400,24 @@ pub fn dod_map_with_layout(
         easting_labels_y: label_y,
     };
     (frame, layout)
+}
+
+/// Hillshade `max(0, n·s)` of the later survey (Horn 1981 normals, `render::shade`), rows in
+/// parallel; NaN where there is no data. Same values as `shade::hillshade`, which runs in one thread.
+fn hillshade(z: &ndarray::Array2<f32>, g: &GridGeometry) -> ndarray::Array2<f32> {
+    let (rows, cols) = z.dim();
+    let k = SHADE_EXAGGERATION as f32;
+    let zk: Vec<f32> = z.iter().map(|v| v * k).collect();
+    let sun = shade::sun_vector(SUN_AZIMUTH_DEG, SUN_ALTITUDE_DEG);
+    let (dx, dy) = (g.cell_x_m() as f32, g.cell_y_m() as f32);
+    let mut out = ndarray::Array2::from_elem((rows, cols), f32::NAN);
+    ndarray::Zip::indexed(&mut out).par_for_each(|(r, c), o| {
+        if zk[r * cols + c].is_finite() {
+            let (p, q) = shade::horn_gradient(&zk, rows, cols, r, c, dx, dy);
+            *o = shade::lambert(shade::normal(p, q), sun);
+        }
+    });
+    out
 }
 
 /// Height of the legend's colour bar: 40 % of the map's, at least 6 text heights.
@@ -850,6 +861,27 @@ mod tests {
         assert_eq!(c[1], c[2]);
         let d = cell_rgba(detect::DEPOSITION, 0.3, 1.0, 0.2, 2.0, &lut);
         assert!(d[2] > d[0]);
+    }
+
+    #[test]
+    fn parallel_hillshade_matches_the_renderers() {
+        let g = super::super::testkit::geometry(40, 2.0);
+        let z = ndarray::Array2::from_shape_fn((40, 40), |(r, c)| {
+            ((r as f32 * 0.3).sin() * 3.0 + c as f32 * 0.1)
+                * if r == 7 && c == 9 { f32::NAN } else { 1.0 }
+        });
+        let a = hillshade(&z, &g);
+        let b = shade::hillshade(
+            &z,
+            2.0,
+            2.0,
+            SUN_AZIMUTH_DEG,
+            SUN_ALTITUDE_DEG,
+            SHADE_EXAGGERATION,
+        );
+        for (x, y) in a.iter().zip(b.iter()) {
+            assert!(x == y || (x.is_nan() && y.is_nan()), "{x} {y}");
+        }
     }
 
     #[test]
