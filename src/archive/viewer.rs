@@ -259,7 +259,7 @@ pub fn page(inp: &ViewerInputs<'_>) -> Result<String> {
 
 fn figure_caption(file: &str, record: &ChangeRecord) -> String {
     if file.starts_with("charts/") {
-        return "Elevation profiles of every survey along the transect".into();
+        return "Elevation profiles along the transect, one per survey, pale (oldest) to dark (latest)".into();
     }
     for p in &record.pairs {
         let stem = format!(
@@ -269,8 +269,8 @@ fn figure_caption(file: &str, record: &ChangeRecord) -> String {
         );
         if file.starts_with("maps/dod-") && file.ends_with(&stem) {
             return format!(
-                "Change from {} to {} (later minus earlier; red erosion, blue deposition, grey within the level of detection)",
-                p.from_date, p.to_date
+                "Change from {} to {} (later minus earlier; red erosion, blue deposition over the relief; change within the level of detection not coloured). Net detected change: {}",
+                p.from_date, p.to_date, p.net_volume_sign
             );
         }
     }
