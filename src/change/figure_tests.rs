@@ -169,3 +169,23 @@ fn record_flags_a_net_whose_range_includes_zero() {
     assert!(super::record::net_sign(10.0, 1.0, 20.0, 1.96)
         .starts_with("gain if errors are independent"));
 }
+
+#[test]
+fn figures_are_the_same_on_any_thread_count() {
+    let (st, rec, opts) = sample();
+    let one = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .unwrap();
+    let four = rayon::ThreadPoolBuilder::new()
+        .num_threads(4)
+        .build()
+        .unwrap();
+    let a = one.install(|| super::figures(&st, &rec, &opts));
+    let b = four.install(|| super::figures(&st, &rec, &opts));
+    assert_eq!(a.len(), b.len());
+    for (x, y) in a.iter().zip(&b) {
+        assert_eq!(x.file_name, y.file_name);
+        assert!(x.frame.rgba == y.frame.rgba, "{} differs", x.file_name);
+    }
+}
