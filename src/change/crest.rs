@@ -21,6 +21,7 @@
 //! the σ of the blend, `√((1−w)²σ₀² + w²σ₁²)` ([`blend_sigma_m`]).
 
 use ndarray::Array2;
+use rayon::prelude::*;
 
 use crate::grid::GridGeometry;
 
@@ -147,40 +148,73 @@ pub fn highest_cell(z: &Array2<f32>) -> Option<(f32, usize, usize)> {
 /// The cell where the mean over a (2k+1)² window (cells with data only) is highest.
 fn smoothed_top(z: &Array2<f32>, k: usize) -> Option<(usize, usize)> {
     let (rows, cols) = z.dim();
-    // Summed-area tables of values and of data counts, (rows+1) x (cols+1), f64.
+    let laid_out = z.as_standard_layout();
+    let zs = laid_out.as_slice().expect("standard layout");
+    // Summed-area tables of values and of data counts, (rows+1) x (cols+1), f64. Each row's
+    // running sums first (rows side by side), then the rows added up in order.
     let w = cols + 1;
     let mut sum = vec![0.0f64; (rows + 1) * w];
     let mut cnt = vec![0u32; (rows + 1) * w];
-    for r in 0..rows {
-        let (mut rs, mut rc) = (0.0f64, 0u32);
-        for c in 0..cols {
-            let v = z[[r, c]];
-            if v.is_finite() {
-                rs += v as f64;
-                rc += 1;
+    sum[w..]
+        .par_chunks_mut(w)
+        .zip(cnt[w..].par_chunks_mut(w))
+        .zip(zs.par_chunks(cols.max(1)))
+        .for_each(|((srow, crow), zrow)| {
+            let (mut rs, mut rc) = (0.0f64, 0u32);
+            for c in 0..cols {
+                let v = zrow[c];
+                if v.is_finite() {
+                    rs += v as f64;
+                    rc += 1;
+                }
+                srow[c + 1] = rs;
+                crow[c + 1] = rc;
             }
-            sum[(r + 1) * w + c + 1] = sum[r * w + c + 1] + rs;
-            cnt[(r + 1) * w + c + 1] = cnt[r * w + c + 1] + rc;
+        });
+    for r in 1..=rows {
+        let (above, here) = sum.split_at_mut(r * w);
+        for (h, &a) in here[..w].iter_mut().zip(&above[(r - 1) * w..]) {
+            *h += a;
+        }
+        let (above, here) = cnt.split_at_mut(r * w);
+        for (h, &a) in here[..w].iter_mut().zip(&above[(r - 1) * w..]) {
+            *h += a;
         }
     }
-    let mut best: Option<(f64, usize, usize)> = None;
+    // The best window of each band of rows, side by side; then the bands in order, so the first
+    // window in row order wins a tie, as in a single scan.
+    const BAND: usize = 32;
     let need = ((2 * k + 1) * (2 * k + 1) / 2) as u32;
-    for r in 0..rows {
-        let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
-        for c in 0..cols {
-            if !z[[r, c]].is_finite() {
-                continue;
+    let band_best = |band: usize| -> Option<(f64, usize, usize)> {
+        let mut best: Option<(f64, usize, usize)> = None;
+        for r in band * BAND..((band + 1) * BAND).min(rows) {
+            let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
+            for c in 0..cols {
+                if !zs[r * cols + c].is_finite() {
+                    continue;
+                }
+                let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
+                let n = cnt[rb * w + cb] + cnt[ra * w + ca] - cnt[ra * w + cb] - cnt[rb * w + ca];
+                if n < need.min(((rb - ra) * (cb - ca)) as u32) || n == 0 {
+                    continue;
+                }
+                let s = sum[rb * w + cb] + sum[ra * w + ca] - sum[ra * w + cb] - sum[rb * w + ca];
+                let mean = s / n as f64;
+                if best.is_none_or(|(b, _, _)| mean > b) {
+                    best = Some((mean, r, c));
+                }
             }
-            let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
-            let n = cnt[rb * w + cb] + cnt[ra * w + ca] - cnt[ra * w + cb] - cnt[rb * w + ca];
-            if n < need.min(((rb - ra) * (cb - ca)) as u32) || n == 0 {
-                continue;
-            }
-            let s = sum[rb * w + cb] + sum[ra * w + ca] - sum[ra * w + cb] - sum[rb * w + ca];
-            let mean = s / n as f64;
-            if best.is_none_or(|(b, _, _)| mean > b) {
-                best = Some((mean, r, c));
-            }
+        }
+        best
+    };
+    let bands: Vec<Option<(f64, usize, usize)>> = (0..rows.div_ceil(BAND))
+        .into_par_iter()
+        .map(band_best)
+        .collect();
+    let mut best: Option<(f64, usize, usize)> = None;
+    for (mean, r, c) in bands.into_iter().flatten() {
+        if best.is_none_or(|(b, _, _)| mean > b) {
+            best = Some((mean, r, c));
         }
     }
     best.map(|(_, r, c)| (r, c)).or_else(|| {

@@ -209,7 +209,9 @@ pub(super) fn write_outputs(
     }
     // The displacement fields as two-band rasters (east, north in metres), for the record.
     for (i, f) in fields.iter().enumerate() {
-        let Some(f) = f else { continue };
+        let Some(f) = f.as_ref().filter(|f| f.verdict.is_trusted()) else {
+            continue;
+        };
         let (a, b) = (&stack.surveys()[i].id, &stack.surveys()[i + 1].id);
         let name = format!("displacement-{a}-{b}.tif");
         let path = scratch.join(&name);

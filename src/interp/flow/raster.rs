@@ -4,6 +4,8 @@
 //! Window sums use running sums held in f64, so the result does not depend on where a window sits
 //! and the long rows of a 1024-cell grid add no drift.
 
+use rayon::prelude::*;
+
 /// Shape of a flat row-major raster.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) struct Dims {
@@ -20,6 +22,9 @@ impl Dims {
     }
 }
 
+/// Grids smaller than this are summed on one thread (splitting them costs more than it saves).
+const PARALLEL_MIN_CELLS: usize = 1 << 16;
+
 /// Sum of `src` over the (2h+1)x(2h+1) window around every cell, clipped at the edges.
 /// `tmp` and `out` must have `d.len()` cells.
 pub(crate) fn box_sum(src: &[f32], d: Dims, h: usize, tmp: &mut [f32], out: &mut [f32]) {
@@ -28,8 +33,9 @@ pub(crate) fn box_sum(src: &[f32], d: Dims, h: usize, tmp: &mut [f32], out: &mut
     if d.len() == 0 {
         return;
     }
-    // Horizontal pass: running sum along each row.
-    for (srow, trow) in src.chunks_exact(cols).zip(tmp.chunks_exact_mut(cols)) {
+    // Horizontal pass: running sum along each row, rows side by side (each row's sum is the same
+    // as on one thread). The vertical pass below runs down the rows in order.
+    let horizontal = |(srow, trow): (&[f32], &mut [f32])| {
         let mut s = 0.0f64;
         for &v in &srow[..h.min(cols)] {
             s += v as f64;
@@ -43,6 +49,15 @@ pub(crate) fn box_sum(src: &[f32], d: Dims, h: usize, tmp: &mut [f32], out: &mut
             }
             trow[c] = s as f32;
         }
+    };
+    if d.len() >= PARALLEL_MIN_CELLS {
+        src.par_chunks_exact(cols)
+            .zip(tmp.par_chunks_exact_mut(cols))
+            .for_each(horizontal);
+    } else {
+        src.chunks_exact(cols)
+            .zip(tmp.chunks_exact_mut(cols))
+            .for_each(horizontal);
     }
     // Vertical pass, row by row with one accumulator per column (cache friendly).
     let mut acc = vec![0.0f64; cols];
