@@ -824,7 +824,7 @@ fn north_arrow(frame: &mut Frame, x: f32, y: f32, fs: f32) {
 }
 
 /// "id (date)", or just the date when the id is the date.
-pub(super) fn id_and_date(id: &str, date: &str) -> String {
+pub(crate) fn id_and_date(id: &str, date: &str) -> String {
     if id == date {
         date.to_string()
     } else {

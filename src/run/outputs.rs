@@ -459,8 +459,9 @@ fn difference_rasters(
             change::file_safe(&pair.to_id),
         );
         let span = format!(
-            "{} ({}) to {} ({})",
-            pair.from_id, pair.from_date, pair.to_id, pair.to_date
+            "{} to {}",
+            change::map::id_and_date(&pair.from_id, &pair.from_date),
+            change::map::id_and_date(&pair.to_id, &pair.to_date)
         );
         let det = change::pair_detection(stack, pair);
         let rasters = [
