@@ -245,7 +245,13 @@ fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
     // they run side by side, and so do the pairs within each (results come back in pair order,
     // so the output does not depend on the thread count).
     let (landform_warnings, estimated) = rayon::join(
-        || series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE),
+        || match share {
+            // A part's frames do not show migration; the record is written by `assemble`.
+            FrameShare::Part(_) => Vec::new(),
+            FrameShare::All | FrameShare::Assemble => {
+                series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE)
+            }
+        },
         || {
             // A part estimates only the fields of the intervals its in-between frames fall in.
             let needed: Vec<bool> = match &share {

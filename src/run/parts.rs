@@ -13,7 +13,8 @@
 //! A part reads and checks everything a whole run does, but estimates only the displacement fields
 //! its own frames need, plus the fields it stores for `assemble`: the part that renders an
 //! interval's first frame writes that interval's field as `field-III.bin` (exact bits, see
-//! `interp::flow::stored`), so each field is estimated once over all the parts.
+//! `interp::flow::stored`), so each field is estimated once over all the parts. A part skips the
+//! landforms' migration, which only the record shows.
 //! `assemble` reads the grids again (the record and the poster need them), reads the fields from
 //! the parts instead of estimating them, refuses parts that are missing, from another job, from
 //! other grids or from another split, then
