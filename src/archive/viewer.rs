@@ -14,7 +14,7 @@
 //!
 //! What it shows: the title and the caution; the frame (PNG) with a slider that steps frame by frame,
 //! survey dates marked under it (each a button that jumps to that survey); play/pause; the frame's
-//! date, status (measured, or interpolated with method and surveys) and peak height; the survey and
+//! date, status (measured, or interpolated with method and surveys) and crest; the survey and
 //! pair tables with units in the headers; the DoD maps and the transect chart; links to the video,
 //! the GIF, the poster and the frames. Keys: ←/→ step, Home/End jump to the ends, space plays.
 
