@@ -53,10 +53,11 @@ mod tests {
                 // Nested parallel work, where a plain par_iter would steal further items.
                 let s: usize = (0..20_000usize).into_par_iter().map(|k| k % 7).sum();
                 live.fetch_sub(1, Ordering::SeqCst);
-                i * 10 + s % 1
+                (i * 10, s)
             })
         });
-        assert_eq!(out, (0..9).map(|i| i * 10).collect::<Vec<_>>());
+        let sum: usize = (0..20_000usize).map(|k| k % 7).sum();
+        assert_eq!(out, (0..9).map(|i| (i * 10, sum)).collect::<Vec<_>>());
         assert!(
             most.load(Ordering::SeqCst) <= 2,
             "{} in flight",

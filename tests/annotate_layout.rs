@@ -82,6 +82,8 @@ fn full_overlay(interpolated: bool, peak_px: (f32, f32)) -> Overlay {
             unit: "m".into(),
             survey_points,
             current: (2027.6, series[18].1),
+            survey_sigma: vec![0.1; 4],
+            min_span: 1.0,
         }),
         credit: Some("Survey data: invented coastal agency, airborne lidar; demo only".into()),
     }

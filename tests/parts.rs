@@ -134,6 +134,38 @@ fn missing_foreign_and_impossible_parts_are_refused() {
     assert_eq!(code, 2, "{err}");
     assert!(err.contains("split into"), "{err}");
     assert!(!d.path().join("out").exists());
+    // A stored displacement field missing or damaged: refused, naming the file and the part.
+    let (code, _, err) = dunereel(
+        &["render", "job.yaml", "--part", "1/1", "--overwrite"],
+        d.path(),
+        &[],
+    );
+    assert_eq!(code, 0, "{err}");
+    for entry in std::fs::read_dir(d.path().join("out.parts"))
+        .unwrap()
+        .flatten()
+    {
+        if entry.file_name() != "part-1-of-1" {
+            std::fs::remove_dir_all(entry.path()).unwrap();
+        }
+    }
+    let field = d.path().join("out.parts/part-1-of-1/field-000.bin");
+    let bytes = std::fs::read(&field).unwrap();
+    std::fs::write(&field, &bytes[..bytes.len() / 2]).unwrap();
+    let (code, _, err) = dunereel(&["assemble", "job.yaml"], d.path(), &[]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("field-000.bin") && err.contains("damaged"),
+        "{err}"
+    );
+    std::fs::remove_file(&field).unwrap();
+    let (code, _, err) = dunereel(&["assemble", "job.yaml"], d.path(), &[]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("field-000.bin") && err.contains("part 1/1"),
+        "{err}"
+    );
+    assert!(!d.path().join("out").exists());
     // Impossible part numbers, and Slurm without its variables.
     for (part, expect) in [
         ("0/3", "does not exist"),

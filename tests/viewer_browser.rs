@@ -285,6 +285,13 @@ fn viewer_steps_plays_and_stays_inside_the_bag() {
         b.text("status")
     );
     assert_eq!(b.text("date"), "2031-03-01");
+    // The survey's crest, read from the frame index by its column name, in the display unit.
+    let crest = b.text("peak");
+    assert!(
+        crest.ends_with("above the reference)")
+            && crest.chars().next().is_some_and(|c| c.is_ascii_digit()),
+        "crest shown as {crest:?}"
+    );
 
     // Move the slider to an interpolated date and read back frame and status.
     let (j, (time, status, method)) = frames

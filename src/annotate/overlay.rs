@@ -35,9 +35,12 @@ pub struct Legend {
     pub unit: String,
 }
 
-/// A small chart of a value (the crest) against time: the surveys as dots joined by a dashed line
-/// (nothing was measured between them), and this frame's own value as a marker.
+/// A small chart of a value (the crest) against time: the surveys as dots with ±σ bars, joined by a
+/// dashed line (nothing was measured between them), and this frame's time as a marker on that line.
 ///
+/// The marker sits on the dashed line, not at the in-between surface's own value: an interpolated
+/// surface is not a measurement, and its small artefacts must not read as spikes. The value range
+/// is at least `min_span`, so survey noise and a small decline never fill the chart's height.
 /// Everything but `current` is the same on every frame of a job, so it is drawn once and reused.
 #[derive(Debug, Clone, PartialEq)]
 pub struct InsetChart {
@@ -47,8 +50,61 @@ pub struct InsetChart {
     pub unit: String,
     /// Survey values: (decimal year, value), in time order.
     pub survey_points: Vec<(f64, f64)>,
-    /// This frame: (decimal year, value); the value may be NaN (no data).
+    /// This frame: (decimal year, value); the value may be NaN (no data). Only the time places the
+    /// marker while it lies within the surveys' dates; the value is used outside them.
     pub current: (f64, f64),
+    /// One standard deviation of each survey value (same order as `survey_points`, same unit);
+    /// drawn as ±σ bars. Empty: no bars.
+    pub survey_sigma: Vec<f64>,
+    /// Smallest range of values the chart spans, same unit (0: fit the values).
+    pub min_span: f64,
+}
+
+impl InsetChart {
+    /// The value on the dashed line between the surveys at decimal year `t` (linear between the two
+    /// surveys around it); None outside the surveys' dates or without points.
+    pub fn on_line(&self, t: f64) -> Option<f64> {
+        let pts: Vec<(f64, f64)> = self
+            .survey_points
+            .iter()
+            .copied()
+            .filter(|(x, y)| x.is_finite() && y.is_finite())
+            .collect();
+        let first = pts.first()?;
+        if pts.len() == 1 {
+            return ((t - first.0).abs() < 1e-9).then_some(first.1);
+        }
+        pts.windows(2).find_map(|w| {
+            let ((x0, y0), (x1, y1)) = (w[0], w[1]);
+            (t >= x0 && t <= x1 && x1 > x0).then(|| y0 + (y1 - y0) * (t - x0) / (x1 - x0))
+        })
+    }
+
+    /// The chart's value range (low, high): the survey values with their ±σ bars, widened about
+    /// their middle to at least `min_span` (and 0.1 of the unit), plus a tenth on each side.
+    pub fn value_range(&self) -> (f64, f64) {
+        let (mut lo, mut hi) = (f64::MAX, f64::MIN);
+        for (k, &(_, y)) in self.survey_points.iter().enumerate() {
+            if !y.is_finite() {
+                continue;
+            }
+            let s = self
+                .survey_sigma
+                .get(k)
+                .copied()
+                .filter(|s| s.is_finite())
+                .unwrap_or(0.0);
+            lo = lo.min(y - s);
+            hi = hi.max(y + s);
+        }
+        if lo > hi {
+            return (0.0, 1.0);
+        }
+        let span = (hi - lo) * 1.2;
+        let span = span.max(self.min_span).max(0.1);
+        let mid = (lo + hi) / 2.0;
+        (mid - span / 2.0, mid + span / 2.0)
+    }
 }
 
 /// Which crest figure a frame shows.
@@ -191,5 +247,48 @@ impl LabelOptions {
             inset_chart: false,
             credit: false,
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn chart() -> InsetChart {
+        InsetChart {
+            title: "Crest elevation".into(),
+            unit: "m".into(),
+            survey_points: vec![(2030.0, 17.8), (2032.0, 17.6), (2034.0, 16.9)],
+            current: (2031.0, 17.95),
+            survey_sigma: vec![0.1, 0.05, 0.15],
+            min_span: 3.5,
+        }
+    }
+
+    #[test]
+    fn the_marker_rides_the_dashed_line() {
+        let c = chart();
+        // Halfway between the first two surveys: halfway between their values, whatever the
+        // in-between surface's own value (17.95 here) says.
+        assert!((c.on_line(2031.0).unwrap() - 17.7).abs() < 1e-12);
+        assert_eq!(c.on_line(2034.0), Some(16.9));
+        assert_eq!(c.on_line(2035.0), None);
+    }
+
+    #[test]
+    fn the_range_never_shrinks_below_the_floor() {
+        let c = chart();
+        let (lo, hi) = c.value_range();
+        // A decline of 0.9 m (5 %) on a 3.5 m floor: it fills about a quarter of the height.
+        assert!((hi - lo - 3.5).abs() < 1e-9, "{lo} {hi}");
+        // Centred on the values with their σ bars (16.75 to 17.9).
+        assert!(((lo + hi) / 2.0 - 17.325).abs() < 1e-9);
+        let wide = InsetChart {
+            min_span: 0.0,
+            ..chart()
+        };
+        let (lo, hi) = wide.value_range();
+        // Check: own rule — the bars' extent times 1.2: (17.9 - 16.75) * 1.2 = 1.38
+        assert!((hi - lo - 1.38).abs() < 1e-9);
     }
 }

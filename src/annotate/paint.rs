@@ -312,11 +312,13 @@ impl Annotator {
 
     fn draw_chart(&mut self, frame: &mut Frame, r: Rect, c: &InsetChart, p: &Plan) {
         let key = format!(
-            "{:?} {} {} {:?} {} {}",
+            "{:?} {} {} {:?} {:?} {} {} {}",
             (r.w, r.h),
             c.title,
             c.unit,
             c.survey_points,
+            c.survey_sigma,
+            c.min_span,
             p.t.small_px,
             p.unit
         );
@@ -331,8 +333,10 @@ impl Annotator {
         };
         let (ox, oy) = (r.x.round(), r.y.round());
         shapes::composite(frame, layer, ox as i32, oy as i32);
-        // This frame: a vertical line at its time and its own value as a dot.
+        // This frame: a vertical line at its time and a dot on the dashed line (its own value only
+        // outside the surveys' dates).
         let (t, v) = c.current;
+        let v = c.on_line(t).unwrap_or(v);
         if !t.is_finite() {
             return;
         }
@@ -389,9 +393,8 @@ impl Annotator {
         if x1 - x0 <= 0.0 {
             (x0, x1) = (x0 - 0.5, x1 + 0.5);
         }
-        let span = (y1 - y0).max(0.1);
-        let mid = (y0 + y1) / 2.0;
-        let (y0, y1) = (mid - 0.55 * span, mid + 0.55 * span);
+        let _ = (y0, y1);
+        let (y0, y1) = c.value_range();
         // Left column: the heading over the surveys' range; right: the plot, full height.
         let heading = c.title.trim().to_string();
         let range = if pts.is_empty() {
@@ -465,6 +468,29 @@ impl Annotator {
             [235, 238, 242, 230],
             Some(((0.7 * u).max(2.0), (0.5 * u).max(2.0))),
         );
+        // ±σ bars: one standard deviation of each survey, capped.
+        for (k, &(x, y)) in pts.iter().enumerate() {
+            let Some(&s) = c.survey_sigma.get(k) else {
+                continue;
+            };
+            if !(s.is_finite() && s > 0.0) {
+                continue;
+            }
+            let (bx, top) = g.to_px(x, (y + s).min(y1));
+            let (_, bottom) = g.to_px(x, (y - s).max(y0));
+            let cap = (0.35 * u).max(2.0);
+            let bar = [235, 238, 242, 230];
+            let wdt = (0.18 * u).max(1.0);
+            shapes::stroke_polyline(&mut cv, &[(bx, top), (bx, bottom)], wdt, bar, None);
+            shapes::stroke_polyline(&mut cv, &[(bx - cap, top), (bx + cap, top)], wdt, bar, None);
+            shapes::stroke_polyline(
+                &mut cv,
+                &[(bx - cap, bottom), (bx + cap, bottom)],
+                wdt,
+                bar,
+                None,
+            );
+        }
         for &(x, y) in &px {
             shapes::fill_circle(&mut cv, x, y, dot + 1.0, [0, 0, 0, 200]);
             shapes::fill_circle(&mut cv, x, y, dot, MEASURED_BADGE);

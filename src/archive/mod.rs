@@ -353,6 +353,9 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
         record.pairs.len(),
         sym = unit.symbol()
     ));
+    if unit != crate::grid::LinearUnit::Metre {
+        line("Every volume is also given in cubic yards (_yd3; international yard, 1 yd3 = 0.764554857984 m3).");
+    }
     line("Map coordinates (columns ending _crs) are in the grids' own CRS units.");
     line("");
     line("Only the survey dates are measurements. Nothing is known of the surface between two surveys;");
@@ -366,6 +369,19 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
     line("                   et al. 2003). *_raw columns count every cell; the others count only cells whose");
     line("                   change reaches the LoD (Wheaton et al. 2010). volume_sigma_independent: A*s*sqrt(n),");
     line("                   independent cell errors; volume_bound_lod: A*LoD*n, all errors alike (upper bound).");
+    line(
+        "                   Detected change: beyond the LoD and in a patch of one sign of at least",
+    );
+    line("                   min_patch (a spatial-coherence filter after Wheaton et al. 2010); detected_share");
+    line("                   is the share of the compared area flagged. Every net volume comes with its range:");
+    line("                   net_volume_low/high_independent = net -/+ t*sigma_independent, and");
+    line("                   net_volume_low/high_correlated = net -/+ bound_lod. net_volume_sign says in words");
+    line("                   whether the sign is established: \"sign not established\" when the range includes");
+    line("                   zero. The raw net has the same (net_volume_raw_sigma_independent, _raw_bound_lod,");
+    line("                   _raw_sign) over every compared cell.");
+    for l in budget_note(record) {
+        line(&l);
+    }
     line("tables/landforms.* one row per moving landform of each pair (regions of change beyond the LoD),");
     line("                   then the site-wide row `all`: centroid, detected change, and the migration");
     line("                   measured from the relief inside the region only.");
@@ -374,9 +390,14 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
     }
     for f in figures {
         let what = if f.file_name.starts_with("maps/") {
-            "DEM of difference map (grey: within the LoD)"
+            "DEM of difference map: detected change over a hillshade of the later survey, outlines at both dates"
         } else {
             "figure"
+        };
+        let what = if f.file_name.starts_with("charts/transect") {
+            "transect chart: profiles by date (pale = oldest), crest shifts, vertical exaggeration stated"
+        } else {
+            what
         };
         line(&format!("{:<18} {what}", f.file_name));
     }
@@ -400,7 +421,11 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
             "frames" => {
                 "the animation's frames as numbered PNGs, and index.csv saying which are surveyed"
             }
-            "fields" => "displacement field of each pair: band 1 east, band 2 north, metres",
+            "fields" => {
+                "per pair, on the grids' georeference: displacement-A-B.tif (band 1 east, band 2 north, m), \
+                 dod-A-B.tif (DEM of difference, later minus earlier, m, float32, nodata -9999), \
+                 detected-A-B.tif (-1 erosion, 1 deposition, 0 not detected)"
+            }
             "job" => "the job file as run",
             "poster.png" => "the surveys side by side, seen from one viewpoint",
             "viewer" => "the record as one web page: open it in a browser, no network needed",
@@ -429,6 +454,51 @@ fn readme(record: &ChangeRecord, figures: &[Figure], extra: &[ExtraFile]) -> Str
     line("");
     line(CAUTION);
     s
+}
+
+/// Why the detected nets of consecutive pairs need not add up to the first-to-last net, with the
+/// record's own figures (empty without a first-to-last pair).
+fn budget_note(record: &ChangeRecord) -> Vec<String> {
+    use crate::change::PairKind;
+    let Some(whole) = record
+        .pairs
+        .iter()
+        .find(|p| p.pair_kind == PairKind::FirstToLast)
+    else {
+        return Vec::new();
+    };
+    let steps: Vec<_> = record
+        .pairs
+        .iter()
+        .filter(|p| p.pair_kind == PairKind::Consecutive)
+        .collect();
+    let unit = record.options.display_unit;
+    let v = |m3: f64| m3 / unit.metres().powi(3);
+    let sym = unit.symbol();
+    let sum: f64 = steps.iter().map(|p| p.net_volume_m3).sum();
+    let sum_raw: f64 = steps.iter().map(|p| p.net_volume_raw_m3).sum();
+    let mut out = vec![
+        String::new(),
+        "Why the detected nets of consecutive pairs need not add up to the first-to-last net:".into(),
+        format!(
+            "  here the consecutive detected nets sum to {:.1} {sym}3, the first-to-last detected net is {:.1} {sym}3",
+            v(sum),
+            v(whole.net_volume_m3)
+        ),
+        format!(
+            "  (raw nets: {:.1} against {:.1} {sym}3). Thresholding is not additive. A cell that changes a",
+            v(sum_raw),
+            v(whole.net_volume_raw_m3)
+        ),
+        "  little in every interval, each time within that pair's LoD, is counted in no consecutive pair".into(),
+        "  but in the first-to-last pair once the changes add up beyond the LoD; change that reverses (sand".into(),
+        "  laid down, then carried off) is counted twice in the consecutive pairs and not at all first to".into(),
+        "  last; each pair has its own LoD and its own patches. Raw nets add up exactly only where every".into(),
+        "  survey has data in the same cells. Neither figure is wrong; they answer different questions,".into(),
+        "  and each carries its own range.".into(),
+    ];
+    out.push(String::new());
+    out
 }
 
 #[cfg(test)]

@@ -4,7 +4,9 @@
 //! Unit conversion is driven by the field-name suffix, so the names always tell the unit:
 //! `_m` lengths, `_m2` areas, `_m3` volumes, `_m_per_yr` rates. In feet the suffixes become `_ft`,
 //! `_ft2`, `_ft3`, `_ft_per_yr`; in US survey feet `_usft`, … Values are divided by the unit's length
-//! in metres (to the power 2 or 3). Every other field (`_crs` map coordinates, `_deg`, shares, counts,
+//! in metres (to the power 2 or 3). In feet, every volume column is followed by the same volume in
+//! cubic yards (`_yd3`, international yard, 0.764554857984 m³), as US practice reports earthwork.
+//! Every other field (`_crs` map coordinates, `_deg`, shares, counts,
 //! text) is written as it is. In metres nothing is converted, so the numbers are exactly the record's.
 //!
 //! Precision: JSON keeps every digit. CSV, which people read, is rounded by the same suffixes to what
@@ -68,6 +70,25 @@ pub fn convert_name(name: &str, unit: LinearUnit) -> (String, i32) {
     (name.to_string(), 0)
 }
 
+/// One cubic yard in cubic metres: the international yard of 0.9144 m, cubed.
+// Check: NIST Handbook 44 (appendix C) — 1 cubic yard = 0.764554857984 m³ exactly; 0.9144^3
+pub const CUBIC_YARD_M3: f64 = 0.764_554_857_984;
+
+/// The cubic-yard column beside a `_m3` column: `net_volume_m3` -> `net_volume_yd3`.
+pub fn yard_name(name: &str) -> String {
+    format!("{}_yd3", name.strip_suffix("_m3").unwrap_or(name))
+}
+
+/// A value in cubic metres as cubic yards (text and missing values pass through).
+fn cubic_yards(v: &Value) -> Value {
+    match v.as_f64() {
+        Some(x) => {
+            serde_json::Number::from_f64(x / CUBIC_YARD_M3).map_or(Value::Null, Value::Number)
+        }
+        None => v.clone(),
+    }
+}
+
 /// Converts a value in metres to the power `power` into `unit`.
 pub fn convert_value(v: Value, power: i32, unit: LinearUnit) -> Value {
     if power == 0 || unit == LinearUnit::Metre {
@@ -97,8 +118,14 @@ pub fn table<T: Serialize>(
         let mut row = Vec::with_capacity(fields.len());
         for (name, value) in fields {
             let (n, power) = convert_name(name, unit);
+            // US practice reports earthwork in cubic yards beside cubic feet.
+            let yards = (power == 3 && unit != LinearUnit::Metre).then(|| cubic_yards(&value));
             names.push(n);
             row.push(convert_value(value, power, unit));
+            if let Some(v) = yards {
+                names.push(yard_name(name));
+                row.push(v);
+            }
         }
         if columns.is_none() {
             columns = Some(names);
@@ -106,10 +133,15 @@ pub fn table<T: Serialize>(
         rows.push(row);
     }
     let columns = columns.unwrap_or_else(|| {
-        empty_columns
-            .iter()
-            .map(|n| convert_name(n, unit).0)
-            .collect()
+        let mut out = Vec::new();
+        for n in empty_columns {
+            let (name, power) = convert_name(n, unit);
+            out.push(name);
+            if power == 3 && unit != LinearUnit::Metre {
+                out.push(yard_name(n));
+            }
+        }
+        out
     });
     Ok(Table { columns, rows })
 }
@@ -150,7 +182,7 @@ impl Table {
 /// Decimals a CSV column is rounded to, from its unit suffix (see the module doc); None = as it is.
 pub fn csv_decimals(column: &str) -> Option<usize> {
     let ends = |tails: &[&str]| tails.iter().any(|t| column.ends_with(t));
-    if ends(&["_m3", "_ft3", "_usft3", "_m2", "_ft2", "_usft2"]) {
+    if ends(&["_m3", "_ft3", "_usft3", "_yd3", "_m2", "_ft2", "_usft2"]) {
         Some(1)
     } else if ends(&["_per_yr", "_m", "_ft", "_usft", "_crs"]) {
         Some(3)
@@ -394,6 +426,7 @@ mod tests {
                 "depth_usft",
                 "area_usft2",
                 "net_volume_usft3",
+                "net_volume_yd3",
                 "rate_usft_per_yr",
                 "x_crs",
                 "note"
@@ -406,11 +439,22 @@ mod tests {
         // Check: 85 FR 62698 — 1 m3 = (3937/1200)^3 = 35.314455 US ft3; hand-computed, abs diff < 1e-5
         assert!((t.rows[0][3].as_f64().unwrap() - 35.314_455).abs() < 1e-5);
         // Map coordinates stay in CRS units.
-        assert_eq!(t.rows[0][5].as_f64().unwrap(), 5.0);
+        assert_eq!(t.rows[0][6].as_f64().unwrap(), 5.0);
+        // Feet bring a cubic-yard column right after every volume.
+        assert_eq!(t.columns[4], "net_volume_yd3");
+        // Check: NIST Handbook 44 — 1 yd³ = 0.764554857984 m³, so 1 m³ = 1.307950619 yd³; hand-computed, abs diff < 1e-9
+        assert!((t.rows[0][4].as_f64().unwrap() - 1.307_950_619).abs() < 1e-9);
         let t = table(&rows(), LinearUnit::Foot, &[]).unwrap();
         assert_eq!(t.columns[3], "net_volume_ft3");
+        assert_eq!(t.columns[4], "net_volume_yd3");
+        // Check: NIST Handbook 44 — -2.5 m³ = -3.269876548 yd³ (-2.5 / 0.764554857984); abs diff < 1e-9
+        assert!((t.rows[1][4].as_f64().unwrap() + 3.269_876_548).abs() < 1e-9);
+        // 1 yd³ = 27 ft³ exactly (international units): the two columns agree.
+        assert!(
+            (t.rows[1][3].as_f64().unwrap() / t.rows[1][4].as_f64().unwrap() - 27.0).abs() < 1e-9
+        );
         // Check: international foot 0.3048 m exactly (85 FR 62698 restates it) — 0.3048 m/yr = 1 ft/yr; abs diff < 1e-12
-        assert!((t.rows[1][4].as_f64().unwrap() - 1.0).abs() < 1e-12);
+        assert!((t.rows[1][5].as_f64().unwrap() - 1.0).abs() < 1e-12);
         // Check: 85 FR 62698 — 1 m = 3.2808399 international ft = 3.2808333 US ft; abs diff < 1e-7
         assert!((t.rows[1][1].as_f64().unwrap() - 3.280_839_9).abs() < 1e-7);
         let us = table(&rows(), LinearUnit::UsSurveyFoot, &[]).unwrap();
@@ -421,6 +465,8 @@ mod tests {
     fn empty_tables_keep_a_header() {
         let t = table::<Row>(&[], LinearUnit::Foot, &["distance_m", "id"]).unwrap();
         assert_eq!(t.to_csv(), "distance_ft,id\n");
+        let t = table::<Row>(&[], LinearUnit::Foot, &["net_volume_m3"]).unwrap();
+        assert_eq!(t.to_csv(), "net_volume_ft3,net_volume_yd3\n");
         assert_eq!(t.to_json(), "[]\n");
     }
 }

@@ -14,7 +14,7 @@
 //!
 //! What it shows: the title and the caution; the frame (PNG) with a slider that steps frame by frame,
 //! survey dates marked under it (each a button that jumps to that survey); play/pause; the frame's
-//! date, status (measured, or interpolated with method and surveys) and peak height; the survey and
+//! date, status (measured, or interpolated with method and surveys) and crest; the survey and
 //! pair tables with units in the headers; the DoD maps and the transect chart; links to the video,
 //! the GIF, the poster and the frames. Keys: ←/→ step, Home/End jump to the ends, space plays.
 
@@ -49,13 +49,14 @@ pub struct ViewerInputs<'a> {
 
 /// A column header split into words and unit: `net_volume_m3` -> ("net volume", "m³").
 pub fn column_label(name: &str) -> (String, String) {
-    const UNITS: [(&str, &str); 16] = [
+    const UNITS: [(&str, &str); 17] = [
         ("_m_per_yr", "m/yr"),
         ("_ft_per_yr", "ft/yr"),
         ("_usft_per_yr", "US ft/yr"),
         ("_m3", "m³"),
         ("_ft3", "ft³"),
         ("_usft3", "US ft³"),
+        ("_yd3", "yd³"),
         ("_m2", "m²"),
         ("_ft2", "ft²"),
         ("_usft2", "US ft²"),
@@ -84,6 +85,9 @@ fn words(stem: &str) -> String {
         "sigma_dod" => "σ of the difference",
         "volume_sigma_independent" => "± volume, independent cell errors (1σ)",
         "volume_bound_lod" => "± volume bound, all errors alike",
+        "net_volume_sign" => "sign of the detected net",
+        "net_volume_raw_sign" => "sign of the raw net",
+        "detected_share" => "share of the area flagged as change",
         "nodata_share" => "share of cells without data",
         other => return other.replace('_', " "),
     };
@@ -255,7 +259,7 @@ pub fn page(inp: &ViewerInputs<'_>) -> Result<String> {
 
 fn figure_caption(file: &str, record: &ChangeRecord) -> String {
     if file.starts_with("charts/") {
-        return "Elevation profiles of every survey along the transect".into();
+        return "Elevation profiles along the transect, one per survey, pale (oldest) to dark (latest)".into();
     }
     for p in &record.pairs {
         let stem = format!(
@@ -265,8 +269,8 @@ fn figure_caption(file: &str, record: &ChangeRecord) -> String {
         );
         if file.starts_with("maps/dod-") && file.ends_with(&stem) {
             return format!(
-                "Change from {} to {} (later minus earlier; red erosion, blue deposition, grey within the level of detection)",
-                p.from_date, p.to_date
+                "Change from {} to {} (later minus earlier; red erosion, blue deposition over the relief; change within the level of detection not coloured). Net detected change: {}",
+                p.from_date, p.to_date, p.net_volume_sign
             );
         }
     }

@@ -210,22 +210,49 @@ pub struct PairRecord {
     pub erosion_area_raw_m2: f64,
     /// Area of raised cells, every cell counted.
     pub deposition_area_raw_m2: f64,
-    /// Erosion volume over cells lowered by at least the LoD.
+    /// Erosion volume over detected cells: lowered by at least the LoD, in a patch of at least
+    /// `min_patch_m2`.
     pub erosion_volume_m3: f64,
-    /// Deposition volume over cells raised by at least the LoD.
+    /// Deposition volume over detected cells (raised by at least the LoD, in a large enough patch).
     pub deposition_volume_m3: f64,
     /// Thresholded deposition minus thresholded erosion.
     pub net_volume_m3: f64,
-    /// Area lowered by at least the LoD.
+    /// Area of detected lowering.
     pub erosion_area_m2: f64,
-    /// Area raised by at least the LoD.
+    /// Area of detected raising.
     pub deposition_area_m2: f64,
-    /// Cells whose change reaches the LoD.
+    /// Cells of detected change (beyond the LoD, in a large enough patch).
     pub detected_cells: u64,
     /// `A * sigma_dod * sqrt(n_detected)`: uncertainty of a thresholded volume, independent cell errors.
     pub volume_sigma_independent_m3: f64,
     /// `A * LoD * n_detected`: a conservative bound, fully correlated errors at the LoD.
     pub volume_bound_lod_m3: f64,
+    /// Lower end of the detected net volume if cell errors are independent:
+    /// `net - t * volume_sigma_independent` (t of the LoD).
+    pub net_volume_low_independent_m3: f64,
+    /// Upper end of the detected net volume if cell errors are independent.
+    pub net_volume_high_independent_m3: f64,
+    /// Lower end of the detected net volume if every error pulls the same way:
+    /// `net - volume_bound_lod`.
+    pub net_volume_low_correlated_m3: f64,
+    /// Upper end of the detected net volume if every error pulls the same way.
+    pub net_volume_high_correlated_m3: f64,
+    /// The detected net in plain words: `gain` or `loss` when even the correlated range excludes
+    /// zero; otherwise it says "sign not established" (see [`net_sign`]).
+    pub net_volume_sign: &'static str,
+    /// Smallest patch of detected change used, in square metres (`change.min_patch_m2` or its
+    /// default; one cell means no patch filter).
+    pub min_patch_m2: f64,
+    /// Area beyond the LoD left out because it lay in patches smaller than `min_patch_m2`.
+    pub small_patch_area_m2: f64,
+    /// Share of the compared area flagged as detected change (erosion or deposition), 0 to 1.
+    pub detected_share: f64,
+    /// `A * sigma_dod * sqrt(n_compared)`: uncertainty of the raw net volume, independent errors.
+    pub net_volume_raw_sigma_independent_m3: f64,
+    /// `A * LoD * n_compared`: bound on the raw net volume if every cell's error pulls one way.
+    pub net_volume_raw_bound_lod_m3: f64,
+    /// The raw net in plain words, as `net_volume_sign`.
+    pub net_volume_raw_sign: &'static str,
     /// Later crest elevation minus earlier crest elevation.
     pub crest_elevation_change_m: f64,
     /// Later highest cell's elevation minus the earlier one's (rides on survey noise).
@@ -364,6 +391,16 @@ fn check_options(opts: &ChangeOptions) -> Result<()> {
                 opts.landform_min_area_m2
             ),
         ));
+    }
+    if let Some(a) = opts.min_patch_m2 {
+        if !(a.is_finite() && a >= 0.0) {
+            return Err(bad_option(
+                "min_patch_m2",
+                format!(
+                    "{a} is not a non-negative area; give square metres (e.g. 4 for four 1 m cells), 0 for no patch filter, or leave it out for the default"
+                ),
+            ));
+        }
     }
     if !(opts.default_sigma_z_m.is_finite() && opts.default_sigma_z_m >= 0.0) {
         return Err(bad_option(
@@ -559,7 +596,17 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
     }
     let pairs = plan
         .into_iter()
-        .map(|(kind, a, b)| pair_record(stack, &surveys, kind, a, b, opts.lod_t, cell_area, unit_m))
+        .map(|(kind, a, b)| {
+            pair_record(
+                stack,
+                &surveys,
+                kind,
+                (a, b),
+                (opts.lod_t, opts.min_patch_m2),
+                cell_area,
+                unit_m,
+            )
+        })
         .collect();
     Ok(ChangeRecord {
         surveys,
@@ -576,17 +623,31 @@ fn pair_record(
     stack: &AlignedStack,
     rows: &[SurveyRecord],
     kind: PairKind,
-    a: usize,
-    b: usize,
-    t: f64,
+    (a, b): (usize, usize),
+    (t, min_patch_m2): (f64, Option<f64>),
     cell_area: f64,
     unit_m: f64,
 ) -> PairRecord {
     let (ra, rb) = (&rows[a], &rows[b]);
     let sigma_dod = ra.sigma_z_m.hypot(rb.sigma_z_m);
     let lod = t * sigma_dod;
-    let st = metrics::pair_stats(stack.z(a), stack.z(b), lod);
+    let mut st = metrics::pair_stats(stack.z(a), stack.z(b), lod);
+    // The detected budget counts only cells in patches of at least the smallest patch
+    // (`change::detect`); the LoD-only counts stay in `st` for the small-patch figure.
+    let min_cells = super::detect::min_patch_cells(min_patch_m2, cell_area, t);
+    let det = super::detect::detect(stack.z(a), stack.z(b), lod, min_cells);
+    let sums = super::detect::detected_sums(stack.z(a), stack.z(b), &det.codes);
+    st.erosion_m = sums.erosion_m;
+    st.erosion_cells = sums.erosion_cells;
+    st.deposition_m = sums.deposition_m;
+    st.deposition_cells = sums.deposition_cells;
     let detected = st.erosion_cells + st.deposition_cells;
+    let net = (st.deposition_m - st.erosion_m) * cell_area;
+    let sigma_ind = cell_area * sigma_dod * (detected as f64).sqrt();
+    let bound = cell_area * lod * detected as f64;
+    let net_raw = (st.deposition_raw_m - st.erosion_raw_m) * cell_area;
+    let raw_sigma = cell_area * sigma_dod * (st.compared_cells as f64).sqrt();
+    let raw_bound = cell_area * lod * st.compared_cells as f64;
     let east = (rb.crest_x_crs - ra.crest_x_crs) * unit_m;
     let north = (rb.crest_y_crs - ra.crest_y_crs) * unit_m;
     let mut warnings = Vec::new();
@@ -623,17 +684,32 @@ fn pair_record(
         max_change_m: st.max_dod_m,
         erosion_volume_raw_m3: st.erosion_raw_m * cell_area,
         deposition_volume_raw_m3: st.deposition_raw_m * cell_area,
-        net_volume_raw_m3: (st.deposition_raw_m - st.erosion_raw_m) * cell_area,
+        net_volume_raw_m3: net_raw,
         erosion_area_raw_m2: st.erosion_raw_cells as f64 * cell_area,
         deposition_area_raw_m2: st.deposition_raw_cells as f64 * cell_area,
         erosion_volume_m3: st.erosion_m * cell_area,
         deposition_volume_m3: st.deposition_m * cell_area,
-        net_volume_m3: (st.deposition_m - st.erosion_m) * cell_area,
+        net_volume_m3: net,
         erosion_area_m2: st.erosion_cells as f64 * cell_area,
         deposition_area_m2: st.deposition_cells as f64 * cell_area,
         detected_cells: detected,
-        volume_sigma_independent_m3: cell_area * sigma_dod * (detected as f64).sqrt(),
-        volume_bound_lod_m3: cell_area * lod * detected as f64,
+        volume_sigma_independent_m3: sigma_ind,
+        volume_bound_lod_m3: bound,
+        net_volume_low_independent_m3: net - t * sigma_ind,
+        net_volume_high_independent_m3: net + t * sigma_ind,
+        net_volume_low_correlated_m3: net - bound,
+        net_volume_high_correlated_m3: net + bound,
+        net_volume_sign: net_sign(net, sigma_ind, bound, t),
+        min_patch_m2: det.min_patch_cells as f64 * cell_area,
+        small_patch_area_m2: det.small_patch_cells as f64 * cell_area,
+        detected_share: if st.compared_cells > 0 {
+            detected as f64 / st.compared_cells as f64
+        } else {
+            0.0
+        },
+        net_volume_raw_sigma_independent_m3: raw_sigma,
+        net_volume_raw_bound_lod_m3: raw_bound,
+        net_volume_raw_sign: net_sign(net_raw, raw_sigma, raw_bound, t),
         crest_elevation_change_m: rb.crest_elevation_m - ra.crest_elevation_m,
         highest_cell_elevation_change_m: rb.max_elevation_m - ra.max_elevation_m,
         crest_shift_east_m: east,
@@ -647,6 +723,27 @@ fn pair_record(
         migration_rate_m_per_yr: None,
         warnings: warnings.join("; "),
         note: PAIR_NOTE,
+    }
+}
+
+/// A net volume in plain words, from its value, its independent-error σ, its correlated bound and
+/// the t of the LoD: `gain`/`loss` when `net ± bound` excludes zero; when only `net ± t·σ` excludes
+/// it, `gain`/`loss if errors are independent; sign not established if they are correlated`;
+/// otherwise `sign not established`.
+pub fn net_sign(net: f64, sigma_independent: f64, bound_correlated: f64, t: f64) -> &'static str {
+    if !net.is_finite() {
+        return "sign not established";
+    }
+    if net - bound_correlated > 0.0 {
+        "gain"
+    } else if net + bound_correlated < 0.0 {
+        "loss"
+    } else if net - t * sigma_independent > 0.0 {
+        "gain if errors are independent; sign not established if they are correlated"
+    } else if net + t * sigma_independent < 0.0 {
+        "loss if errors are independent; sign not established if they are correlated"
+    } else {
+        "sign not established"
     }
 }
 

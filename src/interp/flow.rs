@@ -68,6 +68,7 @@ mod global;
 mod raster;
 mod reduce;
 mod result;
+pub mod stored;
 
 use ndarray::Array2;
 

@@ -40,6 +40,10 @@ pub(super) struct Painter<'a> {
     shell: Surface,
     /// The crest of every survey as the frames show it (display unit): (decimal year, value).
     survey_points: Vec<(f64, f64)>,
+    /// Each of those surveys' σ (display unit), for the chart's ±σ bars.
+    survey_sigma: Vec<f64>,
+    /// The chart's smallest value range (display unit), see [`inset_min_span_m`].
+    inset_min_span: f64,
     legend: Legend,
     /// For colouring by change: the ramp's limit in metres (fixed for the animation) and t of the LoD.
     change_colour: Option<(f64, f64)>,
@@ -68,6 +72,13 @@ impl<'a> Painter<'a> {
                 )
             })
             .collect();
+        let survey_sigma = record
+            .surveys
+            .iter()
+            .filter(|s| s.crest_elevation_m.is_finite())
+            .map(|s| s.sigma_z_m / job.change.display_unit.metres())
+            .collect();
+        let inset_min_span = inset_min_span_m(record) / job.change.display_unit.metres();
         let change_colour = match &job.colour {
             ColourBy::Change { since, limit_m } => {
                 let limit = limit_m
@@ -88,6 +99,8 @@ impl<'a> Painter<'a> {
             shell: Surface::for_stack(stack),
             surface: Surface::for_stack(stack),
             survey_points,
+            survey_sigma,
+            inset_min_span,
             legend,
             change_colour,
             annotator: Annotator::new(),
@@ -178,6 +191,8 @@ impl<'a> Painter<'a> {
                 unit: unit.symbol().into(),
                 survey_points: self.survey_points.clone(),
                 current: (timeline::decimal_year(t.when), shown),
+                survey_sigma: self.survey_sigma.clone(),
+                min_span: self.inset_min_span,
             }),
             credit: job.credit.clone(),
         };
@@ -187,6 +202,30 @@ impl<'a> Painter<'a> {
             highest_cell_elevation_m: highest_cell_m,
         }
     }
+}
+
+/// The smallest value range of the frames' inset chart, in metres: the larger of 4 LoD (the
+/// largest of the consecutive pairs') and a fifth of the surveys' mean crest height above the
+/// reference elevation, so survey noise and a decline of a few per cent never fill the chart.
+pub(super) fn inset_min_span_m(record: &ChangeRecord) -> f64 {
+    let lod = record
+        .pairs
+        .iter()
+        .filter(|p| p.pair_kind == crate::change::PairKind::Consecutive)
+        .map(|p| p.lod_m)
+        .fold(0.0, f64::max);
+    let heights: Vec<f64> = record
+        .surveys
+        .iter()
+        .map(|s| s.crest_height_above_reference_m)
+        .filter(|h| h.is_finite())
+        .collect();
+    let mean = if heights.is_empty() {
+        0.0
+    } else {
+        heights.iter().sum::<f64>() / heights.len() as f64
+    };
+    (4.0 * lod).max(0.2 * mean.abs())
 }
 
 /// The crest figure the job's frames show, in metres: the elevation, or the height above the

@@ -68,7 +68,7 @@ pub struct RunReport {
 pub const FRAME_MEMORY_BUDGET: usize = 6 << 30;
 
 /// Largest grid side, in cells, on which displacement fields are estimated; larger grids are
-/// estimated on block means and the field interpolated back (see `interp::flow::estimate_within`).
+/// estimated on block means and the field kept on the blocks (see `interp::flow::estimate_within`).
 /// 1024 keeps a pair under a second and about 100 MB.
 pub const FLOW_MAX_SIDE: usize = 1024;
 
@@ -157,7 +157,9 @@ pub(super) struct Prepared {
     /// The area framed when the job sets no distance.
     pub(super) focus: Focus,
     pub(super) record: ChangeRecord,
-    /// Per interval: the displacement field when the morph may use it (trusted), else None.
+    /// Per interval: the displacement field estimated for it (trusted or not; the morph uses only
+    /// trusted ones, see `effective_method`), or None when this run did not estimate it (a part's
+    /// frames never reach that interval).
     pub(super) fields: Vec<Option<FlowResult>>,
     /// The `shell.grid` surface on the analysis grid, when the job draws one.
     pub(super) shell_grid: Option<ndarray::Array2<f32>>,
@@ -174,8 +176,11 @@ pub(super) struct Prepared {
 pub(super) enum FrameShare {
     /// Every frame (a whole run, or `assemble`).
     All,
-    /// Only the frames of one part (`render --part`).
+    /// Only the frames of one part (`render --part`): the fields its frames need, and the fields of
+    /// the intervals it stores for `assemble` (`parts::stores_field`).
     Part(parts::PartSpec),
+    /// No field: `assemble` reads them from the parts.
+    Assemble,
 }
 
 fn prepare(job: &Job) -> Result<Prepared> {
@@ -240,17 +245,27 @@ fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
     // they run side by side, and so do the pairs within each (results come back in pair order,
     // so the output does not depend on the thread count).
     let (landform_warnings, estimated) = rayon::join(
-        || series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE),
+        || match share {
+            // A part's frames do not show migration; the record is written by `assemble`.
+            FrameShare::Part(_) => Vec::new(),
+            FrameShare::All | FrameShare::Assemble => {
+                series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE)
+            }
+        },
         || {
             // A part estimates only the fields of the intervals its in-between frames fall in.
             let needed: Vec<bool> = match &share {
                 FrameShare::All => vec![true; stack.len() - 1],
+                FrameShare::Assemble => vec![false; stack.len() - 1],
                 FrameShare::Part(spec) => {
                     let mut needed = vec![false; stack.len() - 1];
                     for t in &timeline.frames[spec.frames(timeline.frames.len())] {
                         if !t.kind.is_measured() {
                             needed[t.from] = true;
                         }
+                    }
+                    for (i, need) in needed.iter_mut().enumerate() {
+                        *need |= parts::stores_field(&timeline, *spec, i);
                     }
                     needed
                 }
@@ -261,43 +276,47 @@ fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
         },
     );
     warnings.extend(landform_warnings);
-    let mut fields = Vec::with_capacity(stack.len() - 1);
-    for (i, result) in estimated.into_iter().enumerate() {
-        let Some(result) = result else {
-            // Not this part's: its frames never reach this interval.
-            fields.push(None);
-            continue;
-        };
-        let (a, b) = (&stack.surveys()[i], &stack.surveys()[i + 1]);
-        if result.verdict.is_trusted() {
-            fields.push(Some(result));
-        } else {
-            if job.methods[i] == Method::Morph {
+    record.warnings.extend(warnings.iter().cloned());
+    let mut prepared = Prepared {
+        stack,
+        timeline,
+        renderer,
+        focus,
+        record,
+        fields: Vec::new(),
+        shell_grid,
+        drape,
+        warnings,
+        timings: Vec::new(),
+    };
+    prepared.attach_fields(job, estimated);
+    clock.lap("landforms and displacement fields");
+    prepared.timings = clock.laps;
+    Ok(prepared)
+}
+
+impl Prepared {
+    /// Takes the displacement field of each interval (None: not estimated by this run) and warns,
+    /// in the run's warnings and the record's, of every morph interval whose field is not trusted.
+    /// A run and `assemble` (which reads the fields from the parts) call it alike, so their warnings
+    /// are the same.
+    pub(super) fn attach_fields(&mut self, job: &Job, fields: Vec<Option<FlowResult>>) {
+        for (i, result) in fields.iter().enumerate() {
+            let Some(result) = result else { continue };
+            if !result.verdict.is_trusted() && job.methods[i] == Method::Morph {
+                let (a, b) = (&self.stack.surveys()[i], &self.stack.surveys()[i + 1]);
                 let w = format!(
                     "{} -> {}: no reliable displacement field ({}); frames in this interval use the linear blend instead of the morph",
                     a.id, b.id, result.verdict
                 );
                 // Logged at info: the CLI prints the report's warnings once, at the end.
                 log::info!("{w}");
-                warnings.push(w);
+                self.record.warnings.push(w.clone());
+                self.warnings.push(w);
             }
-            fields.push(None);
         }
+        self.fields = fields;
     }
-    record.warnings.extend(warnings.iter().cloned());
-    clock.lap("landforms and displacement fields");
-    Ok(Prepared {
-        stack,
-        timeline,
-        renderer,
-        focus,
-        record,
-        fields,
-        shell_grid,
-        drape,
-        warnings,
-        timings: clock.laps,
-    })
 }
 
 /// The renderer and what it draws besides the surveys, checked against the stack.
@@ -528,7 +547,7 @@ pub(super) fn effective_method(
     interval: usize,
 ) -> Method {
     match (job.methods.get(interval), fields.get(interval)) {
-        (Some(Method::Morph), Some(Some(_))) => Method::Morph,
+        (Some(Method::Morph), Some(Some(r))) if r.verdict.is_trusted() => Method::Morph,
         _ => Method::Linear,
     }
 }

@@ -209,7 +209,9 @@ pub(super) fn write_outputs(
     }
     // The displacement fields as two-band rasters (east, north in metres), for the record.
     for (i, f) in fields.iter().enumerate() {
-        let Some(f) = f else { continue };
+        let Some(f) = f.as_ref().filter(|f| f.verdict.is_trusted()) else {
+            continue;
+        };
         let (a, b) = (&stack.surveys()[i].id, &stack.surveys()[i + 1].id);
         let name = format!("displacement-{a}-{b}.tif");
         let path = scratch.join(&name);
@@ -245,8 +247,10 @@ pub(super) fn write_outputs(
             content: ExtraContent::File(path),
         });
     }
+    // Every pair's DEM of difference and detection mask as rasters on the grids' georeference.
+    extra.extend(difference_rasters(&stack, &record, scratch)?);
 
-    clock.lap("displacement rasters");
+    clock.lap("displacement and difference rasters");
     let figures = change::figures(&stack, &record, &job.change);
     clock.lap("maps and charts");
     // The viewer page is made from the files above, so it comes last among the extras.
@@ -438,4 +442,59 @@ impl FrameSinks<'_> {
             painting.and(encoded)
         })
     }
+}
+
+/// Writes every pair's DEM of difference (`dod-A-B.tif`, float32 metres, later minus earlier) and
+/// detection mask (`detected-A-B.tif`: -1 erosion, 1 deposition, 0 not detected) into `scratch`,
+/// on the grids' georeference with nodata -9999, and names them for `data/fields/`.
+fn difference_rasters(
+    stack: &AlignedStack,
+    record: &change::ChangeRecord,
+    scratch: &Path,
+) -> Result<Vec<ExtraFile>> {
+    let mut out = Vec::new();
+    for pair in &record.pairs {
+        let (a, b) = (
+            change::file_safe(&pair.from_id),
+            change::file_safe(&pair.to_id),
+        );
+        let span = format!(
+            "{} to {}",
+            change::map::id_and_date(&pair.from_id, &pair.from_date),
+            change::map::id_and_date(&pair.to_id, &pair.to_date)
+        );
+        let det = change::pair_detection(stack, pair);
+        let rasters = [
+            (
+                format!("dod-{a}-{b}.tif"),
+                change::dod_grid(stack, pair),
+                format!(
+                    "DEM of difference {span}: later minus earlier, metres; positive = deposition"
+                ),
+            ),
+            (
+                format!("detected-{a}-{b}.tif"),
+                change::detection_raster(&det),
+                format!(
+                    "detected change {span}: -1 erosion, 1 deposition, 0 not detected (within LoD {:.3} m or in a patch under {:.1} m2)",
+                    pair.lod_m, pair.min_patch_m2
+                ),
+            ),
+        ];
+        for (name, grid, description) in rasters {
+            let path = scratch.join(&name);
+            let wopts = WriteOptions {
+                nodata: Some(-9999.0),
+                overwrite: false,
+                band_descriptions: vec![description],
+                effort: geotiff::Effort::Fast,
+            };
+            geotiff::write_bands(&path, stack.geometry(), &[&grid], &wopts)?;
+            out.push(ExtraFile {
+                name: format!("fields/{name}"),
+                content: ExtraContent::File(path),
+            });
+        }
+    }
+    Ok(out)
 }

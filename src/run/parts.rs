@@ -11,9 +11,13 @@
 //! so a part folder that exists is a finished part.
 //!
 //! A part reads and checks everything a whole run does, but estimates only the displacement fields
-//! of the intervals its in-between frames fall in, so N parts share the fields' cost.
-//! `assemble` reads the grids again (the record, the displacement fields and the poster need them),
-//! refuses parts that are missing, from another job, from other grids or from another split, then
+//! its own frames need, plus the fields it stores for `assemble`: the part that renders an
+//! interval's first frame writes that interval's field as `field-III.bin` (exact bits, see
+//! `interp::flow::stored`), so each field is estimated once over all the parts. A part skips the
+//! landforms' migration, which only the record shows.
+//! `assemble` reads the grids again (the record and the poster need them), reads the fields from
+//! the parts instead of estimating them, refuses parts that are missing, from another job, from
+//! other grids or from another split, then
 //! hands the frames, decoded from the parts' PNGs (lossless, so equal to the frames in memory), to
 //! the same output stage as `render`. The bag is byte-identical to a one-machine run except for the
 //! BagIt date line (`Bagging-Date`) and the tag manifest that lists it. The parts folder is removed
@@ -26,13 +30,15 @@ use std::path::{Path, PathBuf};
 use serde::{Deserialize, Serialize};
 
 use super::frames::{FrameFigures, Painter};
-use super::{output_folder, prepare, protected, scratch, FrameSource, Prepared};
+use super::{output_folder, protected, scratch, FrameSource, Prepared};
 use super::{RunOptions, RunReport};
 use crate::archive::{self, bagit::sha256_hex};
 use crate::encode::png_seq;
 use crate::error::{Error, Result};
+use crate::interp::flow::FlowResult;
 use crate::job::Job;
 use crate::render::Frame;
+use crate::timeline::Timeline;
 
 /// Part K of N (1 ≤ K ≤ N).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -136,6 +142,25 @@ struct PartManifest {
     end_frame: usize,
     /// The figures `paint` returned for each frame of the part (crest and highest cell, metres).
     frame_figures: Vec<FrameFigures>,
+    /// The intervals (pair indices) whose displacement field this part stores, as
+    /// `field-III.bin` (`interp::flow::stored`).
+    #[serde(default)]
+    fields: Vec<usize>,
+}
+
+/// Whether part `spec` stores the displacement field of interval `i` for `assemble`: the part that
+/// renders the interval's first frame does (part 1 when no frame belongs to the interval), so each
+/// field is estimated once over all parts.
+pub(super) fn stores_field(timeline: &Timeline, spec: PartSpec, i: usize) -> bool {
+    let total = timeline.frames.len();
+    match timeline.frames.iter().position(|t| t.from == i) {
+        Some(first) => spec.frames(total).contains(&first),
+        None => spec.k == 1,
+    }
+}
+
+fn field_file(i: usize) -> String {
+    format!("field-{i:03}.bin")
 }
 
 fn program() -> String {
@@ -237,6 +262,26 @@ pub fn render_part(job: &Job, opts: &RunOptions, spec: PartSpec) -> Result<PartR
                 cb(t.index + 1 - range.start, range.len());
             }
         }
+        // The fields this part stores for `assemble` (estimated here in any case; see
+        // `stores_field`).
+        let mut stored = Vec::new();
+        for (i, field) in fields.iter().enumerate() {
+            if !stores_field(&timeline, spec, i) {
+                continue;
+            }
+            let Some(field) = field else {
+                return Err(Error::output(
+                    &tmp,
+                    format!(
+                        "the field of interval {i} was not estimated; this is a bug in dunereel"
+                    ),
+                ));
+            };
+            let path = tmp.join(field_file(i));
+            fs::write(&path, crate::interp::flow::stored::to_bytes(field))
+                .map_err(|e| Error::io(&path, e))?;
+            stored.push(i);
+        }
         let manifest = PartManifest {
             program: program(),
             job_sha256,
@@ -247,6 +292,7 @@ pub fn render_part(job: &Job, opts: &RunOptions, spec: PartSpec) -> Result<PartR
             first_frame: range.start,
             end_frame: range.end,
             frame_figures: figures,
+            fields: stored,
         };
         let text = serde_json::to_string_pretty(&manifest)
             .map_err(|e| Error::output(&tmp, format!("cannot describe the part: {e}")))?;
@@ -272,6 +318,8 @@ pub fn render_part(job: &Job, opts: &RunOptions, spec: PartSpec) -> Result<PartR
 pub(crate) struct Gathered {
     /// Per frame: its PNG file and the figure `paint` returned for it.
     frames: Vec<(PathBuf, FrameFigures)>,
+    /// Per interval: the file of its stored displacement field.
+    fields: Vec<PathBuf>,
 }
 
 impl Gathered {
@@ -414,7 +462,52 @@ fn gather(job: &Job, parts: &Path, prepared: &Prepared) -> Result<Gathered> {
             frames.push((path, *figure));
         }
     }
-    Ok(Gathered { frames })
+    // Every interval's field, from the part that stores it.
+    let intervals = prepared.stack.len() - 1;
+    let mut fields = Vec::with_capacity(intervals);
+    for i in 0..intervals {
+        let Some((m, dir)) = found
+            .iter()
+            .find(|(m, _)| stores_field(&prepared.timeline, PartSpec { k: m.part, n }, i))
+        else {
+            return Err(Error::input(
+                parts,
+                "no part stores a displacement field; render the parts again",
+            ));
+        };
+        let path = dir.join(field_file(i));
+        if !m.fields.contains(&i) || !path.is_file() {
+            return Err(Error::input(
+                &path,
+                format!(
+                    "is missing: part {}/{n} stores the displacement field of interval {i}; render this part again",
+                    m.part
+                ),
+            ));
+        }
+        fields.push(path);
+    }
+    Ok(Gathered { frames, fields })
+}
+
+impl Gathered {
+    /// Reads every interval's stored displacement field.
+    ///
+    /// # Errors
+    /// `Error::Input` naming the file that cannot be read or is damaged.
+    fn read_fields(&self) -> Result<Vec<Option<FlowResult>>> {
+        self.fields
+            .iter()
+            .map(|path| {
+                let bytes = fs::read(path).map_err(|e| Error::io(path, e))?;
+                crate::interp::flow::stored::from_bytes(&bytes)
+                    .map(Some)
+                    .map_err(|e| {
+                        Error::input(path, format!("is damaged ({e}); render its part again"))
+                    })
+            })
+            .collect()
+    }
 }
 
 /// Builds the bag of a job from its rendered parts (see the module doc).
@@ -426,8 +519,11 @@ pub fn assemble(job: &Job, opts: &RunOptions) -> Result<RunReport> {
     let overwrite = opts.overwrite || job.output.overwrite;
     archive::check_replaceable(&folder, overwrite, &protected(job))?;
     let parts = parts_folder(&folder);
-    let prepared = prepare(job)?;
+    // The displacement fields come from the parts, which estimated each once.
+    let mut prepared = super::prepare_share(job, super::FrameShare::Assemble)?;
     let gathered = gather(job, &parts, &prepared)?;
+    let fields = gathered.read_fields()?;
+    prepared.attach_fields(job, fields);
     let cleared = scratch::clear_stale(&folder);
     let work = scratch::scratch_path(&folder);
     let result = super::outputs::write_outputs(

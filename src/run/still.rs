@@ -176,9 +176,7 @@ pub fn still(job: &Job, opts: &StillOptions) -> Result<StillReport> {
     if let FrameKind::Interpolated { from, .. } = t.kind {
         if job.methods.get(from) == Some(&Method::Morph) {
             let result = pair_field(job, &stack, from);
-            if result.verdict.is_trusted() {
-                fields[from] = Some(result);
-            } else {
+            if !result.verdict.is_trusted() {
                 log::warn!(
                     "{} -> {}: no reliable displacement ({}); this frame uses the linear blend",
                     stack.surveys()[from].id,
@@ -186,10 +184,11 @@ pub fn still(job: &Job, opts: &StillOptions) -> Result<StillReport> {
                     result.verdict
                 );
             }
+            fields[from] = Some(result);
         }
     }
     debug_assert!(
-        !matches!(t.kind, FrameKind::Interpolated { from, .. } if effective_method(job, &fields, from) == Method::Morph && fields[from].is_none())
+        !matches!(t.kind, FrameKind::Interpolated { from, .. } if effective_method(job, &fields, from) == Method::Morph && fields[from].as_ref().is_none_or(|r| !r.verdict.is_trusted()))
     );
     let mut painter = Painter::new(
         job,

@@ -45,7 +45,10 @@ shell: { survey: first }
 output: { folder: out, gif: bench.gif, png_frames: true, poster: true, overwrite: true }
 ";
 
-fn run_once(job: &job::Job, threads: usize) -> (f64, f64, Vec<(&'static str, f64)>) {
+/// One run: wall seconds, CPU share, and the stage table.
+type Run = (f64, f64, Vec<(&'static str, f64)>);
+
+fn run_once(job: &job::Job, threads: usize) -> Run {
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()
@@ -96,8 +99,7 @@ fn main() {
         let job = job::load(Path::new(&path)).unwrap();
         let mut medians = Vec::new();
         for threads in [1, 2] {
-            let mut results: Vec<(f64, f64, Vec<(&'static str, f64)>)> =
-                (0..runs).map(|_| run_once(&job, threads)).collect();
+            let mut results: Vec<Run> = (0..runs).map(|_| run_once(&job, threads)).collect();
             results.sort_by(|a, b| a.0.total_cmp(&b.0));
             let share = median(results.iter().map(|r| r.1).collect());
             let (wall, _, timings) = results.swap_remove(results.len() / 2);

@@ -240,6 +240,15 @@ fn bad_input_gives_clear_messages() {
         .unwrap_err()
         .to_string()
         .contains("lod_t"));
+    let opts = ChangeOptions {
+        min_patch_m2: Some(-4.0),
+        ..Default::default()
+    };
+    let err = record(&mk(), &opts).unwrap_err().to_string();
+    assert!(
+        err.contains("change.min_patch_m2") && err.contains("square metres"),
+        "{err}"
+    );
 }
 
 #[test]
