@@ -41,6 +41,8 @@ mod tests {
 
     #[test]
     fn waves_keep_order_and_bound_the_items_in_flight() {
+        // Check: analytic — results in item order, and never more items in flight than the
+        // pool's two threads, even when each item runs nested parallel work.
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(2)
             .build()

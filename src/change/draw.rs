@@ -229,6 +229,17 @@ pub enum Anchor {
     Right,
 }
 
+impl Anchor {
+    /// The left edge of a run of width `w` anchored at `x`.
+    fn left_edge(self, x: f32, w: f32) -> f32 {
+        match self {
+            Anchor::Left => x,
+            Anchor::Centre => x - w / 2.0,
+            Anchor::Right => x - w,
+        }
+    }
+}
+
 /// Draws text with its top at `y`, anchored at `x`.
 pub fn text(
     frame: &mut Frame,
@@ -240,12 +251,7 @@ pub fn text(
     s: &str,
 ) {
     let (w, _) = measure_text(size_px, s);
-    let left = match anchor {
-        Anchor::Left => x,
-        Anchor::Centre => x - w / 2.0,
-        Anchor::Right => x - w,
-    };
-    draw_text(frame, left, y, size_px, rgba, s);
+    draw_text(frame, anchor.left_edge(x, w), y, size_px, rgba, s);
 }
 
 /// Draws bold text with its top at `y`, anchored at `x`.
@@ -259,12 +265,7 @@ pub fn text_bold(
     s: &str,
 ) {
     let (w, _) = measure_text_bold(size_px, s);
-    let left = match anchor {
-        Anchor::Left => x,
-        Anchor::Centre => x - w / 2.0,
-        Anchor::Right => x - w,
-    };
-    draw_text_bold(frame, left, y, size_px, rgba, s);
+    draw_text_bold(frame, anchor.left_edge(x, w), y, size_px, rgba, s);
 }
 
 /// Draws bold text on a white halo (readable over a map), top at `y`, anchored at `x`.

@@ -195,6 +195,8 @@ mod tests {
 
     #[test]
     fn a_result_reads_back_bit_for_bit_and_damage_is_refused() {
+        // Check: analytic — writing what was read gives the same bytes (NaN bits included), and
+        // every cut-short copy is refused.
         let f = FlowField {
             east_m: Array2::from_shape_fn((3, 4), |(r, c)| r as f32 - 0.25 * c as f32),
             north_m: Array2::from_shape_fn((3, 4), |(r, c)| if r == c { f32::NAN } else { 1.5 }),
