@@ -2,36 +2,54 @@
 //!
 //! A plain `par_iter` over surveys lets rayon start another survey whenever a thread waits inside
 //! one (the per-survey steps are parallel too), so a 12-survey job could hold the scratch arrays of
-//! many surveys at once: at 4096² each takes hundreds of MB. Mapping in waves of
-//! `rayon::current_num_threads()` items bounds that memory by the thread count, not the number of
+//! many surveys at once: at 4096² each takes hundreds of MB. Mapping with one worker per thread
+//! (`rayon::current_num_threads()` items at most in flight) bounds that memory by the thread count, not the number of
 //! surveys. Results come back in item order, so the output does not depend on the thread count.
+//! (The module keeps its name from its first form, which ran the items in waves of one per thread.)
 
-use rayon::prelude::*;
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::Mutex;
 
-/// `f(i)` for every `i` in `0..n`, in waves of at most one item per pool thread; results in order.
+/// `f(i)` for every `i` in `0..n`, at most one item per pool thread at a time; results in order.
+///
+/// One worker per thread takes the next item as soon as it is done with one (no wave waits for
+/// its slowest item), so items of unequal cost still keep every thread busy.
 pub fn map_in_waves<T: Send>(n: usize, f: impl Fn(usize) -> T + Sync) -> Vec<T> {
-    let wave = rayon::current_num_threads().max(1);
-    let mut out = Vec::with_capacity(n);
-    let mut start = 0;
-    while start < n {
-        let end = (start + wave).min(n);
-        out.extend((start..end).into_par_iter().map(&f).collect::<Vec<T>>());
-        start = end;
-    }
-    out
+    let workers = rayon::current_num_threads().max(1).min(n);
+    let next = AtomicUsize::new(0);
+    let slots: Vec<Mutex<Option<T>>> = (0..n).map(|_| Mutex::new(None)).collect();
+    rayon::scope(|s| {
+        for _ in 0..workers {
+            s.spawn(|_| loop {
+                let i = next.fetch_add(1, Ordering::Relaxed);
+                if i >= n {
+                    break;
+                }
+                let value = f(i);
+                *slots[i].lock().unwrap_or_else(|p| p.into_inner()) = Some(value);
+            });
+        }
+    });
+    slots
+        .into_iter()
+        .map(|m| {
+            m.into_inner()
+                .unwrap_or_else(|p| p.into_inner())
+                .expect("every item was mapped")
+        })
+        .collect()
 }
 
-/// `f(item)` for every item of `items`, in waves as [`map_in_waves`]; results in order.
+/// `f(item)` for every item of `items`, as [`map_in_waves`]; results in order.
 pub fn map_mut_in_waves<I: Send, T: Send>(
     items: &mut [I],
     f: impl Fn(&mut I) -> T + Sync,
 ) -> Vec<T> {
-    let wave = rayon::current_num_threads().max(1);
-    let mut out = Vec::with_capacity(items.len());
-    for chunk in items.chunks_mut(wave) {
-        out.extend(chunk.par_iter_mut().map(&f).collect::<Vec<T>>());
-    }
-    out
+    let cells: Vec<Mutex<&mut I>> = items.iter_mut().map(Mutex::new).collect();
+    map_in_waves(cells.len(), |i| {
+        let mut item = cells[i].lock().unwrap_or_else(|p| p.into_inner());
+        f(&mut item)
+    })
 }
 
 #[cfg(test)]

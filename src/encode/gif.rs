@@ -15,6 +15,9 @@
 //! the `gif` crate.
 
 use std::path::Path;
+use std::sync::Mutex;
+
+use rayon::prelude::*;
 
 use gif::{DisposalMethod, Encoder, Repeat};
 
@@ -104,16 +107,18 @@ pub struct GifStats {
 /// Streams frames into a GIF file; see the module doc.
 pub struct GifWriter {
     encoder: Option<Encoder<AtomicFile>>,
-    mapper: Mapper,
+    /// One mapper per rayon thread (found by the thread's index), so frames map side by side
+    /// without sharing an answer table; every mapper gives the same indices.
+    mappers: Vec<Mutex<Mapper>>,
     width: usize,
     height: usize,
     spread: f32,
     difference: bool,
     palette_len: usize,
-    current: Vec<u8>,
+    /// Palette indices of the last frame written (empty before the first).
     previous: Vec<u8>,
-    rect_buf: Vec<u8>,
-    lzw: LzwEncoder,
+    /// Index buffers of one batch, kept from batch to batch.
+    batch: Vec<Vec<u8>>,
     /// LZW minimum code size: bits of the (power-of-two) colour table, at least 2.
     min_code_size: u8,
     frames: usize,
@@ -161,19 +166,19 @@ impl GifWriter {
             Repeat::Finite(opts.loop_count)
         };
         encoder.set_repeat(repeat).map_err(|e| gif_err(path, e))?;
-        let n = width as usize * height as usize;
+        let threads = rayon::current_num_threads().max(1);
         Ok(GifWriter {
             encoder: Some(encoder),
-            mapper: Mapper::new(palette),
+            mappers: (0..threads)
+                .map(|_| Mutex::new(Mapper::new(palette)))
+                .collect(),
             width: width as usize,
             height: height as usize,
             spread: opts.spread(),
             difference: opts.difference_frames,
             palette_len: palette.len(),
-            current: vec![0; n],
-            previous: vec![0; n],
-            rect_buf: Vec::with_capacity(n),
-            lzw: LzwEncoder::new(),
+            previous: Vec::new(),
+            batch: Vec::new(),
             min_code_size: (palette.len().max(2).next_power_of_two().trailing_zeros() as u8).max(2),
             frames: 0,
             err_sum: 0.0,
@@ -187,129 +192,135 @@ impl GifWriter {
     /// # Errors
     /// [`Error::Output`] if the frame size differs from the animation's; [`Error::Io`] on a write failure.
     pub fn write_frame(&mut self, frame: &Frame, delay_cs: u16) -> Result<()> {
-        if frame.width as usize != self.width
-            || frame.height as usize != self.height
-            || frame.rgba.len() != self.width * self.height * 4
-        {
+        self.write_frames(&[frame], &[delay_cs])
+    }
+
+    /// Appends `frames` in order, `frames[i]` shown for `delays_cs[i]` hundredths of a second.
+    /// A batch of frames is mapped to the palette, cut to its changed rectangle and LZW-coded on
+    /// the rayon pool, then written one after another: the file is the same byte for byte as
+    /// [`GifWriter::write_frame`] frame by frame, on any number of threads.
+    ///
+    /// # Errors
+    /// [`Error::Output`] if a frame's size differs from the animation's or the counts differ;
+    /// [`Error::Io`] on a write failure.
+    pub fn write_frames(&mut self, frames: &[&Frame], delays_cs: &[u16]) -> Result<()> {
+        if frames.len() != delays_cs.len() {
+            return Err(Error::output(
+                &self.path,
+                format!(
+                    "{} frames but {} delays; give one delay per frame (a bug in the caller)",
+                    frames.len(),
+                    delays_cs.len()
+                ),
+            ));
+        }
+        if let Some((k, f)) = frames.iter().enumerate().find(|(_, f)| {
+            f.width as usize != self.width
+                || f.height as usize != self.height
+                || f.rgba.len() != self.width * self.height * 4
+        }) {
             return Err(Error::output(
                 &self.path,
                 format!(
                     "frame {} is {}x{} but the animation is {}x{}; every frame must have one size",
-                    self.frames, frame.width, frame.height, self.width, self.height
+                    self.frames + k,
+                    f.width,
+                    f.height,
+                    self.width,
+                    self.height
                 ),
             ));
         }
-        self.err_sum +=
-            self.mapper
-                .map_frame(&frame.rgba, self.width, self.spread, &mut self.current);
-        let first = self.frames == 0;
-        let (left, top, w, h, transparent) = if first || !self.difference {
-            self.rect_buf.clear();
-            self.rect_buf.extend_from_slice(&self.current);
-            (0, 0, self.width, self.height, None)
-        } else {
-            self.difference_rect()
-        };
-        if !first {
-            self.changed_px += (w * h) as u64;
+        // A batch of a few frames per thread: enough to keep every core busy, little memory.
+        let batch_len = 4 * self.mappers.len();
+        for (frames, delays) in frames.chunks(batch_len).zip(delays_cs.chunks(batch_len)) {
+            self.write_batch(frames, delays)?;
         }
-        let gframe = gif::Frame {
-            delay: delay_cs,
-            dispose: DisposalMethod::Keep,
-            transparent,
-            left: left as u16,
-            top: top as u16,
-            width: w as u16,
-            height: h as u16,
-            buffer: std::borrow::Cow::Borrowed(self.lzw.encode(&self.rect_buf, self.min_code_size)),
-            ..Default::default()
-        };
-        let path = &self.path;
-        let enc = self.encoder.as_mut().ok_or_else(|| {
-            Error::output(path, "written after finish; this is a bug in dunereel")
-        })?;
-        enc.write_lzw_pre_encoded_frame(&gframe)
-            .map_err(|e| gif_err(path, e))?;
-        std::mem::swap(&mut self.current, &mut self.previous);
-        self.frames += 1;
         Ok(())
     }
 
-    /// Fills `rect_buf` with the smallest rectangle of changed indices; unchanged pixels inside
-    /// become a transparent index if one is free. Returns (left, top, width, height, transparent).
-    fn difference_rect(&mut self) -> (usize, usize, usize, usize, Option<u8>) {
-        let w = self.width;
-        let (mut x0, mut x1, mut y0, mut y1) = (usize::MAX, 0usize, usize::MAX, 0usize);
-        for (y, (c, p)) in self
-            .current
-            .chunks_exact(w)
-            .zip(self.previous.chunks_exact(w))
-            .enumerate()
-        {
-            if c == p {
-                continue;
-            }
-            let first = c.iter().zip(p).position(|(a, b)| a != b).unwrap_or(0);
-            let last = w
-                - 1
-                - c.iter()
-                    .rev()
-                    .zip(p.iter().rev())
-                    .position(|(a, b)| a != b)
-                    .unwrap_or(0);
-            x0 = x0.min(first);
-            x1 = x1.max(last);
-            y0 = y0.min(y);
-            y1 = y1.max(y);
-        }
-        self.rect_buf.clear();
-        if x0 == usize::MAX {
-            // Nothing changed: one pixel, rewritten with the index it already has.
-            self.rect_buf.push(self.current[0]);
-            return (0, 0, 1, 1, None);
-        }
-        let (rw, rh) = (x1 - x0 + 1, y1 - y0 + 1);
-        let (cur_px, prev_px) = (&self.current, &self.previous);
-        let rows = (y0..=y1).map(|y| {
-            let r = y * w + x0..=y * w + x1;
-            (&cur_px[r.clone()], &prev_px[r])
-        });
-        // Prefer a padding entry of the table (it is padded to a power of two, and no pixel uses
-        // it), else any palette index no changed pixel uses.
-        let table_len = self.palette_len.max(2).next_power_of_two();
-        let free = if self.palette_len < table_len {
-            Some(self.palette_len as u8)
-        } else {
-            // Four mark tables, one per pixel phase, so consecutive marks do not wait on each
-            // other; branch-free, since in a moving view nearly every pixel changes.
-            let mut marks = [[0u8; 256]; 4];
-            for (cur, prev) in rows.clone() {
-                let (mut c4, mut p4) = (cur.chunks_exact(4), prev.chunks_exact(4));
-                for (c, p) in (&mut c4).zip(&mut p4) {
-                    for k in 0..4 {
-                        marks[k][c[k] as usize] |= (c[k] != p[k]) as u8;
+    /// One batch of [`GifWriter::write_frames`] (sizes checked).
+    fn write_batch(&mut self, frames: &[&Frame], delays_cs: &[u16]) -> Result<()> {
+        let n = self.width * self.height;
+        self.batch.resize_with(frames.len(), Vec::new);
+        let (width, spread, mappers) = (self.width, self.spread, &self.mappers);
+        // 1. Palette indices, frame by frame side by side.
+        let errors: Vec<f64> = self.batch[..frames.len()]
+            .par_iter_mut()
+            .zip(frames.par_iter())
+            .map(|(indices, frame)| {
+                indices.resize(n, 0);
+                let slot = rayon::current_thread_index().unwrap_or(0) % mappers.len();
+                let mut mapper = mappers[slot].lock().unwrap_or_else(|p| p.into_inner());
+                mapper.map_frame(&frame.rgba, width, spread, indices)
+            })
+            .collect();
+        // 2. Each frame's rectangle against the frame before it, LZW-coded side by side.
+        let (difference, palette_len, min_code_size) =
+            (self.difference, self.palette_len, self.min_code_size);
+        let (previous, batch) = (&self.previous, &self.batch[..frames.len()]);
+        let coded: Vec<(Rect, Vec<u8>)> = (0..frames.len())
+            .into_par_iter()
+            .map_init(
+                || (LzwEncoder::new(), Vec::new()),
+                |(lzw, rect_buf), j| {
+                    let current = &batch[j];
+                    let before = if j > 0 {
+                        Some(&batch[j - 1])
+                    } else {
+                        Some(previous)
                     }
-                }
-                for (c, p) in c4.remainder().iter().zip(p4.remainder()) {
-                    marks[0][*c as usize] |= (c != p) as u8;
-                }
+                    .filter(|p| !p.is_empty());
+                    let rect = match before {
+                        Some(p) if difference => {
+                            difference_rect(current, p, width, palette_len, rect_buf)
+                        }
+                        _ => {
+                            rect_buf.clear();
+                            rect_buf.extend_from_slice(current);
+                            Rect {
+                                left: 0,
+                                top: 0,
+                                width,
+                                height: current.len() / width,
+                                transparent: None,
+                                first: before.is_none(),
+                            }
+                        }
+                    };
+                    (rect, lzw.encode(rect_buf, min_code_size).to_vec())
+                },
+            )
+            .collect();
+        // 3. Written in order.
+        for ((rect, code), (&delay, err)) in coded.into_iter().zip(delays_cs.iter().zip(errors)) {
+            self.err_sum += err;
+            if !rect.first {
+                self.changed_px += (rect.width * rect.height) as u64;
             }
-            (0..self.palette_len)
-                .find(|&i| marks.iter().all(|m| m[i] == 0))
-                .map(|i| i as u8)
-        };
-        self.rect_buf.resize(rw * rh, 0);
-        for ((cur, prev), out) in rows.zip(self.rect_buf.chunks_exact_mut(rw)) {
-            match free {
-                Some(t) => {
-                    for ((o, &c), &p) in out.iter_mut().zip(cur).zip(prev) {
-                        *o = if c == p { t } else { c };
-                    }
-                }
-                None => out.copy_from_slice(cur),
-            }
+            let gframe = gif::Frame {
+                delay,
+                dispose: DisposalMethod::Keep,
+                transparent: rect.transparent,
+                left: rect.left as u16,
+                top: rect.top as u16,
+                width: rect.width as u16,
+                height: rect.height as u16,
+                buffer: std::borrow::Cow::Owned(code),
+                ..Default::default()
+            };
+            let path = &self.path;
+            let enc = self.encoder.as_mut().ok_or_else(|| {
+                Error::output(path, "written after finish; this is a bug in dunereel")
+            })?;
+            enc.write_lzw_pre_encoded_frame(&gframe)
+                .map_err(|e| gif_err(path, e))?;
+            self.frames += 1;
         }
-        (x0, y0, rw, rh, free)
+        if let Some(last) = frames.len().checked_sub(1) {
+            std::mem::swap(&mut self.previous, &mut self.batch[last]);
+        }
+        Ok(())
     }
 
     /// Writes the trailer, renames the file into place and reports.
@@ -348,6 +359,114 @@ impl GifWriter {
     }
 }
 
+/// Where one frame goes on the canvas and what it covers.
+#[derive(Debug, Clone, Copy)]
+struct Rect {
+    left: usize,
+    top: usize,
+    width: usize,
+    height: usize,
+    /// The index that shows the frame before through this one, if any.
+    transparent: Option<u8>,
+    /// The animation's first frame (written whole, not counted as changed).
+    first: bool,
+}
+
+/// Fills `rect_buf` with the smallest rectangle of `current`'s indices that differ from
+/// `previous` (rows of `w`); unchanged pixels inside become a transparent index if one is free.
+fn difference_rect(
+    current: &[u8],
+    previous: &[u8],
+    w: usize,
+    palette_len: usize,
+    rect_buf: &mut Vec<u8>,
+) -> Rect {
+    let (mut x0, mut x1, mut y0, mut y1) = (usize::MAX, 0usize, usize::MAX, 0usize);
+    for (y, (c, p)) in current
+        .chunks_exact(w)
+        .zip(previous.chunks_exact(w))
+        .enumerate()
+    {
+        if c == p {
+            continue;
+        }
+        let first = c.iter().zip(p).position(|(a, b)| a != b).unwrap_or(0);
+        let last = w
+            - 1
+            - c.iter()
+                .rev()
+                .zip(p.iter().rev())
+                .position(|(a, b)| a != b)
+                .unwrap_or(0);
+        x0 = x0.min(first);
+        x1 = x1.max(last);
+        y0 = y0.min(y);
+        y1 = y1.max(y);
+    }
+    rect_buf.clear();
+    if x0 == usize::MAX {
+        // Nothing changed: one pixel, rewritten with the index it already has.
+        rect_buf.push(current[0]);
+        return Rect {
+            left: 0,
+            top: 0,
+            width: 1,
+            height: 1,
+            transparent: None,
+            first: false,
+        };
+    }
+    let (rw, rh) = (x1 - x0 + 1, y1 - y0 + 1);
+    let (cur_px, prev_px) = (&current, &previous);
+    let rows = (y0..=y1).map(|y| {
+        let r = y * w + x0..=y * w + x1;
+        (&cur_px[r.clone()], &prev_px[r])
+    });
+    // Prefer a padding entry of the table (it is padded to a power of two, and no pixel uses
+    // it), else any palette index no changed pixel uses.
+    let table_len = palette_len.max(2).next_power_of_two();
+    let free = if palette_len < table_len {
+        Some(palette_len as u8)
+    } else {
+        // Four mark tables, one per pixel phase, so consecutive marks do not wait on each
+        // other; branch-free, since in a moving view nearly every pixel changes.
+        let mut marks = [[0u8; 256]; 4];
+        for (cur, prev) in rows.clone() {
+            let (mut c4, mut p4) = (cur.chunks_exact(4), prev.chunks_exact(4));
+            for (c, p) in (&mut c4).zip(&mut p4) {
+                for k in 0..4 {
+                    marks[k][c[k] as usize] |= (c[k] != p[k]) as u8;
+                }
+            }
+            for (c, p) in c4.remainder().iter().zip(p4.remainder()) {
+                marks[0][*c as usize] |= (c != p) as u8;
+            }
+        }
+        (0..palette_len)
+            .find(|&i| marks.iter().all(|m| m[i] == 0))
+            .map(|i| i as u8)
+    };
+    rect_buf.resize(rw * rh, 0);
+    for ((cur, prev), out) in rows.zip(rect_buf.chunks_exact_mut(rw)) {
+        match free {
+            Some(t) => {
+                for ((o, &c), &p) in out.iter_mut().zip(cur).zip(prev) {
+                    *o = if c == p { t } else { c };
+                }
+            }
+            None => out.copy_from_slice(cur),
+        }
+    }
+    Rect {
+        left: x0,
+        top: y0,
+        width: rw,
+        height: rh,
+        transparent: free,
+        first: false,
+    }
+}
+
 /// Builds one palette from `frames` and writes them as a GIF; `delays_cs[i]` is frame i's delay.
 ///
 /// # Errors
@@ -361,12 +480,12 @@ pub fn write_gif(
     opts: &GifOptions,
     overwrite: bool,
 ) -> Result<GifStats> {
-    let Some(first) = frames.first() else {
+    if frames.is_empty() {
         return Err(Error::output(
             path,
             "no frames to write; the animation needs at least one frame",
         ));
-    };
+    }
     if delays_cs.len() != frames.len() {
         return Err(Error::output(
             path,
@@ -381,11 +500,32 @@ pub fn write_gif(
     for f in frames {
         builder.add_rgba(&f.rgba, opts.palette_sample_step);
     }
+    write_gif_sampled(path, frames, delays_cs, &builder, opts, overwrite)
+}
+
+/// [`write_gif`] with the palette's samples already taken (`builder` has seen the frames, for
+/// example one by one as they were painted).
+///
+/// # Errors
+/// As [`write_gif`].
+pub fn write_gif_sampled(
+    path: &Path,
+    frames: &[Frame],
+    delays_cs: &[u16],
+    builder: &PaletteBuilder,
+    opts: &GifOptions,
+    overwrite: bool,
+) -> Result<GifStats> {
+    let Some(first) = frames.first() else {
+        return Err(Error::output(
+            path,
+            "no frames to write; the animation needs at least one frame",
+        ));
+    };
     let palette = builder.build(opts.colours.clamp(2, 256) as usize);
     let mut w = GifWriter::create(path, first.width, first.height, &palette, opts, overwrite)?;
-    for (f, &d) in frames.iter().zip(delays_cs) {
-        w.write_frame(f, d)?;
-    }
+    let frames: Vec<&Frame> = frames.iter().collect();
+    w.write_frames(&frames, delays_cs)?;
     w.finish()
 }
 

@@ -161,8 +161,9 @@ impl FrameView {
     }
 }
 
-/// Renders surfaces of one analysis grid; holds the per-job buffers.
-#[derive(Debug)]
+/// Renders surfaces of one analysis grid; holds the per-job buffers. A clone has buffers of its
+/// own, so two clones can render two frames at once (buffers carry nothing from frame to frame).
+#[derive(Debug, Clone)]
 pub struct Renderer {
     geometry: GridGeometry,
     view: ViewOptions,

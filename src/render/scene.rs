@@ -23,7 +23,7 @@ use crate::interp::Surface;
 const CHUNK_QUAD_ROWS: usize = 8;
 
 /// Per-job buffers of the renderer.
-#[derive(Debug)]
+#[derive(Debug, Clone)]
 pub(crate) struct Buffers {
     pub(super) lr: usize,
     pub(super) lc: usize,

@@ -440,6 +440,7 @@ pub fn focus_of(stack: &AlignedStack, record: &ChangeRecord) -> Focus {
 /// purpose: the record must be byte-identical on every machine, thread count and split into parts.
 pub(super) struct Stopwatch {
     last: std::time::Instant,
+    last_cpu_s: Option<f64>,
     pub(super) laps: Vec<(&'static str, f64)>,
 }
 
@@ -447,23 +448,44 @@ impl Stopwatch {
     pub(super) fn start() -> Self {
         Stopwatch {
             last: std::time::Instant::now(),
+            last_cpu_s: process_cpu_s(),
             laps: Vec::new(),
         }
     }
-    /// Records the time since the previous lap under `stage`, and logs it with the process's peak
-    /// resident memory so far (where the system tells it), which shows the stage that sets the peak.
+    /// Records the time since the previous lap under `stage`, and logs it with the cores it kept
+    /// busy (CPU time over wall time) and the process's peak resident memory so far (where the
+    /// system tells them), which show the stages that leave a core idle or set the peak.
     pub(super) fn lap(&mut self, stage: &'static str) {
         let now = std::time::Instant::now();
         let seconds = now.duration_since(self.last).as_secs_f64();
         self.laps.push((stage, seconds));
         self.last = now;
+        let cpu = process_cpu_s();
+        let cores = match (cpu, self.last_cpu_s) {
+            (Some(c), Some(l)) if seconds > 0.0 => format!("; {:.2} cores busy", (c - l) / seconds),
+            _ => String::new(),
+        };
+        self.last_cpu_s = cpu;
         match peak_resident_mib() {
             Some(mib) => log::info!(
-                "stage {stage}: {seconds:.2} s; peak resident memory so far {mib:.0} MiB"
+                "stage {stage}: {seconds:.2} s{cores}; peak resident memory so far {mib:.0} MiB"
             ),
-            None => log::info!("stage {stage}: {seconds:.2} s"),
+            None => log::info!("stage {stage}: {seconds:.2} s{cores}"),
         }
     }
+}
+
+/// The CPU time (user + system) the process has used so far, in seconds, from /proc on Linux
+/// (in clock ticks of 1/100 s, the USER_HZ every Linux build reports there); None elsewhere.
+fn process_cpu_s() -> Option<f64> {
+    let stat = std::fs::read_to_string("/proc/self/stat").ok()?;
+    // The command name (field 2) may hold spaces; the fields after its closing parenthesis are
+    // state, ppid, …: utime and stime are the 12th and 13th of them.
+    let rest = &stat[stat.rfind(')')? + 1..];
+    let mut f = rest.split_whitespace().skip(11);
+    let utime: f64 = f.next()?.parse().ok()?;
+    let stime: f64 = f.next()?.parse().ok()?;
+    Some((utime + stime) / 100.0)
 }
 
 /// The process's peak resident memory (VmHWM) in MiB, read from /proc on Linux; None elsewhere.

@@ -2,23 +2,26 @@
 //! rasters, then the archive that seals them with the change record.
 
 use std::path::{Path, PathBuf};
-use std::sync::mpsc;
+use std::sync::{mpsc, Mutex};
+
+use rayon::prelude::*;
 
 use crate::archive::{self, ArchiveOptions, ExtraContent, ExtraFile};
 use crate::change;
 use crate::encode::gif;
 use crate::encode::png_seq::{self, PosterOptions, PosterTile, RowStatus};
+use crate::encode::quantize::PaletteBuilder;
 use crate::encode::video::VideoWriter;
 use crate::error::{Error, Result};
 use crate::geotiff::{self, WriteOptions};
-use crate::render::Frame;
+use crate::render::{Frame, Renderer};
 
 use super::frames::{FrameFigures, Painter};
 use super::{effective_method, orbit_share, FrameSource, Prepared, RunOptions, RunReport};
 use crate::align::AlignedStack;
 use crate::interp::flow::FlowResult;
 use crate::job::Job;
-use crate::timeline::FrameTime;
+use crate::timeline::{FrameTime, Timeline};
 
 pub(super) fn write_outputs(
     job: &Job,
@@ -32,7 +35,7 @@ pub(super) fn write_outputs(
     let Prepared {
         stack,
         timeline,
-        mut renderer,
+        renderer,
         focus,
         record,
         fields,
@@ -54,19 +57,35 @@ pub(super) fn write_outputs(
             ),
         )
     })?;
-    let unit = job.change.display_unit;
     let mut extra = vec![ExtraFile {
         name: "job/job.yaml".into(),
         content: ExtraContent::Bytes(job.text.clone().into_bytes()),
     }];
-    let mut painter = Painter::new(
-        job,
-        &stack,
-        &record,
-        &fields,
-        drape.as_ref(),
-        shell_grid.as_ref(),
-    );
+    let new_painter = || {
+        Painter::new(
+            job,
+            &stack,
+            &record,
+            &fields,
+            drape.as_ref(),
+            shell_grid.as_ref(),
+        )
+    };
+    // With more than one thread, two painters (each with its own renderer buffers) paint two
+    // frames at once: the serial parts of a frame (its crest, labels, the renderer's set-up) then
+    // overlap instead of leaving a core idle. Each frame is painted whole by one painter, so the
+    // frames are the same whichever painter paints them.
+    let workers = if rayon::current_num_threads() > 1 {
+        2
+    } else {
+        1
+    };
+    let mut renderers: Vec<Renderer> = (1..workers).map(|_| renderer.clone()).collect();
+    renderers.insert(0, renderer);
+    let painters: Vec<Mutex<(Painter, Renderer)>> = renderers
+        .into_iter()
+        .map(|r| Mutex::new((new_painter(), r)))
+        .collect();
 
     // Render and label every frame; the encoders take them as they come (see `FrameSinks`).
     let n = timeline.frames.len();
@@ -103,18 +122,36 @@ pub(super) fn write_outputs(
         png,
         video,
         kept: Vec::with_capacity(if job.output.gif.is_some() { n } else { 0 }),
+        palette: PaletteBuilder::new(),
     };
-    let paint = |t: &FrameTime, frame: &mut Frame| match &source {
-        FrameSource::Render => Ok(painter.paint(&mut renderer, t, orbit_share(t.index, n), frame)),
+    // Worker `k` paints with painter `k` only, so its lock is never contended.
+    let paint = |k: usize, t: &FrameTime, frame: &mut Frame| match &source {
+        FrameSource::Render => {
+            let mut guard = painters[k].lock().unwrap_or_else(|p| p.into_inner());
+            let (painter, renderer) = &mut *guard;
+            Ok(painter.paint(renderer, t, orbit_share(t.index, n), frame))
+        }
         FrameSource::Parts(gathered) => gathered.load(t.index, frame),
     };
     let FrameSinks {
-        png, video, kept, ..
-    } = if rayon::current_num_threads() > 1 {
-        sinks.pipelined(&timeline.frames, paint, opts)?
+        png,
+        video,
+        kept,
+        palette,
+        ..
+    } = if workers > 1 {
+        sinks.pipelined(&timeline.frames, workers, &paint, opts)?
     } else {
-        sinks.inline(&timeline.frames, paint, opts)?
+        sinks.inline(&timeline.frames, |t, f| paint(0, t, f), opts)?
     };
+    // The poster and the run's view use the first painter and renderer.
+    let (mut painter, renderer) = painters
+        .into_iter()
+        .next()
+        .expect("at least one painter")
+        .into_inner()
+        .unwrap_or_else(|p| p.into_inner());
+    let mut renderer = renderer;
     // With a video, each frame's H.264 encoding is inside this lap too (it runs as frames come).
     clock.lap(if video.is_some() {
         "frames: surface, render, PNG, video"
@@ -143,116 +180,42 @@ pub(super) fn write_outputs(
         });
         clock.lap("video file");
     }
-    if let Some(name) = &job.output.gif {
-        let path = scratch.join(name);
-        // Survey frames are held longer; delays carry their fractions forward (30 fps → 3, 3, 4 cs).
-        let hold_cs = (job.hold_s * 100.0).round() as u16;
-        let delays = gif::delays_cs(n, job.fps, hold_cs, |i| {
-            timeline.frames[i].kind.is_measured()
-        });
-        let stats = gif::write_gif(&path, &kept, &delays, &job.animation, false)?;
-        log::info!(
-            "{name}: {} frames, {} bytes, mean colour error {:.2}",
-            stats.frames,
-            stats.bytes,
-            stats.mean_colour_error
-        );
-        drop(kept);
-        clock.lap("GIF");
-        extra.push(ExtraFile {
-            name: format!("animation/{name}"),
-            content: ExtraContent::File(path),
-        });
-    }
-    if job.output.poster {
-        // Small multiples compare best from one viewpoint: every survey seen from the orbit's start.
-        let mut tiles_frames = Vec::new();
-        for t in timeline.frames.iter().filter(|t| t.kind.is_measured()) {
-            let mut f = Frame::new(job.view.width, job.view.height);
-            let figures = painter.paint(&mut renderer, t, 0.0, &mut f);
-            let caption = format!(
-                "{} — {} {}",
-                stack.surveys()[t.from].date,
-                super::frames::crest_name(job).to_lowercase(),
-                figures.crest_elevation_m.map_or("—".into(), |z| format!(
-                    "{:.2} {}",
-                    super::frames::shown_crest_m(job, z) / unit.metres(),
-                    unit.symbol()
-                ))
-            );
-            tiles_frames.push((f, caption));
-        }
-        let tiles: Vec<PosterTile> = tiles_frames
-            .iter()
-            .map(|(frame, caption)| PosterTile { frame, caption })
-            .collect();
-        let path = scratch.join("poster.png");
-        let title = if job.poster.title.is_empty() {
-            job.title.clone()
-        } else {
-            job.poster.title.clone()
-        };
-        png_seq::write_poster(
-            &path,
-            &tiles,
-            &PosterOptions {
-                title,
-                ..job.poster.clone()
-            },
-            false,
-        )?;
-        extra.push(ExtraFile {
-            name: "poster.png".into(),
-            content: ExtraContent::File(path),
-        });
-        clock.lap("poster");
-    }
-    // The displacement fields as two-band rasters (east, north in metres), for the record.
-    for (i, f) in fields.iter().enumerate() {
-        let Some(f) = f.as_ref().filter(|f| f.verdict.is_trusted()) else {
-            continue;
-        };
-        let (a, b) = (&stack.surveys()[i].id, &stack.surveys()[i + 1].id);
-        let name = format!("displacement-{a}-{b}.tif");
-        let path = scratch.join(&name);
-        let wopts = WriteOptions {
-            nodata: None,
-            overwrite: false,
-            band_descriptions: vec![
-                "east displacement (m)".into(),
-                "north displacement (m)".into(),
-            ],
-            effort: geotiff::Effort::Fast,
-        };
-        // A field estimated on blocks is written on the blocks: same origin, cells `step` times
-        // as large (the last row and column of blocks may reach past the survey grid's edge).
-        let g = stack.geometry();
-        let (rows, cols) = f.field.east_m.dim();
-        let step = f.field.step.max(1) as f64;
-        let block_grid = crate::grid::GridGeometry {
-            rows,
-            cols,
-            cell_x: g.cell_x * step,
-            cell_y: g.cell_y * step,
-            ..g.clone()
-        };
-        geotiff::write_bands(
-            &path,
-            &block_grid,
-            &[&f.field.east_m, &f.field.north_m],
-            &wopts,
-        )?;
-        extra.push(ExtraFile {
-            name: format!("fields/{name}"),
-            content: ExtraContent::File(path),
-        });
-    }
-    // Every pair's DEM of difference and detection mask as rasters on the grids' georeference.
-    extra.extend(difference_rasters(&stack, &record, scratch)?);
-
-    clock.lap("displacement and difference rasters");
-    let figures = change::figures(&stack, &record, &job.change);
-    clock.lap("maps and charts");
+    // The GIF, the poster, the record's rasters and its maps need only what is made by now: they
+    // are made side by side (each spreads over the pool as well), and their files are listed in
+    // this fixed order whatever finishes first.
+    let ((gif_file, poster_file), (raster_files, figures)) = rayon::join(
+        || {
+            rayon::join(
+                || timed("GIF", || write_gif(job, &timeline, scratch, kept, &palette)),
+                || {
+                    timed("poster", || {
+                        write_poster(job, &stack, &timeline, &mut painter, &mut renderer, scratch)
+                    })
+                },
+            )
+        },
+        || {
+            rayon::join(
+                || {
+                    timed("displacement and difference rasters", || {
+                        let mut files = field_rasters(&stack, &fields, scratch)?;
+                        // Every pair's DEM of difference and detection mask.
+                        files.extend(difference_rasters(&stack, &record, scratch)?);
+                        Ok(files)
+                    })
+                },
+                || {
+                    timed("maps and charts", || {
+                        change::figures(&stack, &record, &job.change)
+                    })
+                },
+            )
+        },
+    );
+    extra.extend(gif_file?);
+    extra.extend(poster_file?);
+    extra.extend(raster_files?);
+    clock.lap("GIF, poster, rasters, maps and charts (side by side)");
     // The viewer page is made from the files above, so it comes last among the extras.
     let page = archive::viewer::page(&archive::viewer::ViewerInputs {
         title: &job.title,
@@ -295,6 +258,148 @@ pub(super) fn write_outputs(
     })
 }
 
+/// Runs `f`, logging how long it took (the parts of a side-by-side stage have no lap of their own).
+fn timed<T>(what: &str, f: impl FnOnce() -> T) -> T {
+    let t0 = std::time::Instant::now();
+    let out = f();
+    log::info!("  {what}: {:.2} s", t0.elapsed().as_secs_f64());
+    out
+}
+
+/// The GIF from the kept frames and the palette sampled as they came; None when the job has none.
+fn write_gif(
+    job: &Job,
+    timeline: &Timeline,
+    scratch: &Path,
+    kept: Vec<Frame>,
+    palette: &PaletteBuilder,
+) -> Result<Option<ExtraFile>> {
+    let Some(name) = &job.output.gif else {
+        return Ok(None);
+    };
+    let path = scratch.join(name);
+    // Survey frames are held longer; delays carry their fractions forward (30 fps → 3, 3, 4 cs).
+    let hold_cs = (job.hold_s * 100.0).round() as u16;
+    let delays = gif::delays_cs(kept.len(), job.fps, hold_cs, |i| {
+        timeline.frames[i].kind.is_measured()
+    });
+    let stats = gif::write_gif_sampled(&path, &kept, &delays, palette, &job.animation, false)?;
+    log::info!(
+        "{name}: {} frames, {} bytes, mean colour error {:.2}",
+        stats.frames,
+        stats.bytes,
+        stats.mean_colour_error
+    );
+    Ok(Some(ExtraFile {
+        name: format!("animation/{name}"),
+        content: ExtraContent::File(path),
+    }))
+}
+
+/// The poster: every survey seen from the orbit's start (small multiples compare best from one
+/// viewpoint); None when the job has none.
+fn write_poster(
+    job: &Job,
+    stack: &AlignedStack,
+    timeline: &Timeline,
+    painter: &mut Painter,
+    renderer: &mut Renderer,
+    scratch: &Path,
+) -> Result<Option<ExtraFile>> {
+    if !job.output.poster {
+        return Ok(None);
+    }
+    let unit = job.change.display_unit;
+    let mut tiles_frames = Vec::new();
+    for t in timeline.frames.iter().filter(|t| t.kind.is_measured()) {
+        let mut f = Frame::new(job.view.width, job.view.height);
+        let figures = painter.paint(renderer, t, 0.0, &mut f);
+        let caption = format!(
+            "{} — {} {}",
+            stack.surveys()[t.from].date,
+            super::frames::crest_name(job).to_lowercase(),
+            figures.crest_elevation_m.map_or("—".into(), |z| format!(
+                "{:.2} {}",
+                super::frames::shown_crest_m(job, z) / unit.metres(),
+                unit.symbol()
+            ))
+        );
+        tiles_frames.push((f, caption));
+    }
+    let tiles: Vec<PosterTile> = tiles_frames
+        .iter()
+        .map(|(frame, caption)| PosterTile { frame, caption })
+        .collect();
+    let path = scratch.join("poster.png");
+    let title = if job.poster.title.is_empty() {
+        job.title.clone()
+    } else {
+        job.poster.title.clone()
+    };
+    png_seq::write_poster(
+        &path,
+        &tiles,
+        &PosterOptions {
+            title,
+            ..job.poster.clone()
+        },
+        false,
+    )?;
+    Ok(Some(ExtraFile {
+        name: "poster.png".into(),
+        content: ExtraContent::File(path),
+    }))
+}
+
+/// The trusted displacement fields as two-band rasters (east, north in metres), for the record.
+fn field_rasters(
+    stack: &AlignedStack,
+    fields: &[Option<FlowResult>],
+    scratch: &Path,
+) -> Result<Vec<ExtraFile>> {
+    let mut files = Vec::new();
+    for (i, f) in fields.iter().enumerate() {
+        let Some(f) = f.as_ref().filter(|f| f.verdict.is_trusted()) else {
+            continue;
+        };
+        let (a, b) = (&stack.surveys()[i].id, &stack.surveys()[i + 1].id);
+        let name = format!("displacement-{a}-{b}.tif");
+        let path = scratch.join(&name);
+        let wopts = WriteOptions {
+            nodata: None,
+            overwrite: false,
+            band_descriptions: vec![
+                "east displacement (m)".into(),
+                "north displacement (m)".into(),
+            ],
+            effort: geotiff::Effort::Fast,
+        };
+        // A field estimated on blocks is written on the blocks: same origin, cells `step` times
+        // as large (the last row and column of blocks may reach past the survey grid's edge).
+        let g = stack.geometry();
+        let (rows, cols) = f.field.east_m.dim();
+        let step = f.field.step.max(1) as f64;
+        let block_grid = crate::grid::GridGeometry {
+            rows,
+            cols,
+            cell_x: g.cell_x * step,
+            cell_y: g.cell_y * step,
+            ..g.clone()
+        };
+        geotiff::write_bands(
+            &path,
+            &block_grid,
+            &[&f.field.east_m, &f.field.north_m],
+            &wopts,
+        )?;
+        files.push(ExtraFile {
+            name: format!("fields/{name}"),
+            content: ExtraContent::File(path),
+        });
+    }
+    Ok(files)
+}
+
 /// Every file under `dir`, named `prefix/<file>` for the archive, sorted by name.
 fn files_under(dir: &Path, prefix: &str) -> Result<Vec<ExtraFile>> {
     let mut names: Vec<String> = std::fs::read_dir(dir)
@@ -324,6 +429,8 @@ struct FrameSinks<'a> {
     png: Option<(png_seq::PngSequence, PathBuf)>,
     video: Option<(VideoWriter, PathBuf)>,
     kept: Vec<Frame>,
+    /// The GIF palette's samples, taken as the frames come (so the GIF stage only maps and codes).
+    palette: PaletteBuilder,
 }
 
 impl FrameSinks<'_> {
@@ -366,6 +473,8 @@ impl FrameSinks<'_> {
             v.write_frame(&frame, t.duration_s, t.kind.is_measured())?;
         }
         if job.output.gif.is_some() {
+            self.palette
+                .add_rgba(&frame.rgba, job.animation.palette_sample_step);
             self.kept.push(frame);
             return Ok(None);
         }
@@ -392,13 +501,15 @@ impl FrameSinks<'_> {
         Ok(self)
     }
 
-    /// Paints on this thread (the renderer spreads each frame over the rayon pool) while a second
-    /// thread encodes the frames painted before, through a channel of [`PIPELINE_DEPTH`] frames.
-    /// Frames reach the encoders in order, so the files are the same as [`FrameSinks::inline`]'s.
+    /// Paints `workers` frames at a time on the rayon pool (`paint(k, …)` is worker `k`; the
+    /// renderer also spreads each frame over the pool) while a second thread encodes the frames
+    /// painted before, through a channel of [`PIPELINE_DEPTH`] frames. Frames reach the encoders
+    /// in order, so the files are the same as [`FrameSinks::inline`]'s.
     fn pipelined(
         self,
         frames: &[FrameTime],
-        mut paint: impl FnMut(&FrameTime, &mut Frame) -> Result<FrameFigures>,
+        workers: usize,
+        paint: &(dyn Fn(usize, &FrameTime, &mut Frame) -> Result<FrameFigures> + Sync),
         opts: &RunOptions,
     ) -> Result<Self> {
         let (w, h) = (self.job.view.width, self.job.view.height);
@@ -417,22 +528,33 @@ impl FrameSinks<'_> {
                 Ok(sinks)
             });
             let mut painting = Ok(());
-            for t in frames {
-                let mut frame = spares.try_recv().unwrap_or_else(|_| Frame::new(w, h));
-                match paint(t, &mut frame) {
-                    Ok(figures) => {
-                        // A closed channel means the encoder stopped on an error; it reports it.
-                        if to_encoder.send((t.index, figures, frame)).is_err() {
-                            break;
+            'frames: for batch in frames.chunks(workers.max(1)) {
+                let mut buffers: Vec<Frame> = batch
+                    .iter()
+                    .map(|_| spares.try_recv().unwrap_or_else(|_| Frame::new(w, h)))
+                    .collect();
+                let figures: Vec<Result<FrameFigures>> = buffers
+                    .par_iter_mut()
+                    .zip(batch.par_iter())
+                    .enumerate()
+                    .map(|(k, (frame, t))| paint(k, t, frame))
+                    .collect();
+                for ((t, frame), figures) in batch.iter().zip(buffers).zip(figures) {
+                    match figures {
+                        Ok(figures) => {
+                            // A closed channel means the encoder stopped on an error; it reports it.
+                            if to_encoder.send((t.index, figures, frame)).is_err() {
+                                break 'frames;
+                            }
+                        }
+                        Err(e) => {
+                            painting = Err(e);
+                            break 'frames;
                         }
                     }
-                    Err(e) => {
-                        painting = Err(e);
-                        break;
+                    if let Some(cb) = &opts.progress {
+                        cb(t.index + 1, frames.len());
                     }
-                }
-                if let Some(cb) = &opts.progress {
-                    cb(t.index + 1, frames.len());
                 }
             }
             drop(to_encoder);
