@@ -55,7 +55,7 @@ pub fn map_mut_in_waves<I: Send, T: Send>(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use std::sync::atomic::{AtomicUsize, Ordering};
+    use rayon::prelude::*;
 
     #[test]
     fn waves_keep_order_and_bound_the_items_in_flight() {
