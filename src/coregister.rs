@@ -164,44 +164,70 @@ impl Registration {
     }
 }
 
-/// Per-cell terrain of the reference survey: slope tangent and aspect sine/cosine.
-struct Terrain {
-    tan_slope: Vec<f32>,
-    sin_aspect: Vec<f32>,
-    cos_aspect: Vec<f32>,
+/// The reference survey's terrain, cell by cell: slope tangent and aspect sine/cosine, computed
+/// when asked (Horn's gradient of a 3x3 window) rather than stored, which at 4096² would be three
+/// more grids (192 MB) held for the whole co-registration.
+struct Terrain<'a> {
+    z: &'a [f32],
+    rows: usize,
+    cols: usize,
+    dx: f32,
+    dy: f32,
 }
 
-fn terrain(z: &[f32], g: &GridGeometry) -> Terrain {
-    let (rows, cols) = (g.rows, g.cols);
-    let (dx, dy) = (g.cell_x_m() as f32, g.cell_y_m() as f32);
-    let mut tan_slope = vec![f32::NAN; z.len()];
-    let mut sin_aspect = vec![0f32; z.len()];
-    let mut cos_aspect = vec![0f32; z.len()];
-    tan_slope
-        .par_chunks_mut(cols)
-        .zip(sin_aspect.par_chunks_mut(cols))
-        .zip(cos_aspect.par_chunks_mut(cols))
-        .enumerate()
-        .for_each(|(r, ((t, s), c))| {
-            for k in 0..cols {
-                if !z[r * cols + k].is_finite() {
-                    continue;
-                }
-                // Check: Horn (1981) 3x3 gradient; aspect = atan2(-p, -q) is the downslope
-                // compass direction, REFERENCES.md §1
-                let (p, q) = crate::render::shade::horn_gradient(z, rows, cols, r, k, dx, dy);
-                let m = p.hypot(q);
-                t[k] = m;
-                if m > 0.0 {
-                    s[k] = -p / m;
-                    c[k] = -q / m;
-                }
-            }
-        });
-    Terrain {
-        tan_slope,
-        sin_aspect,
-        cos_aspect,
+/// Slope tangent and aspect (sine, cosine) of one cell.
+#[derive(Clone, Copy)]
+struct Facet {
+    tan_slope: f32,
+    sin_aspect: f32,
+    cos_aspect: f32,
+}
+
+impl Terrain<'_> {
+    fn new<'a>(z: &'a [f32], g: &GridGeometry) -> Terrain<'a> {
+        Terrain {
+            z,
+            rows: g.rows,
+            cols: g.cols,
+            dx: g.cell_x_m() as f32,
+            dy: g.cell_y_m() as f32,
+        }
+    }
+
+    /// The facet of cell `k`: NaN slope where the cell has no data (or a neighbour gives NaN),
+    /// aspect (0, 0) where the slope is not above 0.
+    #[inline]
+    fn facet(&self, k: usize) -> Facet {
+        if !self.z[k].is_finite() {
+            return Facet {
+                tan_slope: f32::NAN,
+                sin_aspect: 0.0,
+                cos_aspect: 0.0,
+            };
+        }
+        let (r, c) = (k / self.cols, k % self.cols);
+        // Check: Horn (1981) 3x3 gradient; aspect = atan2(-p, -q) is the downslope compass
+        // direction, REFERENCES.md §1
+        let (p, q) = crate::render::shade::horn_gradient(
+            self.z, self.rows, self.cols, r, c, self.dx, self.dy,
+        );
+        let m = p.hypot(q);
+        let (sin_aspect, cos_aspect) = if m > 0.0 {
+            (-p / m, -q / m)
+        } else {
+            (0.0, 0.0)
+        };
+        Facet {
+            tan_slope: m,
+            sin_aspect,
+            cos_aspect,
+        }
+    }
+
+    /// The slope tangent of cell `k` (see [`Terrain::facet`]).
+    #[inline]
+    fn tan_slope(&self, k: usize) -> f32 {
+        self.facet(k).tan_slope
     }
 }
 
@@ -260,7 +286,33 @@ struct Estimate {
     vertical_m: f64,
     vertical_sigma_m: f64,
     nmad_m: f64,
-    stable: Vec<bool>,
+    /// The stable cells, one bit each (a survey's estimate is kept until all are done: at 4096²
+    /// a bit per cell is 2 MB, a byte would be 16 MB).
+    stable: Bits,
+}
+
+/// A set of cells, one bit a cell.
+struct Bits(Vec<u64>);
+
+impl Bits {
+    fn from_bools(v: &[bool]) -> Bits {
+        Bits(
+            v.chunks(64)
+                .map(|c| {
+                    c.iter()
+                        .enumerate()
+                        .fold(0u64, |w, (i, &b)| w | (u64::from(b) << i))
+                })
+                .collect(),
+        )
+    }
+    #[inline]
+    fn get(&self, k: usize) -> bool {
+        self.0[k / 64] >> (k % 64) & 1 == 1
+    }
+    fn count(&self) -> usize {
+        self.0.iter().map(|w| w.count_ones() as usize).sum()
+    }
 }
 
 /// Least squares of `dh = tanα·(A·sinψ + B·cosψ) + C` over the cells in `fit`; returns
@@ -275,24 +327,21 @@ fn fit_cosine(dh: &[f32], t: &Terrain, fit: &[u32]) -> Option<(f64, f64, f64, f6
     let mut m = [[0f64; 3]; 3];
     let mut rhs = [0f64; 3];
     let (mut ss, mut sc, mut cc) = (0f64, 0f64, 0f64);
-    let x_of = |k: usize| {
-        let tan = t.tan_slope[k] as f64;
-        [
-            tan * t.sin_aspect[k] as f64,
-            tan * t.cos_aspect[k] as f64,
-            1.0,
-        ]
+    let x_of = |f: Facet| {
+        let tan = f.tan_slope as f64;
+        [tan * f.sin_aspect as f64, tan * f.cos_aspect as f64, 1.0]
     };
     for &k in fit {
         let k = k as usize;
-        let x = x_of(k);
+        let f = t.facet(k);
+        let x = x_of(f);
         for i in 0..3 {
             for j in 0..3 {
                 m[i][j] += x[i] * x[j];
             }
             rhs[i] += x[i] * dh[k] as f64;
         }
-        let (s, c) = (t.sin_aspect[k] as f64, t.cos_aspect[k] as f64);
+        let (s, c) = (f.sin_aspect as f64, f.cos_aspect as f64);
         ss += s * s;
         sc += s * c;
         cc += c * c;
@@ -317,7 +366,7 @@ fn fit_cosine(dh: &[f32], t: &Terrain, fit: &[u32]) -> Option<(f64, f64, f64, f6
         .iter()
         .map(|&k| {
             let k = k as usize;
-            let x = x_of(k);
+            let x = x_of(t.facet(k));
             (dh[k] as f64 - sol[0] * x[0] - sol[1] * x[1] - sol[2]) as f32
         })
         .collect();
@@ -415,6 +464,101 @@ fn correlation_range_cells(dh: &[f32], stable: &[bool], rows: usize, cols: usize
     32.0
 }
 
+/// Count of ones in the (2r+1)² window around each cell of a 0/1 mask (clipped at the edges), for
+/// windows of at most 255 cells. Sums run in wrapping byte arithmetic: every window's true count
+/// fits a byte, so differences of the wrapped running sums are exact.
+fn window_counts(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<u8> {
+    assert!(
+        (2 * r + 1) * (2 * r + 1) <= 255,
+        "window of at most 255 cells"
+    );
+    if rows == 0 || cols == 0 {
+        return Vec::new();
+    }
+    let mut h = vec![0u8; x.len()];
+    h.par_chunks_mut(cols)
+        .zip(x.par_chunks(cols))
+        .for_each(|(out, line)| {
+            let mut prefix = vec![0u8; cols + 1];
+            for c in 0..cols {
+                prefix[c + 1] = prefix[c].wrapping_add(line[c]);
+            }
+            for (c, o) in out.iter_mut().enumerate() {
+                let (lo, hi) = (c.saturating_sub(r), (c + r + 1).min(cols));
+                *o = prefix[hi].wrapping_sub(prefix[lo]);
+            }
+        });
+    let mut out = vec![0u8; x.len()];
+    out.par_chunks_mut(cols).enumerate().for_each(|(row, o)| {
+        let (lo, hi) = (row.saturating_sub(r), (row + r + 1).min(rows));
+        for line in h[lo * cols..hi * cols].chunks_exact(cols) {
+            for (a, &v) in o.iter_mut().zip(line) {
+                *a = a.wrapping_add(v);
+            }
+        }
+    });
+    out
+}
+
+/// True where a (2r+1)² window around the cell (clipped at the edges) holds a non-zero cell of
+/// `x`: a square dilation, done as a row pass then a column pass of running maxima.
+fn dilate(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<bool> {
+    if rows == 0 || cols == 0 {
+        return Vec::new();
+    }
+    // Row pass: distance to the nearest set cell in the row, looked up both ways.
+    let mut h = vec![0u8; x.len()];
+    h.par_chunks_mut(cols)
+        .zip(x.par_chunks(cols))
+        .for_each(|(out, line)| {
+            let mut last = None::<usize>;
+            for c in 0..cols {
+                if line[c] != 0 {
+                    last = Some(c);
+                }
+                out[c] = last.is_some_and(|l| c - l <= r) as u8;
+            }
+            let mut next = None::<usize>;
+            for c in (0..cols).rev() {
+                if line[c] != 0 {
+                    next = Some(c);
+                }
+                out[c] |= next.is_some_and(|n| n - c <= r) as u8;
+            }
+        });
+    // Column pass, the same both ways: rows in order, each column remembering its last set row
+    // (whole rows at a time, so the loops run over contiguous memory).
+    let mut out = vec![false; x.len()];
+    let far = usize::MAX / 2;
+    let mut last = vec![far; cols];
+    for row in 0..rows {
+        let (line, o) = (
+            &h[row * cols..(row + 1) * cols],
+            &mut out[row * cols..(row + 1) * cols],
+        );
+        for c in 0..cols {
+            if line[c] != 0 {
+                last[c] = row;
+            }
+            o[c] = last[c] != far && row - last[c] <= r;
+        }
+    }
+    let mut next = vec![far; cols];
+    for row in (0..rows).rev() {
+        let (line, o) = (
+            &h[row * cols..(row + 1) * cols],
+            &mut out[row * cols..(row + 1) * cols],
+        );
+        for c in 0..cols {
+            if line[c] != 0 {
+                next[c] = row;
+            }
+            o[c] |= next[c] != far && next[c] - row <= r;
+        }
+    }
+    out
+}
+
 /// Marks as stable the candidate cells whose `dh` lies within `band` of `med`; found ground also
 /// keeps `buffer_m` away from patches of change beyond the band (a majority of a 5 x 5
 /// neighbourhood, so single noisy cells do not punch holes).
@@ -431,22 +575,23 @@ fn select_stable(
 ) {
     let med = med as f32;
     let (rows, cols) = (g.rows, g.cols);
-    let outside: Vec<u32> = dh
-        .iter()
-        .map(|&d| (d.is_finite() && (d - med).abs() > band) as u32)
+    // One byte a cell: at 4096² each of these masks is 16 MB, not the 64 MB of wider counts.
+    let outside: Vec<u8> = dh
+        .par_iter()
+        .map(|&d| (d.is_finite() && (d - med).abs() > band) as u8)
         .collect();
     let buffer = (opts.buffer_m / g.cell_x_m()).round() as usize;
     let near_change: Vec<bool> = if found && buffer > 0 {
-        let valid: Vec<u32> = dh.iter().map(|d| d.is_finite() as u32).collect();
-        let so = crate::change::landform::box_sum(&outside, rows, cols, 2);
-        let sv = crate::change::landform::box_sum(&valid, rows, cols, 2);
-        let core: Vec<u32> = (0..dh.len())
-            .map(|k| (outside[k] == 1 && 2 * so[k] >= sv[k]) as u32)
+        let valid: Vec<u8> = dh.par_iter().map(|d| d.is_finite() as u8).collect();
+        let so = window_counts(&outside, rows, cols, 2);
+        let sv = window_counts(&valid, rows, cols, 2);
+        drop(valid);
+        let core: Vec<u8> = (0..dh.len())
+            .into_par_iter()
+            .map(|k| (outside[k] == 1 && 2 * so[k] >= sv[k]) as u8)
             .collect();
-        crate::change::landform::box_sum(&core, rows, cols, buffer)
-            .into_iter()
-            .map(|n| n > 0)
-            .collect()
+        drop((so, sv));
+        dilate(&core, rows, cols, buffer)
     } else {
         vec![false; dh.len()]
     };
@@ -500,7 +645,12 @@ fn estimate(
         let lo_eff = lo.max((SLOPE_NOISE_FACTOR * slope_noise(nmad_stable, g)) as f32);
         // Cell indices as u32 (half the memory of usize; a grid has far fewer than 2³² cells).
         let fit: Vec<u32> = (0..dh.len())
-            .filter(|&k| stable[k] && t.tan_slope[k] >= lo_eff && t.tan_slope[k] <= hi)
+            .filter(|&k| {
+                stable[k] && {
+                    let tan = t.tan_slope(k);
+                    tan >= lo_eff && tan <= hi
+                }
+            })
             .map(|k| k as u32)
             .collect();
         if fit.len() < opts.min_cells {
@@ -564,10 +714,10 @@ fn estimate(
             (0..dh.len())
                 .filter(|&k| {
                     let (r, c) = (k / g.cols, k % g.cols);
-                    stable[k]
-                        && t.tan_slope[k] >= lo_eff
-                        && t.tan_slope[k] <= hi
-                        && (r / 32 + c / 32) % 2 == parity
+                    stable[k] && (r / 32 + c / 32) % 2 == parity && {
+                        let tan = t.tan_slope(k);
+                        tan >= lo_eff && tan <= hi
+                    }
                 })
                 .map(|k| k as u32)
                 .collect()
@@ -599,7 +749,7 @@ fn estimate(
         // 1.2533·σ/√n for normal errors (from memory), so this is the optimistic side
         vertical_sigma_m: nmad / n_eff.sqrt(),
         nmad_m: nmad,
-        stable,
+        stable: Bits::from_bools(&stable),
     }
 }
 
@@ -646,7 +796,7 @@ pub fn coregister(
     let estimates = {
         let reference_grid = stack.z(0).as_standard_layout();
         let reference: &[f32] = reference_grid.as_slice().expect("standard layout");
-        let t = terrain(reference, &g);
+        let t = Terrain::new(reference, &g);
         let given_slice: Option<Vec<bool>> = given.map(|(m, _)| m.iter().copied().collect());
         let found = given.is_none();
         // In waves of one survey per thread: each holds a few grid-sized scratch arrays.
@@ -666,7 +816,7 @@ pub fn coregister(
         if found && stack.len() > 2 {
             // Second pass: the cells stable against the first survey in every survey.
             let common: Vec<bool> = (0..reference.len())
-                .map(|k| estimates.iter().all(|e| e.stable[k]))
+                .map(|k| estimates.iter().all(|e| e.stable.get(k)))
                 .collect();
             if common.iter().filter(|&&s| s).count() >= opts.min_cells {
                 estimates = crate::waves::map_in_waves(stack.len() - 1, |k| {
@@ -689,7 +839,7 @@ pub fn coregister(
     let cell_area = g.cell_area_m2();
     for (k, e) in estimates.into_iter().enumerate() {
         let i = k + 1;
-        let n = e.stable.iter().filter(|&&s| s).count();
+        let n = e.stable.count();
         let mut r = Registration {
             survey_index: i,
             east_m: e.east_m,
@@ -805,6 +955,31 @@ pub fn mask_from_grid(mask: &crate::grid::Grid, g: &GridGeometry) -> Array2<bool
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn byte_window_counts_and_dilation_match_the_wide_box_sum() {
+        // Check: analytic — the byte versions equal the u32 box sum of `change::landform` (and
+        // "box sum > 0") on a seeded random mask, edges included.
+        let (rows, cols) = (37, 53);
+        let mut state = 12345u64;
+        let mask: Vec<u8> = (0..rows * cols)
+            .map(|_| {
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                ((state >> 33) % 7 == 0) as u8
+            })
+            .collect();
+        let wide: Vec<u32> = mask.iter().map(|&v| v as u32).collect();
+        let counts = window_counts(&mask, rows, cols, 2);
+        let expect = crate::change::landform::box_sum(&wide, rows, cols, 2);
+        assert!(counts.iter().zip(&expect).all(|(&a, &b)| a as u32 == b));
+        for r in [0, 1, 3, 9, 60] {
+            let d = dilate(&mask, rows, cols, r);
+            let e = crate::change::landform::box_sum(&wide, rows, cols, r);
+            assert!(d.iter().zip(&e).all(|(&a, &b)| a == (b > 0)), "radius {r}");
+        }
+    }
 
     #[test]
     fn polygon_even_odd() {

@@ -441,6 +441,8 @@ pub fn focus_of(stack: &AlignedStack, record: &ChangeRecord) -> Focus {
 pub(super) struct Stopwatch {
     last: std::time::Instant,
     last_cpu_s: Option<f64>,
+    /// The peak resident memory was reset at the last lap, so the next lap's peak is its own.
+    peak_reset: bool,
     pub(super) laps: Vec<(&'static str, f64)>,
 }
 
@@ -449,6 +451,7 @@ impl Stopwatch {
         Stopwatch {
             last: std::time::Instant::now(),
             last_cpu_s: process_cpu_s(),
+            peak_reset: reset_peak_resident(),
             laps: Vec::new(),
         }
     }
@@ -466,12 +469,22 @@ impl Stopwatch {
             _ => String::new(),
         };
         self.last_cpu_s = cpu;
-        match peak_resident_mib() {
+        let peak = stage_peak_resident_mib();
+        // Where the system lets the peak be reset, each stage reports its own peak (the process's
+        // peak is kept aside, see `peak_resident_mib`).
+        let own = reset_peak_resident();
+        match peak {
             Some(mib) => log::info!(
-                "stage {stage}: {seconds:.2} s{cores}; peak resident memory so far {mib:.0} MiB"
+                "stage {stage}: {seconds:.2} s{cores}; peak resident memory {} {mib:.0} MiB",
+                if self.peak_reset {
+                    "in this stage"
+                } else {
+                    "so far"
+                }
             ),
             None => log::info!("stage {stage}: {seconds:.2} s{cores}"),
         }
+        self.peak_reset = own;
     }
 }
 
@@ -488,12 +501,34 @@ fn process_cpu_s() -> Option<f64> {
     Some((utime + stime) / 100.0)
 }
 
-/// The process's peak resident memory (VmHWM) in MiB, read from /proc on Linux; None elsewhere.
-pub fn peak_resident_mib() -> Option<f64> {
+/// The largest resident-memory peak seen before the last reset, in KiB.
+static EARLIER_PEAK_KIB: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+
+/// The peak resident memory (VmHWM) since the last reset, in MiB, read from /proc on Linux; None
+/// elsewhere.
+fn stage_peak_resident_mib() -> Option<f64> {
     let status = std::fs::read_to_string("/proc/self/status").ok()?;
     let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
-    let kib: f64 = line.split_whitespace().nth(1)?.parse().ok()?;
-    Some(kib / 1024.0)
+    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kib as f64 / 1024.0)
+}
+
+/// Resets the peak resident memory to the current size (Linux: "5" written to
+/// /proc/self/clear_refs, see proc(5)), keeping the peak so far for [`peak_resident_mib`];
+/// false where that is not possible.
+fn reset_peak_resident() -> bool {
+    let Some(mib) = stage_peak_resident_mib() else {
+        return false;
+    };
+    EARLIER_PEAK_KIB.fetch_max((mib * 1024.0) as u64, std::sync::atomic::Ordering::Relaxed);
+    std::fs::write("/proc/self/clear_refs", "5").is_ok()
+}
+
+/// The process's peak resident memory since it started, in MiB (Linux); None elsewhere.
+pub fn peak_resident_mib() -> Option<f64> {
+    let now = stage_peak_resident_mib()?;
+    let earlier = EARLIER_PEAK_KIB.load(std::sync::atomic::Ordering::Relaxed) as f64 / 1024.0;
+    Some(now.max(earlier))
 }
 
 /// A stage's message that starts with its key (`view.fov_deg: …`) becomes a job error placed at that
