@@ -75,7 +75,10 @@ pub(super) fn write_outputs(
     // frames at once: the serial parts of a frame (its crest, labels, the renderer's set-up) then
     // overlap instead of leaving a core idle. Each frame is painted whole by one painter, so the
     // frames are the same whichever painter paints them.
-    let workers = if rayon::current_num_threads() > 1 {
+    // Above 2048² cells a second painter's surfaces would cost 128 MB or more (a 4096² pair then
+    // peaked at 1.2 GiB instead of about 0.9), and most of a frame's work is parallel anyway.
+    let (rows, cols) = (stack.geometry().rows, stack.geometry().cols);
+    let workers = if rayon::current_num_threads() > 1 && rows * cols <= SECOND_PAINTER_MAX_CELLS {
         2
     } else {
         1
@@ -183,9 +186,13 @@ pub(super) fn write_outputs(
     // The GIF, the poster, the record's rasters and its maps need only what is made by now: they
     // are made side by side (each spreads over the pool as well), and their files are listed in
     // this fixed order whatever finishes first.
-    let ((gif_file, poster_file), (raster_files, figures)) = rayon::join(
+    // (On grids above 2048² one after another: their buffers together would raise the peak memory.)
+    let small = rows * cols <= SECOND_PAINTER_MAX_CELLS;
+    let ((gif_file, poster_file), (raster_files, figures)) = join_if(
+        small,
         || {
-            rayon::join(
+            join_if(
+                small,
                 || timed("GIF", || write_gif(job, &timeline, scratch, kept, &palette)),
                 || {
                     timed("poster", || {
@@ -195,7 +202,8 @@ pub(super) fn write_outputs(
             )
         },
         || {
-            rayon::join(
+            join_if(
+                small,
                 || {
                     timed("displacement and difference rasters", || {
                         let mut files = field_rasters(&stack, &fields, scratch)?;
@@ -215,7 +223,7 @@ pub(super) fn write_outputs(
     extra.extend(gif_file?);
     extra.extend(poster_file?);
     extra.extend(raster_files?);
-    clock.lap("GIF, poster, rasters, maps and charts (side by side)");
+    clock.lap("GIF, poster, rasters, maps and charts");
     // The viewer page is made from the files above, so it comes last among the extras.
     let page = archive::viewer::page(&archive::viewer::ViewerInputs {
         title: &job.title,
@@ -256,6 +264,19 @@ pub(super) fn write_outputs(
         warnings,
         timings: clock.laps,
     })
+}
+
+/// `(a(), b())`, side by side on the pool when `parallel`, else one after the other.
+fn join_if<RA: Send, RB: Send>(
+    parallel: bool,
+    a: impl FnOnce() -> RA + Send,
+    b: impl FnOnce() -> RB + Send,
+) -> (RA, RB) {
+    if parallel {
+        rayon::join(a, b)
+    } else {
+        (a(), b())
+    }
 }
 
 /// Runs `f`, logging how long it took (the parts of a side-by-side stage have no lap of their own).
@@ -419,6 +440,9 @@ fn files_under(dir: &Path, prefix: &str) -> Result<Vec<ExtraFile>> {
 /// How many painted frames may wait for the encoders: enough to even out frames that take longer
 /// to paint or to encode, few enough that memory does not grow with the animation.
 const PIPELINE_DEPTH: usize = 3;
+
+/// Largest grid (cells) painted by two painters at once; see `write_outputs`.
+const SECOND_PAINTER_MAX_CELLS: usize = 2048 * 2048;
 
 /// Where each finished frame goes, in frame order: the PNG sequence (with its index row), the
 /// video encoder, and the frames kept for the GIF's palette.
