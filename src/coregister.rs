@@ -967,7 +967,7 @@ mod tests {
                 state = state
                     .wrapping_mul(6364136223846793005)
                     .wrapping_add(1442695040888963407);
-                ((state >> 33) % 7 == 0) as u8
+                (state >> 33).is_multiple_of(7) as u8
             })
             .collect();
         let wide: Vec<u32> = mask.iter().map(|&v| v as u32).collect();
