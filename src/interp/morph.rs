@@ -107,6 +107,7 @@ pub fn morph_into(
         0.0
     };
     let d = RasterDims { rows, cols };
+    let columns = field.column_weights();
     let write = |dst: &mut [f32]| {
         dst.par_chunks_mut(cols * BAND_ROWS)
             .enumerate()
@@ -118,7 +119,7 @@ pub fn morph_into(
                     let base = r * cols;
                     let (er, nr) = if field.step > 1 {
                         // A field kept at block resolution, interpolated row by row.
-                        field.row_at(r, &mut east_row, &mut north_row);
+                        field.row_at_with(r, &columns, &mut east_row, &mut north_row);
                         (&east_row[..], &north_row[..])
                     } else {
                         (&east[base..base + cols], &north[base..base + cols])

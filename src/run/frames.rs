@@ -38,6 +38,8 @@ pub(super) struct Painter<'a> {
     shell_grid: Option<&'a ndarray::Array2<f32>>,
     surface: Surface,
     shell: Surface,
+    /// Which grid `shell` holds (see `paint`), None before the first.
+    shell_holds: Option<usize>,
     /// The crest of every survey as the frames show it (display unit): (decimal year, value).
     survey_points: Vec<(f64, f64)>,
     /// Each of those surveys' σ (display unit), for the chart's ±σ bars.
@@ -97,6 +99,7 @@ impl<'a> Painter<'a> {
             drape,
             shell_grid,
             shell: Surface::for_stack(stack),
+            shell_holds: None,
             surface: Surface::for_stack(stack),
             survey_points,
             survey_sigma,
@@ -130,15 +133,20 @@ impl<'a> Painter<'a> {
         let crest = crest::estimate(&self.surface.z, stack.geometry(), sigma_t);
         let highest_cell_m = crest::highest_cell(&self.surface.z).map(|(z, _, _)| z as f64);
         // The shell: a grid from the job, or an earlier survey (none on the survey itself).
+        // (Which grid: `usize::MAX` for the job's shell grid, else the survey's index.)
         let shell_z = match self.shell_grid {
-            Some(z) => Some(z),
+            Some(z) => Some((usize::MAX, z)),
             None => earlier_survey(job.shell_survey, t.kind)
                 .filter(|&i| i != t.from || !t.kind.is_measured())
-                .map(|i| stack.z(i)),
+                .map(|i| (i, stack.z(i))),
         };
-        if let Some(z) = shell_z {
-            // The renderer fades the shell in with its height above the surface.
-            self.shell.z.assign(z);
+        if let Some((which, z)) = shell_z {
+            // The renderer fades the shell in with its height above the surface. Copied only when
+            // it changes (at 4096² a copy is 64 MB, and the shell is often one survey throughout).
+            if self.shell_holds != Some(which) {
+                self.shell.z.assign(z);
+                self.shell_holds = Some(which);
+            }
         }
         let shell = shell_z.map(|_| &self.shell);
         let colouring = match (self.change_colour, &job.colour) {

@@ -62,6 +62,36 @@ impl FlowField {
     /// otherwise each grid cell's centre is placed in block coordinates (block centres at whole
     /// numbers) and the blocks are interpolated bilinearly (`grid::sample_bilinear`).
     pub fn row_at(&self, r: usize, east: &mut Vec<f32>, north: &mut Vec<f32>) {
+        self.row_at_with(r, &self.column_weights(), east, north);
+    }
+
+    /// Where each grid column falls between the blocks: (left block, right block, weight of the
+    /// right one), for [`FlowField::row_at_with`]. Empty for a field at grid resolution.
+    pub fn column_weights(&self) -> Vec<(u32, u32, f32)> {
+        let (_, bcols) = self.east_m.dim();
+        if self.step <= 1 || bcols == 0 {
+            return Vec::new();
+        }
+        let k = self.step as f64;
+        (0..self.grid_dim.1)
+            .map(|c| {
+                let cc = ((c as f64 + 0.5) / k - 0.5).clamp(0.0, (bcols - 1) as f64);
+                let c0 = cc.floor() as usize;
+                let c1 = (c0 + 1).min(bcols - 1);
+                (c0 as u32, c1 as u32, (cc - c0 as f64) as f32)
+            })
+            .collect()
+    }
+
+    /// [`FlowField::row_at`] with the columns' places found once ([`FlowField::column_weights`]
+    /// of this field), for callers that read many rows: the morph reads every row of every frame.
+    pub fn row_at_with(
+        &self,
+        r: usize,
+        columns: &[(u32, u32, f32)],
+        east: &mut Vec<f32>,
+        north: &mut Vec<f32>,
+    ) {
         let cols = self.grid_dim.1;
         east.resize(cols, 0.0);
         north.resize(cols, 0.0);
@@ -83,25 +113,25 @@ impl FlowField {
             north.fill(f32::NAN);
             return;
         }
+        assert_eq!(columns.len(), cols, "column weights of this field");
         let rr = ((r as f64 + 0.5) / k - 0.5).clamp(0.0, (brows - 1) as f64);
         let r0 = rr.floor() as usize;
         let r1 = (r0 + 1).min(brows - 1);
         let fr = (rr - r0 as f64) as f32;
-        let blend = |z: &Array2<f32>, c0: usize, c1: usize, fc: f32| -> f32 {
-            let pick = |rr: usize, cc: usize, w: f32| if w == 0.0 { 0.0 } else { z[[rr, cc]] * w };
-            pick(r0, c0, (1.0 - fr) * (1.0 - fc))
-                + pick(r0, c1, (1.0 - fr) * fc)
-                + pick(r1, c0, fr * (1.0 - fc))
-                + pick(r1, c1, fr * fc)
+        // A weight of 0 takes nothing, not even a NaN, as in `grid::sample_bilinear`.
+        let pick = |v: f32, w: f32| if w == 0.0 { 0.0 } else { v * w };
+        let blend = |z: &Array2<f32>, out: &mut [f32]| {
+            let (top, bottom) = (z.row(r0), z.row(r1));
+            for (o, &(c0, c1, fc)) in out.iter_mut().zip(columns) {
+                let (c0, c1) = (c0 as usize, c1 as usize);
+                *o = pick(top[c0], (1.0 - fr) * (1.0 - fc))
+                    + pick(top[c1], (1.0 - fr) * fc)
+                    + pick(bottom[c0], fr * (1.0 - fc))
+                    + pick(bottom[c1], fr * fc);
+            }
         };
-        for c in 0..cols {
-            let cc = ((c as f64 + 0.5) / k - 0.5).clamp(0.0, (bcols - 1) as f64);
-            let c0 = cc.floor() as usize;
-            let c1 = (c0 + 1).min(bcols - 1);
-            let fc = (cc - c0 as f64) as f32;
-            east[c] = blend(&self.east_m, c0, c1, fc);
-            north[c] = blend(&self.north_m, c0, c1, fc);
-        }
+        blend(&self.east_m, east);
+        blend(&self.north_m, north);
     }
 }
 
