@@ -464,42 +464,6 @@ fn correlation_range_cells(dh: &[f32], stable: &[bool], rows: usize, cols: usize
     32.0
 }
 
-/// Count of ones in the (2r+1)² window around each cell of a 0/1 mask (clipped at the edges), for
-/// windows of at most 255 cells. Sums run in wrapping byte arithmetic: every window's true count
-/// fits a byte, so differences of the wrapped running sums are exact.
-fn window_counts(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<u8> {
-    assert!(
-        (2 * r + 1) * (2 * r + 1) <= 255,
-        "window of at most 255 cells"
-    );
-    if rows == 0 || cols == 0 {
-        return Vec::new();
-    }
-    let mut h = vec![0u8; x.len()];
-    h.par_chunks_mut(cols)
-        .zip(x.par_chunks(cols))
-        .for_each(|(out, line)| {
-            let mut prefix = vec![0u8; cols + 1];
-            for c in 0..cols {
-                prefix[c + 1] = prefix[c].wrapping_add(line[c]);
-            }
-            for (c, o) in out.iter_mut().enumerate() {
-                let (lo, hi) = (c.saturating_sub(r), (c + r + 1).min(cols));
-                *o = prefix[hi].wrapping_sub(prefix[lo]);
-            }
-        });
-    let mut out = vec![0u8; x.len()];
-    out.par_chunks_mut(cols).enumerate().for_each(|(row, o)| {
-        let (lo, hi) = (row.saturating_sub(r), (row + r + 1).min(rows));
-        for line in h[lo * cols..hi * cols].chunks_exact(cols) {
-            for (a, &v) in o.iter_mut().zip(line) {
-                *a = a.wrapping_add(v);
-            }
-        }
-    });
-    out
-}
-
 /// True where a (2r+1)² window around the cell (clipped at the edges) holds a non-zero cell of
 /// `x`: a square dilation, done as a row pass then a column pass of running maxima.
 fn dilate(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<bool> {
@@ -583,8 +547,8 @@ fn select_stable(
     let buffer = (opts.buffer_m / g.cell_x_m()).round() as usize;
     let near_change: Vec<bool> = if found && buffer > 0 {
         let valid: Vec<u8> = dh.par_iter().map(|d| d.is_finite() as u8).collect();
-        let so = window_counts(&outside, rows, cols, 2);
-        let sv = window_counts(&valid, rows, cols, 2);
+        let so = crate::change::landform::window_counts(&outside, rows, cols, 2);
+        let sv = crate::change::landform::window_counts(&valid, rows, cols, 2);
         drop(valid);
         let core: Vec<u8> = (0..dh.len())
             .into_par_iter()
@@ -971,7 +935,7 @@ mod tests {
             })
             .collect();
         let wide: Vec<u32> = mask.iter().map(|&v| v as u32).collect();
-        let counts = window_counts(&mask, rows, cols, 2);
+        let counts = crate::change::landform::window_counts(&mask, rows, cols, 2);
         let expect = crate::change::landform::box_sum(&wide, rows, cols, 2);
         assert!(counts.iter().zip(&expect).all(|(&a, &b)| a as u32 == b));
         for r in [0, 1, 3, 9, 60] {

@@ -109,21 +109,62 @@ struct Delimit {
 fn kept_change(a: &[f32], b: &[f32], rows: usize, cols: usize, lod: f64) -> (Vec<bool>, Vec<bool>) {
     let lod = lod as f32;
     let n = rows * cols;
-    let mut detected = vec![0u32; n];
-    let mut valid = vec![0u32; n];
-    for k in 0..n {
-        let d = b[k] - a[k];
-        if d.is_finite() {
-            valid[k] = 1;
-            detected[k] = (d.abs() >= lod) as u32;
-        }
-    }
-    let sd = box_sum(&detected, rows, cols, 2);
-    let sv = box_sum(&valid, rows, cols, 2);
+    // One byte a cell (counts of a 5 x 5 window fit): at 4096² each mask is 16 MB, not 64.
+    let (detected, valid): (Vec<u8>, Vec<u8>) = (0..n)
+        .into_par_iter()
+        .map(|k| {
+            let d = b[k] - a[k];
+            if d.is_finite() {
+                ((d.abs() >= lod) as u8, 1)
+            } else {
+                (0, 0)
+            }
+        })
+        .unzip();
+    let sd = window_counts(&detected, rows, cols, 2);
+    let sv = window_counts(&valid, rows, cols, 2);
+    drop(valid);
     let kept = (0..n)
-        .map(|k| detected[k] == 1 && 2 * sd[k] >= sv[k])
+        .into_par_iter()
+        .map(|k| detected[k] == 1 && 2 * sd[k] as u32 >= sv[k] as u32)
         .collect();
-    (detected.iter().map(|&d| d == 1).collect(), kept)
+    (detected.par_iter().map(|&d| d == 1).collect(), kept)
+}
+
+/// Count of ones in the (2r+1)² window around each cell of a 0/1 mask (clipped at the edges), for
+/// windows of at most 255 cells. Sums run in wrapping byte arithmetic: every window's true count
+/// fits a byte, so differences of the wrapped running sums are exact.
+pub(crate) fn window_counts(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<u8> {
+    assert!(
+        (2 * r + 1) * (2 * r + 1) <= 255,
+        "window of at most 255 cells"
+    );
+    if rows == 0 || cols == 0 {
+        return Vec::new();
+    }
+    let mut h = vec![0u8; x.len()];
+    h.par_chunks_mut(cols)
+        .zip(x.par_chunks(cols))
+        .for_each(|(out, line)| {
+            let mut prefix = vec![0u8; cols + 1];
+            for c in 0..cols {
+                prefix[c + 1] = prefix[c].wrapping_add(line[c]);
+            }
+            for (c, o) in out.iter_mut().enumerate() {
+                let (lo, hi) = (c.saturating_sub(r), (c + r + 1).min(cols));
+                *o = prefix[hi].wrapping_sub(prefix[lo]);
+            }
+        });
+    let mut out = vec![0u8; x.len()];
+    out.par_chunks_mut(cols).enumerate().for_each(|(row, o)| {
+        let (lo, hi) = (row.saturating_sub(r), (row + r + 1).min(rows));
+        for line in h[lo * cols..hi * cols].chunks_exact(cols) {
+            for (a, &v) in o.iter_mut().zip(line) {
+                *a = a.wrapping_add(v);
+            }
+        }
+    });
+    out
 }
 
 /// Sum over the (2r+1) x (2r+1) window around each cell (clipped at the edges), two 1-D passes.
@@ -312,9 +353,11 @@ pub fn landforms(
     let (rows, cols) = a.dim();
     let cell_m = g.cell_x_m();
     let cell_area = g.cell_area_m2();
-    let sa: Vec<f32> = a.iter().copied().collect();
-    let sb: Vec<f32> = b.iter().copied().collect();
-    let (detected_cells, kept) = kept_change(&sa, &sb, rows, cols, pair.lod_m);
+    // The grids as they are (no 64 MB copies at 4096²); copied only if not in row-major layout.
+    let (la, lb) = (a.as_standard_layout(), b.as_standard_layout());
+    let sa: &[f32] = la.as_slice().expect("standard layout");
+    let sb: &[f32] = lb.as_slice().expect("standard layout");
+    let (detected_cells, kept) = kept_change(sa, sb, rows, cols, pair.lod_m);
     let d = Delimit {
         join_cells: (0.5 * join_m / cell_m).round().max(0.0) as usize,
         min_cells: (min_area_m2 / cell_area).ceil().max(1.0) as usize,
@@ -333,7 +376,7 @@ pub fn landforms(
             .map(|(&v, &r)| if r { f32::NAN } else { v })
             .collect()
     };
-    let plane = flow::base_plane(&ground(&sa), &ground(&sb), flow::RasterDims { rows, cols });
+    let plane = flow::base_plane(&ground(sa), &ground(sb), flow::RasterDims { rows, cols });
     let years = pair.interval_years;
     let (kind, from_id, to_id) = (pair.pair_kind, pair.from_id.clone(), pair.to_id.clone());
     let row = |id: String, detected: &[usize], m: &Result<flow::Dominant, String>| {
