@@ -517,6 +517,11 @@ fn stage_peak_resident_mib() -> Option<f64> {
 /// /proc/self/clear_refs, see proc(5)), keeping the peak so far for [`peak_resident_mib`];
 /// false where that is not possible.
 fn reset_peak_resident() -> bool {
+    // Only when the stage log is shown: a reset also lowers what `/usr/bin/time` and other
+    // wait4-based tools report as the process's peak.
+    if !log::log_enabled!(log::Level::Info) {
+        return false;
+    }
     let Some(mib) = stage_peak_resident_mib() else {
         return false;
     };
