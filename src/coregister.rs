@@ -465,7 +465,8 @@ fn correlation_range_cells(dh: &[f32], stable: &[bool], rows: usize, cols: usize
 }
 
 /// True where a (2r+1)² window around the cell (clipped at the edges) holds a non-zero cell of
-/// `x`: a square dilation, done as a row pass then a column pass of running maxima.
+/// `x`: a square dilation, done as a row pass then a column pass, each marking the cells within
+/// `r` of a set cell.
 fn dilate(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<bool> {
     if rows == 0 || cols == 0 {
         return Vec::new();
