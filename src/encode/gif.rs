@@ -564,6 +564,60 @@ mod tests {
     use super::*;
 
     #[test]
+    fn batches_on_many_threads_write_the_bytes_of_one_frame_at_a_time() {
+        // Check: analytic — mapping and coding frames side by side in batches must not change a
+        // byte: 21 moving-gradient frames (more than one batch on 3 threads, with an unchanged
+        // frame among them) written all at once on 3 threads equal frame by frame on 1 thread.
+        let frames: Vec<Frame> = (0..21u32)
+            .map(|i| {
+                let mut f = Frame::new(64, 40);
+                let shift = if i == 7 { 6 } else { i };
+                for (k, p) in f.rgba.chunks_exact_mut(4).enumerate() {
+                    let (x, y) = ((k % 64) as u32, (k / 64) as u32);
+                    p[0] = ((x * 4 + shift * 9) % 256) as u8;
+                    p[1] = ((y * 6 + shift * 3) % 256) as u8;
+                    p[2] = (((x + y) * 2) % 256) as u8;
+                }
+                f
+            })
+            .collect();
+        let delays = vec![4u16; frames.len()];
+        let dir = std::env::temp_dir().join(format!("dunereel-gif-batch-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let write = |name: &str, threads: usize, one_by_one: bool| {
+            let path = dir.join(name);
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap();
+            pool.install(|| {
+                let mut builder = PaletteBuilder::new();
+                for f in &frames {
+                    builder.add_rgba(&f.rgba, 1);
+                }
+                let palette = builder.build(256);
+                let opts = GifOptions::default();
+                let mut w = GifWriter::create(&path, 64, 40, &palette, &opts, true).unwrap();
+                if one_by_one {
+                    for (f, &d) in frames.iter().zip(&delays) {
+                        w.write_frame(f, d).unwrap();
+                    }
+                } else {
+                    let all: Vec<&Frame> = frames.iter().collect();
+                    w.write_frames(&all, &delays).unwrap();
+                }
+                w.finish().unwrap();
+            });
+            std::fs::read(&path).unwrap()
+        };
+        let single = write("single.gif", 1, true);
+        let batched = write("batched.gif", 3, false);
+        std::fs::remove_dir_all(&dir).ok();
+        assert!(single.len() > 1000);
+        assert!(single == batched, "batched GIF differs from frame-by-frame");
+    }
+
+    #[test]
     fn delays_follow_the_frame_rate() {
         // Check: GIF89a (CompuServe 1990) delays are in 1/100 s — 25 fps = 4 cs exactly; REFERENCES.md §10.
         assert_eq!(delays_cs(5, 25.0, 0, |_| false), vec![4; 5]);
