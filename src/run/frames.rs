@@ -194,8 +194,10 @@ impl<'a> Painter<'a> {
             north_angle_rad: view.north_px().map(|(dx, dy)| dx.atan2(-dy)),
             metres_per_px: Some(view.metres_per_px()),
             scale_unit: (unit.metres(), unit.symbol().into()),
+            // The chart's heading is the figure's short name, so the range of the surveys' values
+            // keeps its line beside the plot; the crest label above names the reference.
             inset: Some(InsetChart {
-                title: name,
+                title: crest_short_name(job),
                 unit: unit.symbol().into(),
                 survey_points: self.survey_points.clone(),
                 current: (timeline::decimal_year(t.when), shown),
@@ -242,6 +244,15 @@ pub(super) fn shown_crest_m(job: &Job, elevation_m: f64) -> f64 {
     match job.labels.crest_shows {
         CrestFigure::Elevation => elevation_m,
         CrestFigure::HeightAboveReference => elevation_m - job.change.reference_elevation_m,
+    }
+}
+
+/// The short name of the shown crest figure ("Crest elevation", "Crest height"), for the inset
+/// chart's heading.
+pub(super) fn crest_short_name(job: &Job) -> String {
+    match job.labels.crest_shows {
+        CrestFigure::Elevation => "Crest elevation".into(),
+        CrestFigure::HeightAboveReference => "Crest height".into(),
     }
 }
 
