@@ -241,40 +241,67 @@ fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
     series::annotate_surveys(job, &mut record, &registrations, &reprojections);
 
     // Migration comes from the landforms that changed beyond the LoD, not the whole relief; the
-    // morph needs the displacement field of every consecutive pair. The two are independent, so
-    // they run side by side, and so do the pairs within each (results come back in pair order,
-    // so the output does not depend on the thread count).
-    let (landform_warnings, estimated) = rayon::join(
-        || match share {
-            // A part's frames do not show migration; the record is written by `assemble`.
-            FrameShare::Part(_) => Vec::new(),
-            FrameShare::All | FrameShare::Assemble => {
-                series::measure_landforms(job, &stack, &mut record, FLOW_MAX_SIDE)
-            }
-        },
-        || {
-            // A part estimates only the fields of the intervals its in-between frames fall in.
-            let needed: Vec<bool> = match &share {
-                FrameShare::All => vec![true; stack.len() - 1],
-                FrameShare::Assemble => vec![false; stack.len() - 1],
-                FrameShare::Part(spec) => {
-                    let mut needed = vec![false; stack.len() - 1];
-                    for t in &timeline.frames[spec.frames(timeline.frames.len())] {
-                        if !t.kind.is_measured() {
-                            needed[t.from] = true;
-                        }
-                    }
-                    for (i, need) in needed.iter_mut().enumerate() {
-                        *need |= parts::stores_field(&timeline, *spec, i);
-                    }
-                    needed
+    // morph needs the displacement field of every consecutive pair. All of them are independent:
+    // one queue takes the fields, then the pairs' landforms, one item per thread at a time (so at
+    // 4096² no more than two items' scratch arrays are held); results come back in order, so the
+    // output does not depend on the thread count.
+    // A part estimates only the fields of the intervals its in-between frames fall in.
+    let needed: Vec<bool> = match &share {
+        FrameShare::All => vec![true; stack.len() - 1],
+        FrameShare::Assemble => vec![false; stack.len() - 1],
+        FrameShare::Part(spec) => {
+            let mut needed = vec![false; stack.len() - 1];
+            for t in &timeline.frames[spec.frames(timeline.frames.len())] {
+                if !t.kind.is_measured() {
+                    needed[t.from] = true;
                 }
-            };
-            crate::waves::map_in_waves(stack.len() - 1, |i| {
-                needed[i].then(|| pair_field(job, &stack, i))
-            })
-        },
-    );
+            }
+            for (i, need) in needed.iter_mut().enumerate() {
+                *need |= parts::stores_field(&timeline, *spec, i);
+            }
+            needed
+        }
+    };
+    // A part's frames do not show migration; the record is written by `assemble`.
+    let measure_landforms = !matches!(share, FrameShare::Part(_));
+    enum Item {
+        Field(Option<Box<FlowResult>>),
+        Landforms(Vec<change::LandformRecord>),
+    }
+    let n_fields = stack.len() - 1;
+    let pairs: Vec<std::sync::Mutex<&mut change::PairRecord>> = if measure_landforms {
+        record.pairs.iter_mut().map(std::sync::Mutex::new).collect()
+    } else {
+        Vec::new()
+    };
+    let items = crate::waves::map_in_waves(n_fields + pairs.len(), |k| {
+        if k < n_fields {
+            Item::Field(needed[k].then(|| Box::new(pair_field(job, &stack, k))))
+        } else {
+            let mut pair = pairs[k - n_fields]
+                .lock()
+                .unwrap_or_else(|p| p.into_inner());
+            Item::Landforms(series::pair_landforms(
+                job,
+                &stack,
+                &mut pair,
+                FLOW_MAX_SIDE,
+            ))
+        }
+    });
+    drop(pairs);
+    let (mut estimated, mut found) = (Vec::new(), Vec::new());
+    for item in items {
+        match item {
+            Item::Field(f) => estimated.push(f.map(|f| *f)),
+            Item::Landforms(l) => found.push(l),
+        }
+    }
+    let landform_warnings = if measure_landforms {
+        series::gather_landforms(&mut record, found)
+    } else {
+        Vec::new()
+    };
     warnings.extend(landform_warnings);
     record.warnings.extend(warnings.iter().cloned());
     let mut prepared = Prepared {

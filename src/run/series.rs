@@ -7,7 +7,7 @@ use std::path::Path;
 use ndarray::Array2;
 
 use crate::align::AlignedStack;
-use crate::change::{self, ChangeRecord, LandformRecord};
+use crate::change::{self, ChangeRecord, LandformRecord, PairRecord};
 use crate::coregister::{self, Registration, StableSource};
 use crate::error::{Error, Result};
 use crate::geotiff;
@@ -170,25 +170,29 @@ pub(crate) fn relative_path(path: &Path, base: &Path) -> String {
 
 /// Finds the moving landforms of every pair and fills the landform table and the pairs'
 /// site-wide migration; returns the warnings.
-pub(super) fn measure_landforms(
+/// The landforms of one pair and their migration (fills the pair's migration columns).
+pub(super) fn pair_landforms(
     job: &Job,
     stack: &AlignedStack,
-    record: &mut ChangeRecord,
+    pair: &mut PairRecord,
     max_side: usize,
+) -> Vec<LandformRecord> {
+    change::landforms(
+        stack,
+        pair,
+        &job.flow,
+        job.change.landform_join_m,
+        job.change.landform_min_area_m2,
+        max_side,
+    )
+}
+
+/// Puts every pair's landforms (from [`pair_landforms`], in pair order) into the record; returns
+/// a warning for each pair whose migration could not be measured.
+pub(super) fn gather_landforms(
+    record: &mut ChangeRecord,
+    found: Vec<Vec<LandformRecord>>,
 ) -> Vec<String> {
-    // Pairs are independent: measured side by side, gathered in pair order (thread-count free).
-    // In waves of one pair per thread, so scratch memory is bounded by threads, not pairs.
-    let found: Vec<Vec<LandformRecord>> =
-        crate::waves::map_mut_in_waves(&mut record.pairs, |pair| {
-            change::landforms(
-                stack,
-                pair,
-                &job.flow,
-                job.change.landform_join_m,
-                job.change.landform_min_area_m2,
-                max_side,
-            )
-        });
     let mut warnings = Vec::new();
     let mut rows = Vec::new();
     for (pair, found) in record.pairs.iter().zip(found) {
