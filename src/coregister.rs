@@ -464,66 +464,6 @@ fn correlation_range_cells(dh: &[f32], stable: &[bool], rows: usize, cols: usize
     32.0
 }
 
-/// True where a (2r+1)² window around the cell (clipped at the edges) holds a non-zero cell of
-/// `x`: a square dilation, done as a row pass then a column pass, each marking the cells within
-/// `r` of a set cell.
-fn dilate(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<bool> {
-    if rows == 0 || cols == 0 {
-        return Vec::new();
-    }
-    // Row pass: distance to the nearest set cell in the row, looked up both ways.
-    let mut h = vec![0u8; x.len()];
-    h.par_chunks_mut(cols)
-        .zip(x.par_chunks(cols))
-        .for_each(|(out, line)| {
-            let mut last = None::<usize>;
-            for c in 0..cols {
-                if line[c] != 0 {
-                    last = Some(c);
-                }
-                out[c] = last.is_some_and(|l| c - l <= r) as u8;
-            }
-            let mut next = None::<usize>;
-            for c in (0..cols).rev() {
-                if line[c] != 0 {
-                    next = Some(c);
-                }
-                out[c] |= next.is_some_and(|n| n - c <= r) as u8;
-            }
-        });
-    // Column pass, the same both ways: rows in order, each column remembering its last set row
-    // (whole rows at a time, so the loops run over contiguous memory).
-    let mut out = vec![false; x.len()];
-    let far = usize::MAX / 2;
-    let mut last = vec![far; cols];
-    for row in 0..rows {
-        let (line, o) = (
-            &h[row * cols..(row + 1) * cols],
-            &mut out[row * cols..(row + 1) * cols],
-        );
-        for c in 0..cols {
-            if line[c] != 0 {
-                last[c] = row;
-            }
-            o[c] = last[c] != far && row - last[c] <= r;
-        }
-    }
-    let mut next = vec![far; cols];
-    for row in (0..rows).rev() {
-        let (line, o) = (
-            &h[row * cols..(row + 1) * cols],
-            &mut out[row * cols..(row + 1) * cols],
-        );
-        for c in 0..cols {
-            if line[c] != 0 {
-                next[c] = row;
-            }
-            o[c] |= next[c] != far && next[c] - row <= r;
-        }
-    }
-    out
-}
-
 /// Marks as stable the candidate cells whose `dh` lies within `band` of `med`; found ground also
 /// keeps `buffer_m` away from patches of change beyond the band (a majority of a 5 x 5
 /// neighbourhood, so single noisy cells do not punch holes).
@@ -556,7 +496,7 @@ fn select_stable(
             .map(|k| (outside[k] == 1 && 2 * so[k] >= sv[k]) as u8)
             .collect();
         drop((so, sv));
-        dilate(&core, rows, cols, buffer)
+        crate::change::landform::dilate(&core, rows, cols, buffer)
     } else {
         vec![false; dh.len()]
     };
@@ -920,31 +860,6 @@ pub fn mask_from_grid(mask: &crate::grid::Grid, g: &GridGeometry) -> Array2<bool
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn byte_window_counts_and_dilation_match_the_wide_box_sum() {
-        // Check: analytic — the byte versions equal the u32 box sum of `change::landform` (and
-        // "box sum > 0") on a seeded random mask, edges included.
-        let (rows, cols) = (37, 53);
-        let mut state = 12345u64;
-        let mask: Vec<u8> = (0..rows * cols)
-            .map(|_| {
-                state = state
-                    .wrapping_mul(6364136223846793005)
-                    .wrapping_add(1442695040888963407);
-                (state >> 33).is_multiple_of(7) as u8
-            })
-            .collect();
-        let wide: Vec<u32> = mask.iter().map(|&v| v as u32).collect();
-        let counts = crate::change::landform::window_counts(&mask, rows, cols, 2);
-        let expect = crate::change::landform::box_sum(&wide, rows, cols, 2);
-        assert!(counts.iter().zip(&expect).all(|(&a, &b)| a as u32 == b));
-        for r in [0, 1, 3, 9, 60] {
-            let d = dilate(&mask, rows, cols, r);
-            let e = crate::change::landform::box_sum(&wide, rows, cols, r);
-            assert!(d.iter().zip(&e).all(|(&a, &b)| a == (b > 0)), "radius {r}");
-        }
-    }
 
     #[test]
     fn polygon_even_odd() {

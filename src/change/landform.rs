@@ -167,70 +167,71 @@ pub(crate) fn window_counts(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec
     out
 }
 
-/// Sum over the (2r+1) x (2r+1) window around each cell (clipped at the edges), two 1-D passes.
-pub(crate) fn box_sum(x: &[u32], rows: usize, cols: usize, r: usize) -> Vec<u32> {
+/// True where a (2r+1)² window around the cell (clipped at the edges) holds a non-zero cell of
+/// `x`: a square dilation, done as a row pass then a column pass, each marking the cells within
+/// `r` of a set cell.
+pub(crate) fn dilate(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<bool> {
     if rows == 0 || cols == 0 {
         return Vec::new();
     }
-    // Row sums over the window, each row on its own (rows side by side).
-    let mut h = vec![0u32; x.len()];
+    // Row pass: distance to the nearest set cell in the row, looked up both ways.
+    let mut h = vec![0u8; x.len()];
     h.par_chunks_mut(cols)
         .zip(x.par_chunks(cols))
         .for_each(|(out, line)| {
-            let mut prefix = vec![0u32; cols + 1];
+            let mut last = None::<usize>;
             for c in 0..cols {
-                prefix[c + 1] = prefix[c] + line[c];
+                if line[c] != 0 {
+                    last = Some(c);
+                }
+                out[c] = last.is_some_and(|l| c - l <= r) as u8;
             }
-            for (c, o) in out.iter_mut().enumerate() {
-                let lo = c.saturating_sub(r);
-                let hi = (c + r + 1).min(cols);
-                *o = prefix[hi] - prefix[lo];
+            let mut next = None::<usize>;
+            for c in (0..cols).rev() {
+                if line[c] != 0 {
+                    next = Some(c);
+                }
+                out[c] |= next.is_some_and(|n| n - c <= r) as u8;
             }
         });
-    // Column sums over the window, in bands of rows side by side: each band starts from the sum
-    // of its first window and slides down. Whole numbers, so the order of sums does not matter.
-    const BAND: usize = 64;
-    let mut out = vec![0u32; x.len()];
-    out.par_chunks_mut(BAND * cols)
-        .enumerate()
-        .for_each(|(band, chunk)| {
-            let r0 = band * BAND;
-            let mut acc = vec![0u32; cols];
-            for row in r0.saturating_sub(r)..(r0 + r + 1).min(rows) {
-                for (a, &v) in acc.iter_mut().zip(&h[row * cols..(row + 1) * cols]) {
-                    *a += v;
-                }
+    // Column pass, the same both ways: rows in order, each column remembering its last set row
+    // (whole rows at a time, so the loops run over contiguous memory).
+    let mut out = vec![false; x.len()];
+    let far = usize::MAX / 2;
+    let mut last = vec![far; cols];
+    for row in 0..rows {
+        let (line, o) = (
+            &h[row * cols..(row + 1) * cols],
+            &mut out[row * cols..(row + 1) * cols],
+        );
+        for c in 0..cols {
+            if line[c] != 0 {
+                last[c] = row;
             }
-            for (k, orow) in chunk.chunks_exact_mut(cols).enumerate() {
-                let row = r0 + k;
-                if k > 0 {
-                    if row + r < rows {
-                        let add = &h[(row + r) * cols..(row + r + 1) * cols];
-                        for (a, &v) in acc.iter_mut().zip(add) {
-                            *a += v;
-                        }
-                    }
-                    if row > r {
-                        let sub = &h[(row - r - 1) * cols..(row - r) * cols];
-                        for (a, &v) in acc.iter_mut().zip(sub) {
-                            *a -= v;
-                        }
-                    }
-                }
-                orow.copy_from_slice(&acc);
+            o[c] = last[c] != far && row - last[c] <= r;
+        }
+    }
+    let mut next = vec![far; cols];
+    for row in (0..rows).rev() {
+        let (line, o) = (
+            &h[row * cols..(row + 1) * cols],
+            &mut out[row * cols..(row + 1) * cols],
+        );
+        for c in 0..cols {
+            if line[c] != 0 {
+                next[c] = row;
             }
-        });
+            o[c] |= next[c] != far && next[c] - row <= r;
+        }
+    }
     out
 }
 
 /// Regions of kept change, grown by `join_cells`, largest detected area first; `detected` is the
 /// change before speckle removal, counted inside each region.
 fn regions(detected: &[bool], kept: &[bool], rows: usize, cols: usize, d: &Delimit) -> Vec<Region> {
-    let as_u32: Vec<u32> = kept.iter().map(|&k| k as u32).collect();
-    let grown: Vec<bool> = box_sum(&as_u32, rows, cols, d.join_cells)
-        .into_iter()
-        .map(|s| s > 0)
-        .collect();
+    let as_bytes: Vec<u8> = kept.iter().map(|&k| k as u8).collect();
+    let grown = dilate(&as_bytes, rows, cols, d.join_cells);
     let mut label = vec![0u32; rows * cols];
     let mut out = Vec::new();
     let mut queue = Vec::new();
@@ -449,57 +450,70 @@ pub fn landforms(
 mod tests {
     use super::*;
 
-    #[test]
-    fn box_sums_match_brute_force_across_bands() {
-        // Check: analytic — a window sum equals the brute-force sum, for windows smaller and
-        // larger than the 64-row bands the sums are computed in.
-        let (rows, cols) = (150, 7);
-        let x: Vec<u32> = (0..rows * cols).map(|i| ((i * 37) % 11) as u32).collect();
-        for r in [0, 1, 3, 70, 200] {
-            let s = box_sum(&x, rows, cols, r);
-            for row in 0..rows {
-                for c in 0..cols {
-                    let mut want = 0;
-                    for rr in row.saturating_sub(r)..(row + r + 1).min(rows) {
-                        for cc in c.saturating_sub(r)..(c + r + 1).min(cols) {
-                            want += x[rr * cols + cc];
-                        }
+    /// Count of ones in the clipped (2r+1)² window around each cell, cell by cell.
+    fn brute_counts(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<u32> {
+        let mut out = vec![0u32; rows * cols];
+        for row in 0..rows {
+            for c in 0..cols {
+                for rr in row.saturating_sub(r)..(row + r + 1).min(rows) {
+                    for cc in c.saturating_sub(r)..(c + r + 1).min(cols) {
+                        out[row * cols + c] += x[rr * cols + cc] as u32;
                     }
-                    assert_eq!(s[row * cols + c], want, "r {r} at {row},{c}");
                 }
             }
         }
+        out
+    }
+
+    /// A seeded 0/1 mask with about one cell in `one_in` set.
+    fn mask(rows: usize, cols: usize, one_in: u64) -> Vec<u8> {
+        let mut state = 12345u64;
+        (0..rows * cols)
+            .map(|_| {
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                (state >> 33).is_multiple_of(one_in) as u8
+            })
+            .collect()
     }
 
     #[test]
-    fn box_sums_clip_at_edges() {
-        let x = vec![1u32; 12];
-        let s = box_sum(&x, 3, 4, 1);
+    fn window_counts_match_a_direct_count() {
+        // Check: analytic — byte window counts equal the count cell by cell, edges included,
+        // also where the wrapped running sums of a long row pass 255 many times.
+        for (rows, cols, one_in) in [(37, 53, 7), (150, 7, 2), (9, 600, 1)] {
+            let x = mask(rows, cols, one_in);
+            for r in [0, 1, 2, 7] {
+                let fast = window_counts(&x, rows, cols, r);
+                let want = brute_counts(&x, rows, cols, r);
+                assert!(
+                    fast.iter().zip(&want).all(|(&a, &b)| a as u32 == b),
+                    "{rows}x{cols}, r {r}"
+                );
+            }
+        }
         // Check: analytic — a corner of a 3x4 grid of ones sees 2x2 cells, an inner cell 3x3
-        assert_eq!(s[0], 4);
-        assert_eq!(s[5], 9);
+        let ones = window_counts(&[1u8; 12], 3, 4, 1);
+        assert_eq!((ones[0], ones[5]), (4, 9));
     }
 
     #[test]
-    fn box_sums_match_a_direct_count() {
-        let (rows, cols) = (37, 23);
-        let x: Vec<u32> = (0..rows * cols)
-            .map(|k| ((k * 7919) % 5 == 0) as u32)
-            .collect();
-        for r in [1usize, 2, 5, 30] {
-            let fast = box_sum(&x, rows, cols, r);
-            for row in 0..rows {
-                for col in 0..cols {
-                    let mut n = 0;
-                    for rr in row.saturating_sub(r)..(row + r + 1).min(rows) {
-                        for cc in col.saturating_sub(r)..(col + r + 1).min(cols) {
-                            n += x[rr * cols + cc];
-                        }
-                    }
-                    assert_eq!(fast[row * cols + col], n, "r {r} at ({row}, {col})");
-                }
+    fn dilation_marks_the_cells_whose_window_holds_a_set_cell() {
+        // Check: analytic — the square dilation is "window count > 0", for radii smaller and
+        // larger than the grid.
+        for (rows, cols, one_in) in [(37, 53, 7), (150, 7, 40), (20, 30, 500)] {
+            let x = mask(rows, cols, one_in);
+            for r in [0, 1, 3, 9, 60, 200] {
+                let fast = dilate(&x, rows, cols, r);
+                let want = brute_counts(&x, rows, cols, r);
+                assert!(
+                    fast.iter().zip(&want).all(|(&a, &b)| a == (b > 0)),
+                    "{rows}x{cols}, r {r}"
+                );
             }
         }
+        assert!(dilate(&[0u8; 6], 2, 3, 5).iter().all(|&v| !v));
     }
 
     #[test]
