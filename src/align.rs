@@ -8,12 +8,14 @@
 //! Invariant, true by construction because only [`align`] builds an `AlignedStack`: every grid in the
 //! stack shares one geometry, and surveys are in strictly increasing date order.
 
-use ndarray::Array2;
+use chrono::NaiveDate;
+use ndarray::{Array2, ArrayView2, ArrayViewMut2};
 
+use crate::elevations::Elevations;
 use crate::error::{Error, Result};
 use crate::grid::{Grid, GridGeometry};
 use crate::reproject::Reprojection;
-use crate::survey::Survey;
+use crate::survey::{GridSource, Survey};
 
 /// A rectangle in map coordinates (the CRS's horizontal unit) that limits the analysis.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -28,11 +30,28 @@ pub struct AreaOfInterest {
     pub north: f64,
 }
 
+/// One survey of a stack: what it is and where it came from. Its elevations on the analysis grid
+/// are [`AlignedStack::z`].
+#[derive(Debug, Clone)]
+pub struct StackedSurvey {
+    /// Short identifier, unique within the job.
+    pub id: String,
+    /// Survey date.
+    pub date: NaiveDate,
+    /// Optional human label.
+    pub label: Option<String>,
+    /// Vertical uncertainty (one standard deviation) in metres, if stated.
+    pub sigma_z_m: Option<f64>,
+    /// Where the grid came from.
+    pub source: GridSource,
+}
+
 /// Surveys on one shared geometry, sorted by date.
 #[derive(Debug, Clone)]
 pub struct AlignedStack {
     geometry: GridGeometry,
-    surveys: Vec<Survey>,
+    surveys: Vec<StackedSurvey>,
+    elevations: Elevations,
 }
 
 impl AlignedStack {
@@ -40,8 +59,8 @@ impl AlignedStack {
     pub fn geometry(&self) -> &GridGeometry {
         &self.geometry
     }
-    /// The surveys, oldest first; each `grid.geometry` equals [`AlignedStack::geometry`].
-    pub fn surveys(&self) -> &[Survey] {
+    /// The surveys, oldest first.
+    pub fn surveys(&self) -> &[StackedSurvey] {
         &self.surveys
     }
     /// Number of surveys.
@@ -52,14 +71,21 @@ impl AlignedStack {
     pub fn is_empty(&self) -> bool {
         self.surveys.is_empty()
     }
-    /// Elevations of survey `i` on the analysis grid.
-    pub fn z(&self, i: usize) -> &Array2<f32> {
-        &self.surveys[i].grid.z
+    /// Elevations of survey `i` on the analysis grid (NaN for nodata).
+    pub fn z(&self, i: usize) -> ArrayView2<'_, f32> {
+        self.elevations.z(i)
+    }
+    /// Survey `i` as a grid on the analysis geometry (a copy of its elevations).
+    pub fn grid(&self, i: usize) -> Grid {
+        Grid {
+            geometry: self.geometry.clone(),
+            z: self.z(i).to_owned(),
+        }
     }
     /// The elevations of survey `i`, to correct in place (used by `coregister`); the geometry and
     /// the date order stay as they were.
-    pub(crate) fn z_mut(&mut self, i: usize) -> &mut Array2<f32> {
-        &mut self.surveys[i].grid.z
+    pub(crate) fn z_mut(&mut self, i: usize) -> ArrayViewMut2<'_, f32> {
+        self.elevations.z_mut(i)
     }
     /// Replaces the elevations of survey `i` with a corrected surface on the same grid (used by
     /// `coregister`); the geometry and the date order stay as they were.
@@ -72,11 +98,28 @@ impl AlignedStack {
             (self.geometry.rows, self.geometry.cols),
             "a corrected surface keeps the analysis grid"
         );
-        self.surveys[i].grid.z = z;
+        self.elevations.z_mut(i).assign(&z);
     }
     /// Smallest and largest finite elevation over all surveys (for a colour scale fixed across frames).
     pub fn elevation_range(&self) -> Option<(f32, f32)> {
-        crate::grid::finite_range(self.surveys.iter().flat_map(|s| s.grid.z.iter().copied()))
+        let mut range: Option<(f32, f32)> = None;
+        for i in 0..self.len() {
+            if let Some((lo, hi)) = crate::grid::finite_range(self.z(i).iter().copied()) {
+                range = Some(range.map_or((lo, hi), |(a, b)| (a.min(lo), b.max(hi))));
+            }
+            self.let_go();
+        }
+        range
+    }
+    /// Hands back the memory of grids read so far when the stack lives in a scratch file (see
+    /// `crate::elevations`); values never change. Work that visits the surveys one pair at a time
+    /// calls it after each pair, so a long series of large grids does not stay resident.
+    pub fn let_go(&self) {
+        self.elevations.let_go();
+    }
+    /// True when the elevations live in a mapped scratch file rather than in memory.
+    pub fn is_in_scratch_file(&self) -> bool {
+        self.elevations.is_mapped()
     }
 }
 
@@ -103,34 +146,85 @@ pub fn align_with_report(
     let first = surveys
         .first()
         .ok_or_else(|| Error::input(std::path::Path::new("(job)"), "no surveys to align"))?;
-    let base = match aoi {
-        Some(a) => crop_geometry(&first.grid.geometry, &a).ok_or_else(|| {
-            let (w, s, e, n) = first.grid.geometry.extent();
-            Error::input(
-                &first.source.path,
-                format!(
-                    "the area of interest (west {}, south {}, east {}, north {}) does not overlap this \
-                     grid (west {w}, south {s}, east {e}, north {n}); correct area_of_interest in the job",
-                    a.west, a.south, a.east, a.north
-                ),
-            )
-        })?,
-        None => first.grid.geometry.clone(),
-    };
-    for pair in surveys.windows(2) {
-        if pair[1].date <= pair[0].date {
+    let mut builder = StackBuilder::new(first, surveys.len(), aoi)?;
+    for s in surveys {
+        builder.push(s)?;
+    }
+    builder.finish()
+}
+
+/// Builds an [`AlignedStack`] one survey at a time, so a run need not hold every survey as read
+/// and every survey as aligned at once: read a survey, push it, drop it.
+#[derive(Debug)]
+pub struct StackBuilder {
+    base: GridGeometry,
+    surveys: Vec<StackedSurvey>,
+    reports: Vec<Option<Reprojection>>,
+    elevations: Elevations,
+}
+
+impl StackBuilder {
+    /// Room for `count` surveys on the analysis grid: `first`'s grid, cropped to `aoi` when given.
+    ///
+    /// # Errors
+    /// `Error::Input` when the area of interest misses the first grid, or the scratch file for a
+    /// large stack cannot be made (see `crate::elevations`).
+    pub fn new(first: &Survey, count: usize, aoi: Option<AreaOfInterest>) -> Result<Self> {
+        let base = match aoi {
+            Some(a) => crop_geometry(&first.grid.geometry, &a).ok_or_else(|| {
+                let (w, s, e, n) = first.grid.geometry.extent();
+                Error::input(
+                    &first.source.path,
+                    format!(
+                        "the area of interest (west {}, south {}, east {}, north {}) does not overlap this \
+                         grid (west {w}, south {s}, east {e}, north {n}); correct area_of_interest in the job",
+                        a.west, a.south, a.east, a.north
+                    ),
+                )
+            })?,
+            None => first.grid.geometry.clone(),
+        };
+        let elevations = Elevations::new(count, base.rows, base.cols)
+            .map_err(|e| Error::input(&first.source.path, e.to_string()))?;
+        Ok(StackBuilder {
+            base,
+            surveys: Vec::with_capacity(count),
+            reports: Vec::with_capacity(count),
+            elevations,
+        })
+    }
+
+    /// The analysis grid's geometry.
+    pub fn geometry(&self) -> &GridGeometry {
+        &self.base
+    }
+
+    /// Brings the next survey onto the analysis grid.
+    ///
+    /// # Errors
+    /// `Error::Input` when it is not dated after the survey before it, its CRS or units differ in
+    /// a way that cannot be reconciled, it does not overlap the analysis grid anywhere with data, or
+    /// more surveys are pushed than [`StackBuilder::new`] made room for.
+    pub fn push(&mut self, s: Survey) -> Result<()> {
+        let i = self.surveys.len();
+        if i == self.elevations.len() {
             return Err(Error::input(
-                &pair[1].source.path,
-                format!(
-                    "survey dated {} does not come after the survey before it ({}); list surveys in date order, one per date",
-                    pair[1].date, pair[0].date
-                ),
+                &s.source.path,
+                format!("the stack was made for {i} surveys; this one is one too many"),
             ));
         }
-    }
-    let mut out = Vec::with_capacity(surveys.len());
-    let mut reports = Vec::with_capacity(surveys.len());
-    for s in surveys {
+        if let Some(before) = self.surveys.last() {
+            if s.date <= before.date {
+                return Err(Error::input(
+                    &s.source.path,
+                    format!(
+                        "survey dated {} does not come after the survey before it ({}); list surveys in date order, one per date",
+                        s.date, before.date
+                    ),
+                ));
+            }
+        }
+        let base = &self.base;
         let g = &s.grid.geometry;
         if g.epsg.is_none() != base.epsg.is_none() {
             let (which, other) = if g.epsg.is_none() {
@@ -146,8 +240,8 @@ pub fn align_with_report(
                 ),
             ));
         }
-        if g.epsg != base.epsg {
-            let (z, report) = crate::reproject::reproject(&s.grid, &base)
+        let report = if g.epsg != base.epsg {
+            let (z, report) = crate::reproject::reproject(&s.grid, base)
                 .map_err(|m| Error::input(&s.source.path, m))?;
             if z.iter().all(|v| v.is_nan()) {
                 return Err(Error::input(
@@ -159,56 +253,78 @@ pub fn align_with_report(
                     ),
                 ));
             }
-            out.push(Survey {
-                grid: Grid {
-                    geometry: base.clone(),
-                    z,
-                },
-                ..s
-            });
-            reports.push(Some(report));
-            continue;
-        }
-        if g.horizontal_unit != base.horizontal_unit {
+            self.elevations.z_mut(i).assign(&z);
+            Some(report)
+        } else {
+            if g.horizontal_unit != base.horizontal_unit {
+                return Err(Error::input(
+                    &s.source.path,
+                    format!(
+                        "horizontal unit {} differs from the first survey's {}; reproject or rescale this grid first",
+                        g.horizontal_unit.symbol(),
+                        base.horizontal_unit.symbol()
+                    ),
+                ));
+            }
+            let mut out = self.elevations.z_mut(i);
+            resample_into(&s.grid, base, out.view_mut());
+            if out.iter().all(|v| v.is_nan()) {
+                return Err(Error::input(
+                    &s.source.path,
+                    "this grid does not overlap the analysis grid (the first survey, cropped to the area of \
+                     interest) anywhere with data; check its georeference and CRS",
+                ));
+            }
+            None
+        };
+        self.elevations.let_go();
+        self.reports.push(report);
+        self.surveys.push(StackedSurvey {
+            id: s.id,
+            date: s.date,
+            label: s.label,
+            sigma_z_m: s.sigma_z_m,
+            source: s.source,
+        });
+        Ok(())
+    }
+
+    /// The stack, and per survey how it was reprojected (None: already in the analysis grid's CRS).
+    ///
+    /// # Errors
+    /// `Error::Input` when fewer than two surveys were pushed, or fewer than room was made for.
+    pub fn finish(self) -> Result<(AlignedStack, Vec<Option<Reprojection>>)> {
+        let path = |s: Option<&StackedSurvey>| {
+            s.map_or_else(
+                || std::path::PathBuf::from("(job)"),
+                |s| s.source.path.clone(),
+            )
+        };
+        if self.surveys.len() < 2 {
             return Err(Error::input(
-                &s.source.path,
+                &path(self.surveys.first()),
+                "at least two surveys are needed to show change",
+            ));
+        }
+        if self.surveys.len() != self.elevations.len() {
+            return Err(Error::input(
+                &path(self.surveys.last()),
                 format!(
-                    "horizontal unit {} differs from the first survey's {}; reproject or rescale this grid first",
-                    g.horizontal_unit.symbol(),
-                    base.horizontal_unit.symbol()
+                    "room was made for {} surveys but {} were given",
+                    self.elevations.len(),
+                    self.surveys.len()
                 ),
             ));
         }
-        let z = resample(&s.grid, &base);
-        if z.iter().all(|v| v.is_nan()) {
-            return Err(Error::input(
-                &s.source.path,
-                "this grid does not overlap the analysis grid (the first survey, cropped to the area of \
-                 interest) anywhere with data; check its georeference and CRS",
-            ));
-        }
-        out.push(Survey {
-            grid: Grid {
-                geometry: base.clone(),
-                z,
+        Ok((
+            AlignedStack {
+                geometry: self.base,
+                surveys: self.surveys,
+                elevations: self.elevations,
             },
-            ..s
-        });
-        reports.push(None);
+            self.reports,
+        ))
     }
-    if out.len() < 2 {
-        return Err(Error::input(
-            &out[0].source.path,
-            "at least two surveys are needed to show change",
-        ));
-    }
-    Ok((
-        AlignedStack {
-            geometry: base,
-            surveys: out,
-        },
-        reports,
-    ))
 }
 
 fn crs_name(epsg: Option<u32>) -> String {
@@ -238,11 +354,24 @@ fn crop_geometry(g: &GridGeometry, a: &AreaOfInterest) -> Option<GridGeometry> {
 /// Bilinear resampling of `src` onto `target`; exact copy when the cells coincide. Cells outside
 /// `src`, or whose neighbourhood touches nodata, are NaN. The caller checks the CRS.
 pub fn resample(src: &Grid, target: &GridGeometry) -> Array2<f32> {
+    let mut out = Array2::from_elem((target.rows, target.cols), f32::NAN);
+    resample_into(src, target, out.view_mut());
+    out
+}
+
+/// [`resample`] into `out`, which has `target`'s shape.
+pub fn resample_into(src: &Grid, target: &GridGeometry, mut out: ArrayViewMut2<'_, f32>) {
+    assert_eq!(
+        out.dim(),
+        (target.rows, target.cols),
+        "output has the target's shape"
+    );
     // A grid already on the analysis grid (the usual case: surveys delivered on one grid) is copied.
     if src.geometry == *target {
-        return src.z.clone();
+        out.assign(&src.z);
+        return;
     }
-    Array2::from_shape_fn((target.rows, target.cols), |(r, c)| {
+    ndarray::Zip::indexed(&mut out).for_each(|(r, c), v| {
         let (x, y) = target.cell_center(r, c);
         let (sr, sc) = src.geometry.to_cell(x, y);
         // Snap values within a millionth of a cell so coincident grids copy exactly.
@@ -253,8 +382,8 @@ pub fn resample(src: &Grid, target: &GridGeometry) -> Array2<f32> {
                 v
             }
         };
-        src.sample_bilinear(snap(sr), snap(sc))
-    })
+        *v = src.sample_bilinear(snap(sr), snap(sc));
+    });
 }
 
 #[cfg(test)]

@@ -42,7 +42,7 @@
 
 use std::borrow::Cow;
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 
 use rayon::prelude::*;
 
@@ -232,7 +232,7 @@ impl Terrain<'_> {
 }
 
 /// `z` resampled at `x + (east, north)` (map units), bilinear; NaN beyond the data.
-pub fn shifted(z: &Array2<f32>, g: &GridGeometry, east: f64, north: f64) -> Array2<f32> {
+pub fn shifted(z: &ArrayRef2<f32>, g: &GridGeometry, east: f64, north: f64) -> Array2<f32> {
     let (rows, cols) = z.dim();
     let dc = east / g.cell_x;
     let dr = -north / g.cell_y;
@@ -509,7 +509,7 @@ fn select_stable(
 #[allow(clippy::too_many_arguments)]
 fn estimate(
     reference: &[f32],
-    z: &Array2<f32>,
+    z: &ArrayRef2<f32>,
     g: &GridGeometry,
     t: &Terrain,
     candidates: Option<&[bool]>,
@@ -699,7 +699,8 @@ pub fn coregister(
     // The reference and its slopes live only while the offsets are estimated (at 4096² the
     // slopes alone take 192 MB), and the reference is read in place, not copied.
     let estimates = {
-        let reference_grid = stack.z(0).as_standard_layout();
+        let reference_view = stack.z(0);
+        let reference_grid = reference_view.as_standard_layout();
         let reference: &[f32] = reference_grid.as_slice().expect("standard layout");
         let t = Terrain::new(reference, &g);
         let given_slice: Option<Vec<bool>> = given.map(|(m, _)| m.iter().copied().collect());
@@ -707,16 +708,18 @@ pub fn coregister(
         // In waves of one survey per thread: each holds a few grid-sized scratch arrays.
         let mut estimates: Vec<Estimate> = crate::waves::map_in_waves(stack.len() - 1, |k| {
             let i = k + 1;
-            estimate(
+            let e = estimate(
                 reference,
-                stack.z(i),
+                &stack.z(i),
                 &g,
                 &t,
                 given_slice.as_deref(),
                 lod_m[i],
                 found,
                 opts,
-            )
+            );
+            stack.let_go();
+            e
         });
         if found && stack.len() > 2 {
             // Second pass: the cells stable against the first survey in every survey.
@@ -726,16 +729,18 @@ pub fn coregister(
             if common.iter().filter(|&&s| s).count() >= opts.min_cells {
                 estimates = crate::waves::map_in_waves(stack.len() - 1, |k| {
                     let i = k + 1;
-                    estimate(
+                    let e = estimate(
                         reference,
-                        stack.z(i),
+                        &stack.z(i),
                         &g,
                         &t,
                         Some(&common),
                         lod_m[i],
                         true,
                         opts,
-                    )
+                    );
+                    stack.let_go();
+                    e
                 });
             }
         }
@@ -807,13 +812,14 @@ pub fn coregister(
             let unit = g.horizontal_unit.metres();
             let dz32 = dz as f32;
             if de != 0.0 || dn != 0.0 {
-                let mut z = shifted(stack.z(i), &g, de / unit, dn / unit);
+                let mut z = shifted(&stack.z(i), &g, de / unit, dn / unit);
                 z.par_mapv_inplace(|v| v - dz32);
                 stack.replace_z(i, z);
             } else {
                 // A vertical correction alone is made in place.
                 stack.z_mut(i).par_mapv_inplace(|v| v - dz32);
             }
+            stack.let_go();
         }
         out.push(r);
     }

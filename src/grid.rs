@@ -8,7 +8,7 @@
 //! - Map coordinates stay in the CRS's own horizontal unit; elevations are converted to metres when a
 //!   grid is read. Missing values (nodata) are `f32::NAN` and nothing else.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 
 /// A unit of length used by a CRS or a vertical datum.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -158,10 +158,7 @@ impl Grid {
     }
     /// Share of cells that are nodata, from 0 to 1.
     pub fn nodata_share(&self) -> f64 {
-        if self.z.is_empty() {
-            return 0.0;
-        }
-        self.z.iter().filter(|v| v.is_nan()).count() as f64 / self.z.len() as f64
+        nodata_share(&self.z)
     }
     /// Bilinear sample at a continuous (row, col) with cell centres at whole numbers.
     /// Returns NaN outside the grid or when any of the four neighbours used is nodata.
@@ -183,6 +180,14 @@ pub fn azimuth_deg(east: f64, north: f64) -> f64 {
     }
 }
 
+/// Share of cells that are nodata (NaN), from 0 to 1; 0 for an empty array.
+pub fn nodata_share(z: &ArrayRef2<f32>) -> f64 {
+    if z.is_empty() {
+        return 0.0;
+    }
+    z.iter().filter(|v| v.is_nan()).count() as f64 / z.len() as f64
+}
+
 /// Smallest and largest finite value of a sequence.
 pub fn finite_range(values: impl Iterator<Item = f32>) -> Option<(f32, f32)> {
     let mut lo = f32::INFINITY;
@@ -197,7 +202,7 @@ pub fn finite_range(values: impl Iterator<Item = f32>) -> Option<(f32, f32)> {
 /// Bilinear sample of an array at continuous (row, col), cell centres at whole numbers.
 /// Points within half a cell outside the edge are clamped to the edge; further out gives NaN.
 /// Nodata (NaN) in any neighbour with non-zero weight propagates.
-pub fn sample_bilinear(z: &Array2<f32>, row: f64, col: f64) -> f32 {
+pub fn sample_bilinear(z: &ArrayRef2<f32>, row: f64, col: f64) -> f32 {
     let (rows, cols) = z.dim();
     if rows == 0 || cols == 0 || !(row >= -0.5 && col >= -0.5) {
         return f32::NAN;

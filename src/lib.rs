@@ -20,6 +20,7 @@ pub mod annotate;
 pub mod archive;
 pub mod change;
 pub mod coregister;
+pub mod elevations;
 pub mod encode;
 pub mod error;
 pub mod geotiff;

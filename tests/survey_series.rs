@@ -100,7 +100,7 @@ fn co_registration_recovers_the_offset_and_the_volume() {
 #[test]
 fn turned_off_or_without_stable_ground_nothing_changes() {
     let (_, mut shifted) = stacks();
-    let z1 = shifted.z(1).clone();
+    let z1 = shifted.z(1).to_owned();
     let opts = ChangeOptions::default();
     let off = CoregOptions {
         enabled: false,
@@ -108,7 +108,7 @@ fn turned_off_or_without_stable_ground_nothing_changes() {
     };
     let regs = coregister::coregister(&mut shifted, None, &lods(&opts), &off);
     assert!(regs[1].status.contains("turned off"));
-    assert_eq!(shifted.z(1), &z1);
+    assert_eq!(shifted.z(1), z1);
     // A job mask covering one small patch: too little ground, warned and left uncorrected.
     let mut mask = Array2::from_elem((256, 256), false);
     for r in 0..10 {
@@ -128,7 +128,7 @@ fn turned_off_or_without_stable_ground_nothing_changes() {
         regs[1].status
     );
     assert!(!regs[1].applied_vertical);
-    assert_eq!(shifted.z(1), &z1);
+    assert_eq!(shifted.z(1), z1);
 }
 
 #[test]

@@ -20,7 +20,7 @@
 //! re-centres the window on the fitted top until it stays put. Between surveys the caller passes
 //! the σ of the blend, `√((1−w)²σ₀² + w²σ₁²)` ([`blend_sigma_m`]).
 
-use ndarray::Array2;
+use ndarray::ArrayRef2;
 use rayon::prelude::*;
 
 use crate::grid::GridGeometry;
@@ -65,7 +65,7 @@ pub struct Crest {
 
 /// Estimates the crest of `z` (NaN = nodata) for a surface of vertical uncertainty `sigma_z_m`.
 /// None when every cell is nodata.
-pub fn estimate(z: &Array2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> Option<Crest> {
+pub fn estimate(z: &ArrayRef2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> Option<Crest> {
     let sigma = if sigma_z_m.is_finite() && sigma_z_m > 0.0 {
         sigma_z_m
     } else {
@@ -135,7 +135,7 @@ pub fn estimate(z: &Array2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> Opt
 }
 
 /// The highest finite cell: (elevation, row, col); the first in row order on ties.
-pub fn highest_cell(z: &Array2<f32>) -> Option<(f32, usize, usize)> {
+pub fn highest_cell(z: &ArrayRef2<f32>) -> Option<(f32, usize, usize)> {
     let mut best: Option<(f32, usize, usize)> = None;
     for ((r, c), &v) in z.indexed_iter() {
         if v.is_finite() && best.is_none_or(|(b, _, _)| v > b) {
@@ -146,75 +146,101 @@ pub fn highest_cell(z: &Array2<f32>) -> Option<(f32, usize, usize)> {
 }
 
 /// The cell where the mean over a (2k+1)² window (cells with data only) is highest.
-fn smoothed_top(z: &Array2<f32>, k: usize) -> Option<(usize, usize)> {
+///
+/// Window sums come from summed-area tables of values and of data counts, `(rows+1) × (cols+1)`,
+/// built a chunk of rows at a time: each row's running sums side by side, then added to the table
+/// row above in order, so every entry is the sum a whole table would hold. Only the table rows the
+/// chunk's windows reach are kept (at 4096² about 13 MB instead of 200 MB).
+fn smoothed_top(z: &ArrayRef2<f32>, k: usize) -> Option<(usize, usize)> {
+    /// Rows scored side by side; a chunk is several bands.
+    const BAND: usize = 32;
+    const CHUNK: usize = 8 * BAND;
     let (rows, cols) = z.dim();
     let laid_out = z.as_standard_layout();
     let zs = laid_out.as_slice().expect("standard layout");
-    // Summed-area tables of values and of data counts, (rows+1) x (cols+1), f64. Each row's
-    // running sums first (rows side by side), then the rows added up in order.
     let w = cols + 1;
-    let mut sum = vec![0.0f64; (rows + 1) * w];
-    let mut cnt = vec![0u32; (rows + 1) * w];
-    sum[w..]
-        .par_chunks_mut(w)
-        .zip(cnt[w..].par_chunks_mut(w))
-        .zip(zs.par_chunks(cols.max(1)))
-        .for_each(|((srow, crow), zrow)| {
-            let (mut rs, mut rc) = (0.0f64, 0u32);
-            for c in 0..cols {
-                let v = zrow[c];
-                if v.is_finite() {
-                    rs += v as f64;
-                    rc += 1;
-                }
-                srow[c + 1] = rs;
-                crow[c + 1] = rc;
-            }
-        });
-    for r in 1..=rows {
-        let (above, here) = sum.split_at_mut(r * w);
-        for (h, &a) in here[..w].iter_mut().zip(&above[(r - 1) * w..]) {
-            *h += a;
-        }
-        let (above, here) = cnt.split_at_mut(r * w);
-        for (h, &a) in here[..w].iter_mut().zip(&above[(r - 1) * w..]) {
-            *h += a;
-        }
-    }
-    // The best window of each band of rows, side by side; then the bands in order, so the first
-    // window in row order wins a tie, as in a single scan.
-    const BAND: usize = 32;
+    // Table rows `base..base + sum.len() / w`; table row 0 is all zero.
+    let (mut base, mut sum, mut cnt) = (0usize, vec![0.0f64; w], vec![0u32; w]);
     let need = ((2 * k + 1) * (2 * k + 1) / 2) as u32;
-    let band_best = |band: usize| -> Option<(f64, usize, usize)> {
-        let mut best: Option<(f64, usize, usize)> = None;
-        for r in band * BAND..((band + 1) * BAND).min(rows) {
-            let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
-            for c in 0..cols {
-                if !zs[r * cols + c].is_finite() {
-                    continue;
+    let mut best: Option<(f64, usize, usize)> = None;
+    for r0 in (0..rows).step_by(CHUNK) {
+        let r1 = (r0 + CHUNK).min(rows);
+        // Keep the table rows from r0 - k on, then build them up to r1 + k + 1.
+        let keep_from = r0.saturating_sub(k).max(base);
+        sum.drain(..(keep_from - base) * w);
+        cnt.drain(..(keep_from - base) * w);
+        base = keep_from;
+        let built = base + sum.len() / w; // first table row not yet built
+        let upto = (r1 + k + 1).min(rows) + 1; // one past the last table row needed
+        if upto > built {
+            let start = sum.len();
+            sum.resize(start + (upto - built) * w, 0.0);
+            cnt.resize(start + (upto - built) * w, 0);
+            // Table row t holds data row t - 1.
+            sum[start..]
+                .par_chunks_mut(w)
+                .zip(cnt[start..].par_chunks_mut(w))
+                .zip(zs[(built - 1) * cols..(upto - 1) * cols].par_chunks(cols.max(1)))
+                .for_each(|((srow, crow), zrow)| {
+                    let (mut rs, mut rc) = (0.0f64, 0u32);
+                    for c in 0..cols {
+                        let v = zrow[c];
+                        if v.is_finite() {
+                            rs += v as f64;
+                            rc += 1;
+                        }
+                        srow[c + 1] = rs;
+                        crow[c + 1] = rc;
+                    }
+                });
+            for t in built..upto {
+                let i = (t - base) * w;
+                let (above, here) = sum.split_at_mut(i);
+                for (h, &a) in here[..w].iter_mut().zip(&above[i - w..]) {
+                    *h += a;
                 }
-                let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
-                let n = cnt[rb * w + cb] + cnt[ra * w + ca] - cnt[ra * w + cb] - cnt[rb * w + ca];
-                if n < need.min(((rb - ra) * (cb - ca)) as u32) || n == 0 {
-                    continue;
-                }
-                let s = sum[rb * w + cb] + sum[ra * w + ca] - sum[ra * w + cb] - sum[rb * w + ca];
-                let mean = s / n as f64;
-                if best.is_none_or(|(b, _, _)| mean > b) {
-                    best = Some((mean, r, c));
+                let (above, here) = cnt.split_at_mut(i);
+                for (h, &a) in here[..w].iter_mut().zip(&above[i - w..]) {
+                    *h += a;
                 }
             }
         }
-        best
-    };
-    let bands: Vec<Option<(f64, usize, usize)>> = (0..rows.div_ceil(BAND))
-        .into_par_iter()
-        .map(band_best)
-        .collect();
-    let mut best: Option<(f64, usize, usize)> = None;
-    for (mean, r, c) in bands.into_iter().flatten() {
-        if best.is_none_or(|(b, _, _)| mean > b) {
-            best = Some((mean, r, c));
+        let (sum, cnt) = (&sum, &cnt);
+        let at = |t: usize, c: usize| (t - base) * w + c;
+        // The best window of each band of rows, side by side; then the bands in order, so the
+        // first window in row order wins a tie, as in a single scan.
+        let band_best = |band_start: usize| -> Option<(f64, usize, usize)> {
+            let mut best: Option<(f64, usize, usize)> = None;
+            for r in band_start..(band_start + BAND).min(r1) {
+                let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
+                for c in 0..cols {
+                    if !zs[r * cols + c].is_finite() {
+                        continue;
+                    }
+                    let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
+                    let n = cnt[at(rb, cb)] + cnt[at(ra, ca)] - cnt[at(ra, cb)] - cnt[at(rb, ca)];
+                    if n < need.min(((rb - ra) * (cb - ca)) as u32) || n == 0 {
+                        continue;
+                    }
+                    let s = sum[at(rb, cb)] + sum[at(ra, ca)] - sum[at(ra, cb)] - sum[at(rb, ca)];
+                    let mean = s / n as f64;
+                    if best.is_none_or(|(b, _, _)| mean > b) {
+                        best = Some((mean, r, c));
+                    }
+                }
+            }
+            best
+        };
+        let bands: Vec<Option<(f64, usize, usize)>> = (r0..r1)
+            .step_by(BAND)
+            .collect::<Vec<_>>()
+            .into_par_iter()
+            .map(band_best)
+            .collect();
+        for (mean, r, c) in bands.into_iter().flatten() {
+            if best.is_none_or(|(b, _, _)| mean > b) {
+                best = Some((mean, r, c));
+            }
         }
     }
     best.map(|(_, r, c)| (r, c)).or_else(|| {
@@ -236,7 +262,7 @@ struct Fit {
 
 /// Fits at (r, c), then moves the window to the cell nearest the fitted top until it stays put
 /// (at most eight moves; a ridge walks uphill along its crest line).
-fn fit_recentred(z: &Array2<f32>, r: usize, c: usize, radius: usize, sigma: f64) -> Option<Fit> {
+fn fit_recentred(z: &ArrayRef2<f32>, r: usize, c: usize, radius: usize, sigma: f64) -> Option<Fit> {
     let (rows, cols) = z.dim();
     let (mut r, mut c) = (r, c);
     let mut fit = fit_at(z, r, c, radius, sigma)?;
@@ -303,7 +329,7 @@ fn poly_eval(coef: &[f64; NT], u: f64, v: f64) -> (f64, [f64; 2], [[f64; 2]; 2])
 /// Least-squares polynomial of degree 4 over the (2·radius+1)² window centred on (r, c), in window
 /// coordinates scaled to [−1, 1] so the normal equations stay well conditioned. The top is found
 /// by Newton steps from the highest window cell of the fit, kept inside the window.
-fn fit_at(z: &Array2<f32>, r: usize, c: usize, radius: usize, sigma: f64) -> Option<Fit> {
+fn fit_at(z: &ArrayRef2<f32>, r: usize, c: usize, radius: usize, sigma: f64) -> Option<Fit> {
     let (rows, cols) = z.dim();
     let k = radius as isize;
     let scale = 1.0 / radius as f64;

@@ -23,7 +23,7 @@
 //! The flood fill runs in one thread in row-major order, so the mask never depends on the thread
 //! count; sums run over fixed chunks like `metrics`.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 use rayon::prelude::*;
 
 use super::metrics::CHUNK_CELLS;
@@ -100,8 +100,8 @@ pub struct Detection {
 /// # Allocations
 /// The mask (one byte a cell) and a flood-fill stack.
 pub fn detect(
-    earlier: &Array2<f32>,
-    later: &Array2<f32>,
+    earlier: &ArrayRef2<f32>,
+    later: &ArrayRef2<f32>,
     lod_m: f64,
     min_cells: usize,
 ) -> Detection {
@@ -201,8 +201,8 @@ pub struct DetectedSums {
 /// Sums `later − earlier` over the cells the mask marks as detected, in fixed chunks combined in
 /// order (the same figures on any thread count).
 pub fn detected_sums(
-    earlier: &Array2<f32>,
-    later: &Array2<f32>,
+    earlier: &ArrayRef2<f32>,
+    later: &ArrayRef2<f32>,
     codes: &Array2<i8>,
 ) -> DetectedSums {
     let a: Vec<f32>;

@@ -79,7 +79,7 @@ pub fn polylines(
 /// `(x0 + (c·step + 0.5)·scale, y0 + (r·step + 0.5)·scale)`), segments joined end to end through the
 /// grid edges they cross. Samples without data break the line.
 pub fn contour_lines(
-    z: &ndarray::Array2<f32>,
+    z: &ndarray::ArrayRef2<f32>,
     level: f64,
     step: usize,
     scale: f64,

@@ -25,7 +25,7 @@
 //! or loss in place does not read as motion. The site-wide figure is the same estimate over the
 //! union of all regions. Ids number the regions from the largest area of detected change down.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 use rayon::prelude::*;
 use serde::Serialize;
 
@@ -287,8 +287,8 @@ const MARGIN_CELLS: usize = 16;
 /// around the region keeps the plane where it belongs and carries no motion of its own. (Growing
 /// the region by a further 5 to 20 cells changed the demo's figures by under 0.05 m.)
 fn region_migration(
-    a: &Array2<f32>,
-    b: &Array2<f32>,
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
     cells: &[usize],
     plane: [f64; 3],
     cell_m: f64,
@@ -320,7 +320,7 @@ fn region_migration(
     for &k in cells {
         inside[[k / cols - r0, k % cols - c0]] = true;
     }
-    let crop = |z: &Array2<f32>| {
+    let crop = |z: &ArrayRef2<f32>| {
         Array2::from_shape_fn((h, w), |(r, c)| {
             if inside[[r, c]] {
                 z[[r + r0, c + c0]]
@@ -350,7 +350,7 @@ pub fn landforms(
     max_side: usize,
 ) -> Vec<LandformRecord> {
     let g = stack.geometry();
-    let (a, b) = (stack.z(pair.from_index), stack.z(pair.to_index));
+    let (a, b) = (&stack.z(pair.from_index), &stack.z(pair.to_index));
     let (rows, cols) = a.dim();
     let cell_m = g.cell_x_m();
     let cell_area = g.cell_area_m2();
@@ -371,13 +371,7 @@ pub fn landforms(
             in_region[k] = true;
         }
     }
-    let ground = |z: &[f32]| -> Vec<f32> {
-        z.iter()
-            .zip(&in_region)
-            .map(|(&v, &r)| if r { f32::NAN } else { v })
-            .collect()
-    };
-    let plane = flow::base_plane(&ground(sa), &ground(sb), flow::RasterDims { rows, cols });
+    let plane = flow::base_plane_outside(sa, sb, Some(&in_region), flow::RasterDims { rows, cols });
     let years = pair.interval_years;
     let (kind, from_id, to_id) = (pair.pair_kind, pair.from_id.clone(), pair.to_id.clone());
     let row = |id: String, detected: &[usize], m: &Result<flow::Dominant, String>| {

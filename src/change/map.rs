@@ -191,7 +191,7 @@ pub fn dod_map_with_layout(
     let lut = ramp();
     let limit = colour_limit(pair);
     let lod = pair.lod_m;
-    let (z0, z1) = (stack.z(pair.from_index), stack.z(pair.to_index));
+    let (z0, z1) = (&stack.z(pair.from_index), &stack.z(pair.to_index));
     let det: Detection = super::pair_detection(stack, pair);
     let hs = hillshade(z1, g);
     let row_bytes = width as usize * 4;
@@ -404,7 +404,7 @@ pub fn dod_map_with_layout(
 
 /// Hillshade `max(0, n·s)` of the later survey (Horn 1981 normals, `render::shade`), rows in
 /// parallel; NaN where there is no data. Same values as `shade::hillshade`, which runs in one thread.
-fn hillshade(z: &ndarray::Array2<f32>, g: &GridGeometry) -> ndarray::Array2<f32> {
+fn hillshade(z: &ndarray::ArrayRef2<f32>, g: &GridGeometry) -> ndarray::Array2<f32> {
     let (rows, cols) = z.dim();
     let k = SHADE_EXAGGERATION as f32;
     let zk: Vec<f32> = z.iter().map(|v| v * k).collect();

@@ -5,7 +5,7 @@
 //! and the partials are combined in chunk order: the result does not depend on the thread count.
 
 use chrono::NaiveDate;
-use ndarray::Array2;
+use ndarray::ArrayRef2;
 use rayon::prelude::*;
 
 /// Cells per summation chunk. Fixed, so the order of additions never depends on the thread count.
@@ -57,7 +57,7 @@ pub struct PairStats {
     pub max_dod_m: f64,
 }
 
-fn contiguous(z: &Array2<f32>) -> std::borrow::Cow<'_, [f32]> {
+fn contiguous(z: &ArrayRef2<f32>) -> std::borrow::Cow<'_, [f32]> {
     match z.as_slice() {
         Some(s) => std::borrow::Cow::Borrowed(s),
         None => std::borrow::Cow::Owned(z.iter().copied().collect()),
@@ -65,7 +65,7 @@ fn contiguous(z: &Array2<f32>) -> std::borrow::Cow<'_, [f32]> {
 }
 
 /// Statistics of a grid against a reference elevation (metres).
-pub fn survey_stats(z: &Array2<f32>, reference_m: f64) -> SurveyStats {
+pub fn survey_stats(z: &ArrayRef2<f32>, reference_m: f64) -> SurveyStats {
     let cells = contiguous(z);
     let empty = SurveyStats {
         finite_cells: 0,
@@ -129,7 +129,7 @@ pub fn survey_stats(z: &Array2<f32>, reference_m: f64) -> SurveyStats {
 ///
 /// # Panics
 /// If the two grids differ in shape (an `AlignedStack` guarantees they do not).
-pub fn pair_stats(earlier: &Array2<f32>, later: &Array2<f32>, lod_m: f64) -> PairStats {
+pub fn pair_stats(earlier: &ArrayRef2<f32>, later: &ArrayRef2<f32>, lod_m: f64) -> PairStats {
     assert_eq!(
         earlier.dim(),
         later.dim(),
@@ -208,7 +208,7 @@ pub fn parabolic_offset(before: f32, centre: f32, after: f32) -> f64 {
 }
 
 /// Sub-cell (row, col) of the peak at cell (row, col), by separate parabolic fits along each axis.
-pub fn peak_subcell(z: &Array2<f32>, row: usize, col: usize) -> (f64, f64) {
+pub fn peak_subcell(z: &ArrayRef2<f32>, row: usize, col: usize) -> (f64, f64) {
     let (rows, cols) = z.dim();
     let at = |r: isize, c: isize| -> f32 {
         if r < 0 || c < 0 || r as usize >= rows || c as usize >= cols {
@@ -236,6 +236,7 @@ pub use crate::grid::azimuth_deg;
 #[cfg(test)]
 mod tests {
     use super::*;
+    use ndarray::Array2;
 
     #[test]
     fn azimuths() {

@@ -111,13 +111,17 @@ pub fn figures(stack: &AlignedStack, record: &ChangeRecord, opts: &ChangeOptions
     let mut out: Vec<Figure> = record
         .pairs
         .iter()
-        .map(|p| Figure {
-            file_name: format!(
-                "maps/dod-{}-{}.png",
-                file_safe(&p.from_id),
-                file_safe(&p.to_id)
-            ),
-            frame: dod_map(stack, p, opts),
+        .map(|p| {
+            let frame = dod_map(stack, p, opts);
+            stack.let_go();
+            Figure {
+                file_name: format!(
+                    "maps/dod-{}-{}.png",
+                    file_safe(&p.from_id),
+                    file_safe(&p.to_id)
+                ),
+                frame,
+            }
         })
         .collect();
     if !record.transect.is_empty() {
@@ -138,8 +142,8 @@ pub fn pair_detection(stack: &AlignedStack, pair: &PairRecord) -> detect::Detect
         .round()
         .max(1.0) as usize;
     detect::detect(
-        stack.z(pair.from_index),
-        stack.z(pair.to_index),
+        &stack.z(pair.from_index),
+        &stack.z(pair.to_index),
         pair.lod_m,
         cells,
     )
@@ -148,9 +152,9 @@ pub fn pair_detection(stack: &AlignedStack, pair: &PairRecord) -> detect::Detect
 /// The DEM of difference of a pair, later minus earlier, in metres (NaN where either survey has no
 /// data).
 pub fn dod_grid(stack: &AlignedStack, pair: &PairRecord) -> ndarray::Array2<f32> {
-    let mut d = stack.z(pair.to_index).clone();
+    let mut d = stack.z(pair.to_index).to_owned();
     ndarray::Zip::from(&mut d)
-        .and(stack.z(pair.from_index))
+        .and(&stack.z(pair.from_index))
         .par_for_each(|b, &a| *b -= a);
     d
 }

@@ -12,7 +12,7 @@
 //!    at least 2 LoD, so noise on flat ground never draws an outline. Both dates use the same base
 //!    and the same level, so their outlines compare.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 
 /// The relief above the local base of both surveys (sampled every `step` cells) and the outline
 /// level; None when nothing stands 2 LoD above the base.
@@ -29,14 +29,19 @@ pub struct Outline {
 }
 
 /// Builds the outline relief (module doc).
-pub fn outline(z0: &Array2<f32>, z1: &Array2<f32>, lod_m: f64, step: usize) -> Option<Outline> {
+pub fn outline(
+    z0: &ArrayRef2<f32>,
+    z1: &ArrayRef2<f32>,
+    lod_m: f64,
+    step: usize,
+) -> Option<Outline> {
     let step = step.max(1);
     let (rows, cols) = z0.dim();
     let (nr, nc) = (rows.div_ceil(step), cols.div_ceil(step));
     if nr < 3 || nc < 3 {
         return None;
     }
-    let sample = |z: &Array2<f32>| {
+    let sample = |z: &ArrayRef2<f32>| {
         Array2::from_shape_fn((nr, nc), |(r, c)| {
             z[[(r * step).min(rows - 1), (c * step).min(cols - 1)]]
         })
@@ -77,7 +82,7 @@ pub fn outline(z0: &Array2<f32>, z1: &Array2<f32>, lod_m: f64, step: usize) -> O
 
 /// Running minimum over a square window of half-width `half`, NaN ignored (separable, a monotonic
 /// deque per row and column: linear in the cells whatever the window).
-fn running_min(z: &Array2<f32>, half: usize) -> Array2<f32> {
+fn running_min(z: &ArrayRef2<f32>, half: usize) -> Array2<f32> {
     let (rows, cols) = z.dim();
     let mut tmp = Array2::from_elem((rows, cols), f32::NAN);
     let mut buf = Vec::new();
@@ -127,7 +132,7 @@ fn min_1d(x: &[f32], half: usize, out: &mut Vec<f32>) {
 
 /// Mean over a square window of half-width `half`, NaN cells left out (summed-area tables);
 /// NaN where the cell itself has no data.
-fn box_mean(z: &Array2<f32>, half: usize) -> Array2<f32> {
+fn box_mean(z: &ArrayRef2<f32>, half: usize) -> Array2<f32> {
     let (rows, cols) = z.dim();
     let mut sum = vec![0f64; (rows + 1) * (cols + 1)];
     let mut cnt = vec![0u32; (rows + 1) * (cols + 1)];

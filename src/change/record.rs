@@ -446,10 +446,12 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
     check_options(opts)?;
     let geometry = stack.geometry();
     let reference = opts.reference_elevation_m;
-    let stats: Vec<metrics::SurveyStats> = stack
-        .surveys()
-        .iter()
-        .map(|s| survey_stats(&s.grid.z, reference))
+    let stats: Vec<metrics::SurveyStats> = (0..stack.len())
+        .map(|i| {
+            let st = survey_stats(&stack.z(i), reference);
+            stack.let_go();
+            st
+        })
         .collect();
     let top = stats
         .iter()
@@ -480,6 +482,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
     let mut warnings = Vec::new();
     let mut surveys = Vec::with_capacity(stack.len());
     for (i, ((s, st), hash)) in stack.surveys().iter().zip(&stats).zip(hashes).enumerate() {
+        let z = stack.z(i);
         let mut notes = Vec::new();
         let sha = match hash {
             Ok(h) => h,
@@ -505,7 +508,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
         }
         let (peak_x, peak_y) = match st.peak_index {
             Some(k) => {
-                let (r, c) = metrics::peak_subcell(&s.grid.z, k / geometry.cols, k % geometry.cols);
+                let (r, c) = metrics::peak_subcell(&z, k / geometry.cols, k % geometry.cols);
                 (
                     geometry.origin_x + (c + 0.5) * geometry.cell_x,
                     geometry.origin_y - (r + 0.5) * geometry.cell_y,
@@ -513,7 +516,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             }
             None => (f64::NAN, f64::NAN),
         };
-        let crest = super::crest::estimate(&s.grid.z, geometry, sigma);
+        let crest = super::crest::estimate(&z, geometry, sigma);
         let (west, south, east, north) = geometry.extent();
         for n in &notes {
             log::warn!("survey {}: {n}", s.id);
@@ -541,7 +544,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             south_crs: south,
             east_crs: east,
             north_crs: north,
-            nodata_share: s.grid.nodata_share(),
+            nodata_share: crate::grid::nodata_share(&z),
             min_elevation_m: st.min_m,
             max_elevation_m: st.max_m,
             mean_elevation_m: if st.finite_cells > 0 {
@@ -586,6 +589,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
             warnings: notes.join("; "),
             note: SURVEY_NOTE,
         });
+        stack.let_go();
     }
 
     let n = stack.len();
@@ -597,7 +601,7 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
     let pairs = plan
         .into_iter()
         .map(|(kind, a, b)| {
-            pair_record(
+            let pair = pair_record(
                 stack,
                 &surveys,
                 kind,
@@ -605,7 +609,9 @@ pub fn record(stack: &AlignedStack, opts: &ChangeOptions) -> Result<ChangeRecord
                 (opts.lod_t, opts.min_patch_m2),
                 cell_area,
                 unit_m,
-            )
+            );
+            stack.let_go();
+            pair
         })
         .collect();
     Ok(ChangeRecord {
@@ -631,12 +637,12 @@ fn pair_record(
     let (ra, rb) = (&rows[a], &rows[b]);
     let sigma_dod = ra.sigma_z_m.hypot(rb.sigma_z_m);
     let lod = t * sigma_dod;
-    let mut st = metrics::pair_stats(stack.z(a), stack.z(b), lod);
+    let mut st = metrics::pair_stats(&stack.z(a), &stack.z(b), lod);
     // The detected budget counts only cells in patches of at least the smallest patch
     // (`change::detect`); the LoD-only counts stay in `st` for the small-patch figure.
     let min_cells = super::detect::min_patch_cells(min_patch_m2, cell_area, t);
-    let det = super::detect::detect(stack.z(a), stack.z(b), lod, min_cells);
-    let sums = super::detect::detected_sums(stack.z(a), stack.z(b), &det.codes);
+    let det = super::detect::detect(&stack.z(a), &stack.z(b), lod, min_cells);
+    let sums = super::detect::detected_sums(&stack.z(a), &stack.z(b), &det.codes);
     st.erosion_m = sums.erosion_m;
     st.erosion_cells = sums.erosion_cells;
     st.deposition_m = sums.deposition_m;

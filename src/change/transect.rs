@@ -80,13 +80,14 @@ pub fn profiles(stack: &AlignedStack, line: [[f64; 2]; 2]) -> Result<Vec<Transec
     let count = ((len / step).ceil() as usize + 1).clamp(2, MAX_SAMPLES);
     let unit_m = g.horizontal_unit.metres();
     let mut out = Vec::with_capacity(count * stack.len());
-    for s in stack.surveys() {
+    for (i, s) in stack.surveys().iter().enumerate() {
         let date = s.date.to_string();
+        let zs = stack.z(i);
         for k in 0..count {
             let t = k as f64 / (count - 1) as f64;
             let (x, y) = (x0 + (x1 - x0) * t, y0 + (y1 - y0) * t);
             let (r, c) = g.to_cell(x, y);
-            let z = s.grid.sample_bilinear(r, c);
+            let z = crate::grid::sample_bilinear(&zs, r, c);
             out.push(TransectPoint {
                 survey_id: s.id.clone(),
                 date: date.clone(),
@@ -97,6 +98,7 @@ pub fn profiles(stack: &AlignedStack, line: [[f64; 2]; 2]) -> Result<Vec<Transec
             });
         }
     }
+    stack.let_go();
     Ok(out)
 }
 

@@ -70,7 +70,7 @@ mod reduce;
 mod result;
 pub mod stored;
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 
 use dense::{FillRule, QualityRule, Scratch};
 use raster::Dims;
@@ -78,7 +78,7 @@ use raster::Dims;
 pub use reduce::estimate_within;
 pub use result::{Dominant, FlowField, FlowResult, Verdict};
 
-pub(crate) use raster::{base_plane, sample_clamped, Dims as RasterDims};
+pub(crate) use raster::{base_plane_outside, sample_clamped, Dims as RasterDims};
 
 /// Settings of the displacement estimate. The job file deserialises into this.
 #[derive(Debug, Clone, PartialEq, serde::Deserialize, serde::Serialize)]
@@ -254,8 +254,8 @@ impl Level {
 /// # Allocations
 /// About 25 rasters of the grid's size (f32), plus a third more for the pyramid.
 pub fn estimate(
-    a: &Array2<f32>,
-    b: &Array2<f32>,
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
     cell_size_m: f64,
     opts: &FlowOptions,
 ) -> FlowResult {

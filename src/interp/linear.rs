@@ -3,14 +3,14 @@
 //! The plainest in-between surface. It conserves volume but not shape: a dune that moves appears to
 //! fade in one place and rise in another (see the morph for the alternative).
 
-use ndarray::{Array2, Zip};
+use ndarray::{Array2, ArrayRef2, Zip};
 
 /// Writes the blend of `a` and `b` at fraction `w` into `out`. Nodata (NaN) in either input gives
 /// nodata. At `w == 0` the result is `a` and at `w == 1` it is `b`, bit for bit.
 ///
 /// # Panics
 /// If the three arrays differ in shape (they come from one `AlignedStack`).
-pub fn blend_into(out: &mut Array2<f32>, a: &Array2<f32>, b: &Array2<f32>, w: f32) {
+pub fn blend_into(out: &mut Array2<f32>, a: &ArrayRef2<f32>, b: &ArrayRef2<f32>, w: f32) {
     assert!(
         out.dim() == a.dim() && a.dim() == b.dim(),
         "blend of differently shaped grids"

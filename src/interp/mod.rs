@@ -51,9 +51,9 @@ impl Surface {
 pub fn linear_into(out: &mut Surface, stack: &AlignedStack, t: &FrameTime) {
     out.kind = t.kind;
     match t.kind {
-        FrameKind::Measured { survey } => out.z.assign(stack.z(survey)),
+        FrameKind::Measured { survey } => out.z.assign(&stack.z(survey)),
         FrameKind::Interpolated { from, to } => {
-            linear::blend_into(&mut out.z, stack.z(from), stack.z(to), t.weight as f32)
+            linear::blend_into(&mut out.z, &stack.z(from), &stack.z(to), t.weight as f32)
         }
     }
 }

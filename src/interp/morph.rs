@@ -17,7 +17,7 @@
 //! - Row bands run in parallel with rayon; every cell is computed alone, so the output is the same
 //!   bit for bit on any number of threads.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 use rayon::prelude::*;
 
 use super::flow::{sample_clamped, FlowField, RasterDims};
@@ -60,8 +60,8 @@ const BAND_ROWS: usize = 16;
 /// None when every array is in standard (row-major) layout, as those built by this crate are.
 pub fn morph_into(
     out: &mut Array2<f32>,
-    a: &Array2<f32>,
-    b: &Array2<f32>,
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
     field: &FlowField,
     w: f32,
 ) {
@@ -185,7 +185,7 @@ mod tests {
         assert!((lin(20) - 1.0).abs() < 1e-3 && (lin(40) - 1.0).abs() < 1e-3);
         assert!((lin(30) - 7.45e-6).abs() < 7.45e-8);
         // Check: REFERENCES.md §5 — both conserve volume; cell sums equal within 1e-4 relative
-        let vol = |z: &Array2<f32>| z.row(1).iter().map(|&v| v as f64).sum::<f64>();
+        let vol = |z: &ArrayRef2<f32>| z.row(1).iter().map(|&v| v as f64).sum::<f64>();
         assert!((vol(&out) - vol(&a)).abs() < 1e-4 * vol(&a));
     }
 

@@ -17,7 +17,7 @@
 //!    on every step of the orbit (pinhole projection, REFERENCES.md §2). For a fixed view the target
 //!    is then slid so the box sits in the middle of the free area, and the distance refitted.
 
-use ndarray::Array2;
+use ndarray::ArrayView2;
 
 use super::camera::{self, Camera};
 use crate::grid::GridGeometry;
@@ -138,10 +138,13 @@ const MIN_FOCUS_SHARE: f64 = 0.3;
 
 /// The area of the grid where the landforms change: see the module doc.
 ///
-/// `surfaces` are the surveys (one shape), `pairs` the compared pairs `(earlier, later, lod_m)`.
-pub fn focus_of_change(
+/// The surveys (one shape) are `surface(0..count)`, fetched when needed and never more than two
+/// at a time (a stack kept in a scratch file hands each back when the next is fetched); `pairs`
+/// are the compared pairs `(earlier, later, lod_m)`.
+pub fn focus_of_change<'s>(
     g: &GridGeometry,
-    surfaces: &[&Array2<f32>],
+    count: usize,
+    surface: &dyn Fn(usize) -> ArrayView2<'s, f32>,
     pairs: &[(usize, usize, f64)],
 ) -> Focus {
     let (rows, cols) = (g.rows, g.cols);
@@ -149,9 +152,10 @@ pub fn focus_of_change(
     let (br, bc) = (rows.div_ceil(block), cols.div_ceil(block));
     let mut changed_block = vec![false; br * bc];
     for &(a, b, lod) in pairs {
-        let (Some(za), Some(zb)) = (surfaces.get(a), surfaces.get(b)) else {
+        if a >= count || b >= count {
             continue;
-        };
+        }
+        let (za, zb) = (surface(a), surface(b));
         if za.dim() != (rows, cols) || zb.dim() != (rows, cols) {
             continue;
         }
@@ -169,8 +173,8 @@ pub fn focus_of_change(
         }
     }
     let finish = |f: Focus| Focus {
-        relief_m: robust_relief_m(surfaces, &f),
-        envelope: envelope(g, surfaces, &f),
+        relief_m: robust_relief_m(count, surface, &f),
+        envelope: envelope(g, count, surface, &f),
         ..f
     };
     let whole = Focus::whole(g, 0.0);
@@ -224,7 +228,12 @@ const ENVELOPE_STEPS: usize = 32;
 
 /// The terrain's envelope over `surfaces` inside `f`: see [`Focus::envelope`]. Each node covers
 /// the cells within half a lattice step of it, so every cell of the focus is under some node.
-fn envelope(g: &GridGeometry, surfaces: &[&Array2<f32>], f: &Focus) -> Vec<[f64; 4]> {
+fn envelope<'s>(
+    g: &GridGeometry,
+    count: usize,
+    surface: &dyn Fn(usize) -> ArrayView2<'s, f32>,
+    f: &Focus,
+) -> Vec<[f64; 4]> {
     let (nr, nc) = (f.row1 - f.row0, f.col1 - f.col0);
     let (sr, sc) = (nr.min(ENVELOPE_STEPS), nc.min(ENVELOPE_STEPS));
     if sr == 0 || sc == 0 {
@@ -232,32 +241,41 @@ fn envelope(g: &GridGeometry, surfaces: &[&Array2<f32>], f: &Focus) -> Vec<[f64;
     }
     let (hr, hc) = (nr.div_ceil(2 * sr), nc.div_ceil(2 * sc));
     let (cxm, cym) = (g.cell_x_m(), g.cell_y_m());
-    let mut out = Vec::with_capacity((sr + 1) * (sc + 1));
-    for i in 0..=sr {
-        let edge_r = f.row0 as f64 + nr as f64 * i as f64 / sr as f64;
-        let rn = edge_r.round() as usize;
-        let rows = rn.saturating_sub(hr).max(f.row0)..(rn + hr).min(f.row1).max(f.row0 + 1);
-        for j in 0..=sc {
+    // Node (i, j): its edge position and the cells it covers.
+    let nodes: Vec<(f64, f64, std::ops::Range<usize>, std::ops::Range<usize>)> = (0..=sr)
+        .flat_map(|i| (0..=sc).map(move |j| (i, j)))
+        .map(|(i, j)| {
+            let edge_r = f.row0 as f64 + nr as f64 * i as f64 / sr as f64;
+            let rn = edge_r.round() as usize;
+            let rows = rn.saturating_sub(hr).max(f.row0)..(rn + hr).min(f.row1).max(f.row0 + 1);
             let edge_c = f.col0 as f64 + nc as f64 * j as f64 / sc as f64;
             let cn = edge_c.round() as usize;
             let cols = cn.saturating_sub(hc).max(f.col0)..(cn + hc).min(f.col1).max(f.col0 + 1);
-            let (mut lo, mut hi) = (f32::INFINITY, f32::NEG_INFINITY);
-            for z in surfaces {
-                for v in z.slice(ndarray::s![rows.clone(), cols.clone()]) {
-                    if v.is_finite() {
-                        lo = lo.min(*v);
-                        hi = hi.max(*v);
-                    }
+            (edge_r, edge_c, rows, cols)
+        })
+        .collect();
+    // One survey at a time over every node (lowest and highest do not depend on the order).
+    let mut range = vec![(f32::INFINITY, f32::NEG_INFINITY); nodes.len()];
+    for k in 0..count {
+        let z = surface(k);
+        for ((_, _, rows, cols), (lo, hi)) in nodes.iter().zip(range.iter_mut()) {
+            for v in z.slice(ndarray::s![rows.clone(), cols.clone()]) {
+                if v.is_finite() {
+                    *lo = lo.min(*v);
+                    *hi = hi.max(*v);
                 }
             }
-            if lo <= hi {
-                out.push([
-                    (edge_c - g.cols as f64 / 2.0) * cxm,
-                    (g.rows as f64 / 2.0 - edge_r) * cym,
-                    f64::from(lo),
-                    f64::from(hi),
-                ]);
-            }
+        }
+    }
+    let mut out = Vec::with_capacity(nodes.len());
+    for ((edge_r, edge_c, _, _), (lo, hi)) in nodes.into_iter().zip(range) {
+        if lo <= hi {
+            out.push([
+                (edge_c - g.cols as f64 / 2.0) * cxm,
+                (g.rows as f64 / 2.0 - edge_r) * cym,
+                f64::from(lo),
+                f64::from(hi),
+            ]);
         }
     }
     out
@@ -307,10 +325,16 @@ const RELIEF_SAMPLES: usize = 1 << 18;
 
 /// The 0.5th to 99.5th percentile spread of the elevations inside `f` over all `surfaces`, in metres
 /// (0 when there are no data).
-pub fn robust_relief_m(surfaces: &[&Array2<f32>], f: &Focus) -> f64 {
+/// The surveys are `surface(0..count)`, fetched one at a time.
+pub fn robust_relief_m<'s>(
+    count: usize,
+    surface: &dyn Fn(usize) -> ArrayView2<'s, f32>,
+    f: &Focus,
+) -> f64 {
     let mut lo = f64::INFINITY;
     let mut hi = f64::NEG_INFINITY;
-    for z in surfaces {
+    for k in 0..count {
+        let z = surface(k);
         let cells = (f.row1 - f.row0) * (f.col1 - f.col0);
         let stride = cells.div_ceil(RELIEF_SAMPLES).max(1);
         let mut v: Vec<f32> = z
@@ -584,6 +608,7 @@ pub fn projected_box(cam: &Camera, points: &[[f64; 3]]) -> Option<(f64, f64, f64
 #[cfg(test)]
 mod tests {
     use super::*;
+    use ndarray::Array2;
 
     fn geometry(cols: usize, rows: usize) -> GridGeometry {
         GridGeometry {
@@ -624,7 +649,7 @@ mod tests {
         let g = geometry(400, 300);
         let (a, b) = (dune(&g, 100.0, 150.0, 1), dune(&g, 130.0, 150.0, 2));
         // Check: Brasington et al. (2003) LoD = 1.96·√(0.1² + 0.1²) = 0.277186 m; REFERENCES.md §7
-        let f = focus_of_change(&g, &[&a, &b], &[(0, 1, 0.277_186)]);
+        let f = focus_of_change(&g, 2, &|i| [&a, &b][i].view(), &[(0, 1, 0.277_186)]);
         assert!(!f.is_whole(&g), "{f:?}");
         // The dune spans about cols 55..175 over the two surveys; the focus holds it, with margin,
         // and leaves out the unchanged east of the grid.
@@ -634,7 +659,7 @@ mod tests {
         assert!((11.5..13.0).contains(&f.relief_m), "{f:?}");
         // Noise alone (same dune, new noise) gives no change: the whole grid.
         let c = dune(&g, 100.0, 150.0, 3);
-        assert!(focus_of_change(&g, &[&a, &c], &[(0, 1, 0.277_186)]).is_whole(&g));
+        assert!(focus_of_change(&g, 2, &|i| [&a, &c][i].view(), &[(0, 1, 0.277_186)]).is_whole(&g));
     }
 
     #[test]

@@ -208,7 +208,7 @@ pub enum Colouring<'a> {
     /// symmetric to ±`limit_m`; |change| below `lod_m` is drawn neutral.
     Change {
         /// The earlier surface's elevations, row-major, same shape as the rendered surface.
-        reference: &'a ndarray::Array2<f32>,
+        reference: &'a ndarray::ArrayRef2<f32>,
         /// Change in metres mapped to the ends of the ramp (> 0).
         limit_m: f32,
         /// Level of detection in metres: smaller changes are drawn as no change.

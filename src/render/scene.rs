@@ -216,7 +216,7 @@ pub(crate) fn light_point(
 }
 
 /// Contiguous row-major heights of a surface, copying only if its layout is not standard.
-fn heights<'a>(z: &'a ndarray::Array2<f32>, copy: &'a mut Vec<f32>) -> &'a [f32] {
+fn heights<'a>(z: &'a ndarray::ArrayRef2<f32>, copy: &'a mut Vec<f32>) -> &'a [f32] {
     if let Some(s) = z.as_slice() {
         return s;
     }

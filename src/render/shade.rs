@@ -11,7 +11,7 @@
 //! then a missing corner by `z_row + z_col − z5`. That keeps the gradient of a plane exact right up
 //! to the edge.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 
 /// Unit vector toward the sun for compass azimuth and altitude in degrees.
 pub fn sun_vector(azimuth_deg: f64, altitude_deg: f64) -> [f32; 3] {
@@ -102,7 +102,7 @@ pub fn blinn_phong(n: [f32; 3], l: [f32; 3], v: [f32; 3], shininess: f32) -> f32
 /// 2D hillshade `max(0, n·s)` in [0, 1] of a grid (NaN where nodata), from Horn normals with heights
 /// multiplied by `exaggeration`. Cell sizes in metres, heights in metres.
 pub fn hillshade(
-    z: &Array2<f32>,
+    z: &ArrayRef2<f32>,
     cell_x_m: f64,
     cell_y_m: f64,
     azimuth_deg: f64,

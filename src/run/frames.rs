@@ -40,6 +40,9 @@ pub(super) struct Painter<'a> {
     shell: Surface,
     /// Which grid `shell` holds (see `paint`), None before the first.
     shell_holds: Option<usize>,
+    /// The interval (its earlier survey) of the frame painted last: when the next frame starts
+    /// another, the stack may hand back the grids read so far (see `AlignedStack::let_go`).
+    interval: Option<usize>,
     /// The crest of every survey as the frames show it (display unit): (decimal year, value).
     survey_points: Vec<(f64, f64)>,
     /// Each of those surveys' σ (display unit), for the chart's ±σ bars.
@@ -100,6 +103,7 @@ impl<'a> Painter<'a> {
             shell_grid,
             shell: Surface::for_stack(stack),
             shell_holds: None,
+            interval: None,
             surface: Surface::for_stack(stack),
             survey_points,
             survey_sigma,
@@ -121,6 +125,10 @@ impl<'a> Painter<'a> {
     ) -> FrameFigures {
         let (job, stack) = (self.job, self.stack);
         let unit = job.change.display_unit;
+        if self.interval != Some(t.from) {
+            stack.let_go();
+            self.interval = Some(t.from);
+        }
         make_surface(&mut self.surface, stack, self.fields, job, t);
         // The crest of this very surface; between surveys the blend's σ (see `change::crest`).
         let sigma = |i: usize| self.record.surveys[i].sigma_z_m;
@@ -135,7 +143,7 @@ impl<'a> Painter<'a> {
         // The shell: a grid from the job, or an earlier survey (none on the survey itself).
         // (Which grid: `usize::MAX` for the job's shell grid, else the survey's index.)
         let shell_z = match self.shell_grid {
-            Some(z) => Some((usize::MAX, z)),
+            Some(z) => Some((usize::MAX, z.view())),
             None => earlier_survey(job.shell_survey, t.kind)
                 .filter(|&i| i != t.from || !t.kind.is_measured())
                 .map(|i| (i, stack.z(i))),
@@ -144,17 +152,19 @@ impl<'a> Painter<'a> {
             // The renderer fades the shell in with its height above the surface. Copied only when
             // it changes (at 4096² a copy is 64 MB, and the shell is often one survey throughout).
             if self.shell_holds != Some(which) {
-                self.shell.z.assign(z);
+                self.shell.z.assign(&z);
                 self.shell_holds = Some(which);
             }
         }
         let shell = shell_z.map(|_| &self.shell);
+        let change_reference;
         let colouring = match (self.change_colour, &job.colour) {
             (Some((limit_m, t_lod)), ColourBy::Change { since, .. }) => {
                 let r = earlier_survey(*since, t.kind).unwrap_or(t.from);
                 let lod_m = t_lod * sigma(r).hypot(sigma(t.from).max(sigma(t.to)));
+                change_reference = stack.z(r);
                 Colouring::Change {
-                    reference: stack.z(r),
+                    reference: &change_reference,
                     limit_m: limit_m as f32,
                     lod_m: lod_m as f32,
                 }
@@ -326,8 +336,8 @@ pub(super) fn make_surface(
             out.kind = t.kind;
             morph::morph_into(
                 &mut out.z,
-                stack.z(from),
-                stack.z(to),
+                &stack.z(from),
+                &stack.z(to),
                 field,
                 t.weight as f32,
             );
@@ -356,7 +366,7 @@ fn largest_change_m(stack: &AlignedStack, since: ShellSurvey) -> f64 {
         } else {
             i - 1
         };
-        for (a, b) in stack.z(i).iter().zip(stack.z(r)) {
+        for (a, b) in stack.z(i).iter().zip(&stack.z(r)) {
             let d = (a - b).abs();
             if d.is_finite() {
                 most = most.max(d);

@@ -33,6 +33,7 @@ use crate::grid::GridGeometry;
 use crate::interp::flow::{self, FlowResult};
 use crate::job::{ColourBy, Job, Method};
 use crate::render::{framing, Drape, Focus, Renderer, FREE_AREA};
+use crate::reproject::Reprojection;
 use crate::survey;
 use crate::timeline::{self, Timeline};
 
@@ -189,22 +190,8 @@ fn prepare(job: &Job) -> Result<Prepared> {
 
 fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
     let mut clock = Stopwatch::start();
-    // Grids are read side by side; the first failing survey in job order is the one reported.
-    let surveys = job
-        .surveys
-        .par_iter()
-        .map(survey::read_survey)
-        .collect::<Vec<_>>()
-        .into_iter()
-        .collect::<Result<Vec<_>>>()?;
-    clock.lap("read grids");
-    let unit_warnings: Vec<String> = surveys
-        .iter()
-        .enumerate()
-        .flat_map(|(i, s)| s.unit_warnings(i))
-        .collect();
-    let (mut stack, reprojections) = align::align_with_report(surveys, job.area_of_interest)?;
-    clock.lap("align");
+    let (mut stack, reprojections, unit_warnings) = read_and_align(job)?;
+    clock.lap("read and align grids");
     let stable = series::stable_ground(job, &stack)?;
     let (registrations, coreg_warnings) = series::coregister_stack(job, &mut stack, stable);
     clock.lap("co-register");
@@ -275,7 +262,7 @@ fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
         Vec::new()
     };
     let items = crate::waves::map_in_waves(n_fields + pairs.len(), |k| {
-        if k < n_fields {
+        let item = if k < n_fields {
             Item::Field(needed[k].then(|| Box::new(pair_field(job, &stack, k))))
         } else {
             let mut pair = pairs[k - n_fields]
@@ -287,7 +274,9 @@ fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
                 &mut pair,
                 FLOW_MAX_SIDE,
             ))
-        }
+        };
+        stack.let_go();
+        item
     });
     drop(pairs);
     let (mut estimated, mut found) = (Vec::new(), Vec::new());
@@ -344,6 +333,39 @@ impl Prepared {
         }
         self.fields = fields;
     }
+}
+
+/// Reads the job's surveys and brings them onto the analysis grid, as many side by side as there are
+/// threads: each is pushed onto the stack as soon as it is read and then dropped, so the grids as
+/// read never all sit in memory at once (and a long series of large grids goes straight to the
+/// stack's scratch file, see `crate::elevations`). The first failing survey in job order is the
+/// one reported. Also returns the warnings for units nobody stated.
+pub(super) fn read_and_align(
+    job: &Job,
+) -> Result<(AlignedStack, Vec<Option<Reprojection>>, Vec<String>)> {
+    let threads = rayon::current_num_threads().max(1);
+    let mut unit_warnings = Vec::new();
+    let mut builder: Option<align::StackBuilder> = None;
+    for (c, specs) in job.surveys.chunks(threads).enumerate() {
+        let read: Vec<Result<survey::Survey>> = specs.par_iter().map(survey::read_survey).collect();
+        for (k, s) in read.into_iter().enumerate() {
+            let s = s?;
+            unit_warnings.extend(s.unit_warnings(c * threads + k));
+            let b = match &mut builder {
+                Some(b) => b,
+                None => builder.insert(align::StackBuilder::new(
+                    &s,
+                    job.surveys.len(),
+                    job.area_of_interest,
+                )?),
+            };
+            b.push(s)?;
+        }
+    }
+    let builder =
+        builder.ok_or_else(|| Error::job(&job.path, "surveys", "the job lists no surveys"))?;
+    let (stack, reprojections) = builder.finish()?;
+    Ok((stack, reprojections, unit_warnings))
 }
 
 /// The renderer and what it draws besides the surveys, checked against the stack.
@@ -410,7 +432,13 @@ pub(super) fn scene(job: &Job, stack: &AlignedStack, record: &ChangeRecord) -> R
 /// The displacement field of the pair (survey `i`, survey `i + 1`).
 pub(super) fn pair_field(job: &Job, stack: &AlignedStack, i: usize) -> FlowResult {
     let cell_m = stack.geometry().cell_x_m();
-    flow::estimate_within(stack.z(i), stack.z(i + 1), cell_m, &job.flow, FLOW_MAX_SIDE)
+    flow::estimate_within(
+        &stack.z(i),
+        &stack.z(i + 1),
+        cell_m,
+        &job.flow,
+        FLOW_MAX_SIDE,
+    )
 }
 
 /// How the frames were drawn, for `run.json`: the exaggeration used and whether it was chosen, the
@@ -454,13 +482,32 @@ pub(super) fn view_as_run(
 /// The area the camera frames when the job sets no distance: where the surveys change beyond the
 /// level of detection of the record's pairs (see `render::framing::focus_of_change`).
 pub fn focus_of(stack: &AlignedStack, record: &ChangeRecord) -> Focus {
-    let surfaces: Vec<_> = (0..stack.len()).map(|i| stack.z(i)).collect();
     let pairs: Vec<_> = record
         .pairs
         .iter()
         .map(|p| (p.from_index, p.to_index, p.lod_m))
         .collect();
-    framing::focus_of_change(stack.geometry(), &surfaces, &pairs)
+    // Letting go before each fetch keeps no more than the two surveys in use resident.
+    let surface = |i: usize| {
+        stack.let_go();
+        stack.z(i)
+    };
+    let focus = framing::focus_of_change(stack.geometry(), stack.len(), &surface, &pairs);
+    stack.let_go();
+    focus
+}
+
+/// Hands the heap that a finished stage freed back to the system. glibc's allocator keeps freed
+/// blocks below its mapping threshold (up to 32 MB each) for reuse, so without this one stage's
+/// scratch arrays (byte masks, crops) stay resident under the next stage and add to its peak.
+/// Called at every stage boundary; elsewhere (other C libraries) it does nothing.
+fn give_back_free_heap() {
+    #[cfg(all(target_os = "linux", target_env = "gnu"))]
+    // SAFETY: malloc_trim only returns free memory to the system; it takes the allocator's lock
+    // and touches no memory in use.
+    unsafe {
+        libc::malloc_trim(0);
+    }
 }
 
 /// Wall-clock time of each stage of a run, for `-v` and the benchmarks. Kept out of the record on
@@ -497,6 +544,7 @@ impl Stopwatch {
         };
         self.last_cpu_s = cpu;
         let peak = stage_peak_resident_mib();
+        give_back_free_heap();
         // Where the system lets the peak be reset, each stage reports its own peak (the process's
         // peak is kept aside, see `peak_resident_mib`).
         let own = reset_peak_resident();

@@ -346,6 +346,7 @@ fn write_poster(
             ))
         );
         tiles_frames.push((f, caption));
+        stack.let_go();
     }
     let tiles: Vec<PosterTile> = tiles_frames
         .iter()
@@ -641,6 +642,7 @@ fn difference_rasters(
                 content: ExtraContent::File(path),
             });
         }
+        stack.let_go();
     }
     Ok(out)
 }

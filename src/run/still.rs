@@ -17,14 +17,13 @@ use chrono::{NaiveDate, NaiveDateTime};
 
 use super::frames::Painter;
 use super::{effective_method, pair_field, scene, Scene};
-use crate::align::{self, AlignedStack};
+use crate::align::AlignedStack;
 use crate::change;
 use crate::encode::png_seq::{self, PosterOptions, PosterTile};
 use crate::error::{Error, Result};
 use crate::interp::flow::FlowResult;
 use crate::job::{Job, Method};
 use crate::render::Frame;
-use crate::survey;
 use crate::timeline::{self, FrameKind, FrameTime, Timeline};
 
 /// A viewpoint given on the command line: `facing,elevation,distance`.
@@ -151,13 +150,8 @@ pub fn still(job: &Job, opts: &StillOptions) -> Result<StillReport> {
         job.view.orbit_deg = 0.0;
     }
     let job = &job;
-    let surveys = job
-        .surveys
-        .iter()
-        .map(survey::read_survey)
-        .collect::<Result<Vec<_>>>()?;
     // The same surfaces as `render`: reprojected, then co-registered on stable ground.
-    let (mut stack, _) = align::align_with_report(surveys, job.area_of_interest)?;
+    let (mut stack, _, _) = super::read_and_align(job)?;
     let stable = super::series::stable_ground(job, &stack)?;
     let _ = super::series::coregister_stack(job, &mut stack, stable);
     let dates: Vec<_> = stack.surveys().iter().map(|s| s.date).collect();

@@ -1,5 +1,6 @@
 use super::*;
 use crate::change::testkit::geometry;
+use ndarray::Array2;
 
 /// SplitMix64 (Steele, Lea & Flood 2014, from memory) and a normal draw as the sum of twelve
 /// uniforms minus six (variance 1; common practice, no source). Seeded, so every run is the same.

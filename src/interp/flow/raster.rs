@@ -193,52 +193,49 @@ pub(crate) fn double_field(coarse: &[f32], dc: Dims, fine: Dims) -> Vec<f32> {
 /// ground around the landform instead of tilting towards wherever the dunes stand, which matters
 /// because any tilt left in the relief turns into a height offset when the relief is shifted.
 pub(crate) fn base_plane(a: &[f32], b: &[f32], d: Dims) -> [f64; 3] {
-    let mean: Vec<f64> = a
-        .iter()
-        .zip(b)
-        .map(|(&x, &y)| {
-            if x.is_finite() && y.is_finite() {
-                0.5 * (x as f64 + y as f64)
-            } else {
-                f64::NAN
-            }
-        })
-        .collect();
-    let mut use_cell: Vec<bool> = mean.iter().map(|v| v.is_finite()).collect();
-    let total = use_cell.iter().filter(|&&u| u).count();
-    let mut p = fit_plane(&mean, &use_cell, d);
+    base_plane_outside(a, b, None, d)
+}
+
+/// [`base_plane`] over the cells not marked in `skip` (all cells when None), read in place: no
+/// grid-sized copy is made, so at 4096² it costs two passes, not 150 MB.
+pub(crate) fn base_plane_outside(a: &[f32], b: &[f32], skip: Option<&[bool]>, d: Dims) -> [f64; 3] {
+    let n = a.len().min(b.len());
+    let mean = |i: usize| -> Option<f64> {
+        let (x, y) = (a[i], b[i]);
+        (x.is_finite() && y.is_finite() && !skip.is_some_and(|s| s[i]))
+            .then_some(0.5 * (x as f64 + y as f64))
+    };
+    let total = (0..n).filter(|&i| mean(i).is_some()).count();
+    let mut p = fit_plane(n, mean, d);
     for _ in 0..2 {
-        let below: Vec<bool> = mean
-            .iter()
-            .enumerate()
-            .map(|(i, &z)| {
-                z.is_finite() && z <= p[0] + p[1] * (i % d.cols) as f64 + p[2] * (i / d.cols) as f64
-            })
-            .collect();
-        if below.iter().filter(|&&u| u).count() < (total / 10).max(3) {
+        let q = p;
+        let below = |i: usize| {
+            mean(i).filter(|&z| z <= q[0] + q[1] * (i % d.cols) as f64 + q[2] * (i / d.cols) as f64)
+        };
+        if (0..n).filter(|&i| below(i).is_some()).count() < (total / 10).max(3) {
             break;
         }
-        use_cell = below;
-        p = fit_plane(&mean, &use_cell, d);
+        p = fit_plane(n, below, d);
     }
     p
 }
 
-/// Least-squares plane through the cells of `z` marked in `use_cell`; level when they are collinear.
-fn fit_plane(z: &[f64], use_cell: &[bool], d: Dims) -> [f64; 3] {
-    let (mut n, mut sx, mut sy, mut sz) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
-    for (i, (&v, _)) in z.iter().zip(use_cell).enumerate().filter(|(_, (_, &u))| u) {
-        n += 1.0;
+/// Least-squares plane through the cells `0..n` for which `z` gives a value; level when they are
+/// collinear.
+fn fit_plane(n: usize, z: impl Fn(usize) -> Option<f64>, d: Dims) -> [f64; 3] {
+    let (mut count, mut sx, mut sy, mut sz) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
+    for (i, v) in (0..n).filter_map(|i| z(i).map(|v| (i, v))) {
+        count += 1.0;
         sx += (i % d.cols) as f64;
         sy += (i / d.cols) as f64;
         sz += v;
     }
-    if n == 0.0 {
+    if count == 0.0 {
         return [0.0; 3];
     }
-    let (mx, my, mz) = (sx / n, sy / n, sz / n);
+    let (mx, my, mz) = (sx / count, sy / count, sz / count);
     let (mut xx, mut xy, mut yy, mut xz, mut yz) = (0.0, 0.0, 0.0, 0.0, 0.0);
-    for (i, (&v, _)) in z.iter().zip(use_cell).enumerate().filter(|(_, (_, &u))| u) {
+    for (i, v) in (0..n).filter_map(|i| z(i).map(|v| (i, v))) {
         let x = (i % d.cols) as f64 - mx;
         let y = (i / d.cols) as f64 - my;
         let zz = v - mz;

@@ -6,7 +6,7 @@
 //! and memory (about 25 grid-sized buffers) whatever the survey's size. Measured on the test below:
 //! a 3× reduction of a 600×600 pair changes the recovered dominant displacement by under 0.1 cell.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 
 use super::{estimate, FlowField, FlowOptions, FlowResult};
 
@@ -14,8 +14,8 @@ use super::{estimate, FlowField, FlowOptions, FlowResult};
 /// `k × k` cells (the smallest whole `k` that brings both sides within `max_side`), then
 /// interpolates the field bilinearly back onto the full grid. The result lives on the full grid.
 pub fn estimate_within(
-    a: &Array2<f32>,
-    b: &Array2<f32>,
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
     cell_size_m: f64,
     opts: &FlowOptions,
     max_side: usize,
@@ -47,7 +47,7 @@ pub fn estimate_within(
 
 /// Means of `k × k` blocks over the cells with data; a block with no data is NaN. The last row and
 /// column of blocks may be partial.
-fn block_mean(z: &Array2<f32>, k: usize) -> Array2<f32> {
+fn block_mean(z: &ArrayRef2<f32>, k: usize) -> Array2<f32> {
     let (rows, cols) = z.dim();
     Array2::from_shape_fn((rows.div_ceil(k), cols.div_ceil(k)), |(br, bc)| {
         let (mut sum, mut n) = (0.0f64, 0u32);

@@ -1,6 +1,6 @@
 //! What `flow::estimate` returns: the field, the dominant displacement and the verdict.
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayRef2};
 
 /// The displacement field on the grid of the earlier survey, in metres, with its quality.
 ///
@@ -120,7 +120,7 @@ impl FlowField {
         let fr = (rr - r0 as f64) as f32;
         // A weight of 0 takes nothing, not even a NaN, as in `grid::sample_bilinear`.
         let pick = |v: f32, w: f32| if w == 0.0 { 0.0 } else { v * w };
-        let blend = |z: &Array2<f32>, out: &mut [f32]| {
+        let blend = |z: &ArrayRef2<f32>, out: &mut [f32]| {
             let (top, bottom) = (z.row(r0), z.row(r1));
             for (o, &(c0, c1, fc)) in out.iter_mut().zip(columns) {
                 let (c0, c1) = (c0 as usize, c1 as usize);

@@ -1,0 +1,281 @@
+//! Where the surveys' elevations on the analysis grid live: in memory for an ordinary job, or in an
+//! unnamed scratch file mapped into memory when the stack is large.
+//!
+//! A run visits the surveys a pair at a time (co-registration, the pairs' fields and landforms, the
+//! frames of one interval, one pair's maps), so holding every grid in memory at once only makes the
+//! peak grow with the length of the series: twelve 4096² surveys are 805 MB of elevations alone. A
+//! stack above [`SCRATCH_FILE_ABOVE_BYTES`] is kept in a file in the system's temporary folder
+//! (`TMPDIR`), mapped shared, and [`Elevations::let_go`] hands its pages back to the system after
+//! each piece of work; the next read fetches them again from the file (usually still in the page
+//! cache), so the values never change. The file has no name on disk and vanishes when the run ends,
+//! however it ends.
+//!
+//! Invariant: every grid has the same shape, `rows × cols`, and the store holds exactly `len` of them.
+
+use std::io;
+
+use ndarray::{Array2, ArrayView2, ArrayViewMut2};
+
+/// Stacks larger than this, in bytes, are kept in a mapped scratch file rather than in memory
+/// (256 MiB: sixteen 2048² grids, four 4096² grids; the standard 1024² job stays in memory).
+pub const SCRATCH_FILE_ABOVE_BYTES: usize = 256 << 20;
+
+/// The elevations of every survey of a stack, one `rows × cols` grid each.
+#[derive(Debug)]
+pub struct Elevations {
+    rows: usize,
+    cols: usize,
+    store: Store,
+}
+
+#[derive(Debug)]
+enum Store {
+    Memory(Vec<Array2<f32>>),
+    /// Grid `i` is `cells` floats from float `i * cells`. The file is kept open for the map's life.
+    Mapped {
+        map: memmap2::MmapMut,
+        len: usize,
+        _file: std::fs::File,
+    },
+}
+
+impl Clone for Elevations {
+    /// A clone is always held in memory (tests and library callers clone small stacks).
+    fn clone(&self) -> Self {
+        Elevations {
+            rows: self.rows,
+            cols: self.cols,
+            store: Store::Memory((0..self.len()).map(|i| self.z(i).to_owned()).collect()),
+        }
+    }
+}
+
+impl Elevations {
+    /// Room for `len` grids of `rows × cols`, all zero until written: in memory, or in a scratch
+    /// file when they take more than [`SCRATCH_FILE_ABOVE_BYTES`].
+    ///
+    /// # Errors
+    /// When the scratch file cannot be made or its space reserved (the message names the folder and
+    /// the size, and says to point `TMPDIR` at a folder with room).
+    pub fn new(len: usize, rows: usize, cols: usize) -> io::Result<Self> {
+        let bytes = len * rows * cols * std::mem::size_of::<f32>();
+        if bytes > SCRATCH_FILE_ABOVE_BYTES {
+            Self::in_scratch_file(len, rows, cols)
+        } else {
+            Ok(Self::in_memory(len, rows, cols))
+        }
+    }
+
+    /// Room for `len` grids held in memory.
+    pub fn in_memory(len: usize, rows: usize, cols: usize) -> Self {
+        Elevations {
+            rows,
+            cols,
+            store: Store::Memory(vec![Array2::zeros((rows, cols)); len]),
+        }
+    }
+
+    /// Room for `len` grids in an unnamed file in the temporary folder, mapped shared. The file's
+    /// blocks are reserved up front (and read as zeros), so a full disk is an error here and never
+    /// a crash while writing through the map.
+    ///
+    /// # Errors
+    /// As [`Elevations::new`].
+    pub fn in_scratch_file(len: usize, rows: usize, cols: usize) -> io::Result<Self> {
+        let bytes = len * rows * cols * std::mem::size_of::<f32>();
+        let folder = std::env::temp_dir();
+        let explain = |e: io::Error| {
+            io::Error::new(
+                e.kind(),
+                format!(
+                    "cannot keep the {len} aligned grids ({} MiB) in a scratch file in {}: {e}; set \
+                     TMPDIR to a folder with that much free space",
+                    bytes >> 20,
+                    folder.display()
+                ),
+            )
+        };
+        let file = tempfile::tempfile_in(&folder).map_err(explain)?;
+        reserve(&file, bytes).map_err(explain)?;
+        // SAFETY: the file is unnamed and private to this process, so nothing else can change or
+        // truncate it while mapped; its blocks are reserved, so writes through the map cannot fault.
+        let map = unsafe { memmap2::MmapMut::map_mut(&file) }.map_err(explain)?;
+        Ok(Elevations {
+            rows,
+            cols,
+            store: Store::Mapped {
+                map,
+                len,
+                _file: file,
+            },
+        })
+    }
+
+    /// Number of grids.
+    pub fn len(&self) -> usize {
+        match &self.store {
+            Store::Memory(v) => v.len(),
+            Store::Mapped { len, .. } => *len,
+        }
+    }
+
+    /// True when there are no grids.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// True when the grids are kept in a scratch file.
+    pub fn is_mapped(&self) -> bool {
+        matches!(self.store, Store::Mapped { .. })
+    }
+
+    /// Grid `i`.
+    ///
+    /// # Panics
+    /// When `i >= len`.
+    pub fn z(&self, i: usize) -> ArrayView2<'_, f32> {
+        match &self.store {
+            Store::Memory(v) => v[i].view(),
+            Store::Mapped { map, len, .. } => {
+                assert!(i < *len, "grid {i} of {len}");
+                let cells = self.rows * self.cols;
+                let all = floats(map);
+                ArrayView2::from_shape((self.rows, self.cols), &all[i * cells..(i + 1) * cells])
+                    .expect("the store's length matches its shape")
+            }
+        }
+    }
+
+    /// Grid `i`, to change in place.
+    ///
+    /// # Panics
+    /// When `i >= len`.
+    pub fn z_mut(&mut self, i: usize) -> ArrayViewMut2<'_, f32> {
+        let (rows, cols) = (self.rows, self.cols);
+        match &mut self.store {
+            Store::Memory(v) => v[i].view_mut(),
+            Store::Mapped { map, len, .. } => {
+                assert!(i < *len, "grid {i} of {len}");
+                let cells = rows * cols;
+                let all = floats_mut(map);
+                ArrayViewMut2::from_shape((rows, cols), &mut all[i * cells..(i + 1) * cells])
+                    .expect("the store's length matches its shape")
+            }
+        }
+    }
+
+    /// Hands the memory of a scratch-file store back to the system; the next read of a grid
+    /// fetches it again from the file, with the same values. Nothing happens to an in-memory store.
+    /// Call it when a piece of work that read some grids is done; it is safe at any time, even
+    /// while other threads read.
+    pub fn let_go(&self) {
+        if let Store::Mapped { map, .. } = &self.store {
+            // SAFETY: for a shared file mapping, MADV_DONTNEED only drops this process's page
+            // table entries; the data stays in the page cache and the file, and is read back on
+            // the next access, so no value a reader sees can change. The map is never private.
+            // A failure leaves the pages resident, which costs memory, not correctness.
+            #[cfg(unix)]
+            let _ = unsafe { map.unchecked_advise(memmap2::UncheckedAdvice::DontNeed) };
+            #[cfg(not(unix))]
+            let _ = map;
+        }
+    }
+}
+
+/// The map's bytes as floats (the map is page-aligned and a whole number of floats long).
+fn floats(map: &memmap2::MmapMut) -> &[f32] {
+    bytemuck::cast_slice(&map[..])
+}
+
+fn floats_mut(map: &mut memmap2::MmapMut) -> &mut [f32] {
+    bytemuck::cast_slice_mut(&mut map[..])
+}
+
+/// Gives `file` `bytes` of reserved blocks (not a sparse hole), so writing through a map cannot
+/// run out of space half way.
+fn reserve(file: &std::fs::File, bytes: usize) -> io::Result<()> {
+    #[cfg(target_os = "linux")]
+    {
+        use std::os::unix::io::AsRawFd;
+        // SAFETY: a plain system call on an open descriptor we own.
+        let rc = unsafe { libc::posix_fallocate(file.as_raw_fd(), 0, bytes as libc::off_t) };
+        if rc != 0 {
+            return Err(io::Error::from_raw_os_error(rc));
+        }
+        Ok(())
+    }
+    #[cfg(not(target_os = "linux"))]
+    {
+        file.set_len(bytes as u64)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ramp(rows: usize, cols: usize, k: f32) -> Array2<f32> {
+        Array2::from_shape_fn((rows, cols), |(r, c)| k + (r * cols + c) as f32 * 0.25)
+    }
+
+    #[test]
+    fn a_scratch_file_store_reads_back_what_was_written_after_letting_go() {
+        let (rows, cols) = (37, 53);
+        let mut mapped = Elevations::in_scratch_file(3, rows, cols).unwrap();
+        let mut memory = Elevations::in_memory(3, rows, cols);
+        assert!(mapped.is_mapped() && !memory.is_mapped());
+        for i in 0..3 {
+            // Unwritten grids are zero in both.
+            assert!(mapped.z(i).iter().all(|&v| v == 0.0));
+            assert!(memory.z(i).iter().all(|&v| v == 0.0));
+            let g = ramp(rows, cols, i as f32 * 100.0);
+            mapped.z_mut(i).assign(&g);
+            memory.z_mut(i).assign(&g);
+            mapped.let_go();
+        }
+        mapped.z_mut(1)[[5, 7]] = -3.5;
+        memory.z_mut(1)[[5, 7]] = -3.5;
+        mapped.let_go();
+        for i in 0..3 {
+            assert_eq!(mapped.z(i), memory.z(i), "grid {i}");
+            assert_eq!(mapped.z(i).dim(), (rows, cols));
+        }
+        assert_eq!(mapped.z(2)[[36, 52]], 200.0 + (36 * 53 + 52) as f32 * 0.25);
+        // A clone lives in memory and holds the same values.
+        let copy = mapped.clone();
+        assert!(!copy.is_mapped());
+        assert_eq!(copy.z(1), mapped.z(1));
+    }
+
+    #[test]
+    fn letting_go_hands_the_pages_back() {
+        // 64 MiB of grids: resident after writing, far less after letting go (the map's pages
+        // count as file or shared memory, not heap).
+        let mut e = Elevations::in_scratch_file(4, 2048, 2048).unwrap();
+        for i in 0..4 {
+            e.z_mut(i).fill(i as f32);
+        }
+        let before = resident_kib();
+        e.let_go();
+        let after = resident_kib();
+        if let (Some(before), Some(after)) = (before, after) {
+            assert!(
+                after + 32 * 1024 < before,
+                "resident {before} KiB before letting go, {after} KiB after"
+            );
+        }
+        assert!(e.z(3).iter().all(|&v| v == 3.0));
+    }
+
+    /// This process's resident memory that maps files (RssFile + RssShmem: a tmpfs TMPDIR counts
+    /// as shared memory) from /proc on Linux; None elsewhere. Other tests running at the same
+    /// time allocate from the heap, which this leaves out.
+    fn resident_kib() -> Option<u64> {
+        let status = std::fs::read_to_string("/proc/self/status").ok()?;
+        let kib = |key: &str| -> Option<u64> {
+            let line = status.lines().find(|l| l.starts_with(key))?;
+            line.split_whitespace().nth(1)?.parse().ok()
+        };
+        Some(kib("RssFile:")? + kib("RssShmem:")?)
+    }
+}
