@@ -98,7 +98,10 @@ impl AlignedStack {
             (self.geometry.rows, self.geometry.cols),
             "a corrected surface keeps the analysis grid"
         );
-        self.elevations.z_mut(i).assign(&z);
+        if let Err(e) = self.elevations.set(i, &z) {
+            // The file's blocks were reserved when the stack was made, so this is a failing disk.
+            panic!("cannot write the corrected survey {i} to the stack's scratch file: {e}");
+        }
     }
     /// Smallest and largest finite elevation over all surveys (for a colour scale fixed across frames).
     pub fn elevation_range(&self) -> Option<(f32, f32)> {
@@ -253,7 +256,7 @@ impl StackBuilder {
                     ),
                 ));
             }
-            self.elevations.z_mut(i).assign(&z);
+            self.store(i, &z, &s.source.path)?;
             Some(report)
         } else {
             if g.horizontal_unit != base.horizontal_unit {
@@ -266,15 +269,22 @@ impl StackBuilder {
                     ),
                 ));
             }
-            let mut out = self.elevations.z_mut(i);
-            resample_into(&s.grid, base, out.view_mut());
-            if out.iter().all(|v| v.is_nan()) {
+            // A grid already on the analysis grid (the usual case) is stored as read.
+            let resampled;
+            let z = if s.grid.geometry == *base {
+                &s.grid.z
+            } else {
+                resampled = resample(&s.grid, base);
+                &resampled
+            };
+            if z.iter().all(|v| v.is_nan()) {
                 return Err(Error::input(
                     &s.source.path,
                     "this grid does not overlap the analysis grid (the first survey, cropped to the area of \
                      interest) anywhere with data; check its georeference and CRS",
                 ));
             }
+            self.store(i, z, &s.source.path)?;
             None
         };
         self.elevations.let_go();
@@ -287,6 +297,16 @@ impl StackBuilder {
             source: s.source,
         });
         Ok(())
+    }
+
+    /// Puts survey `i`'s elevations on the analysis grid into the stack.
+    fn store(&mut self, i: usize, z: &Array2<f32>, path: &std::path::Path) -> Result<()> {
+        self.elevations.set(i, z).map_err(|e| {
+            Error::input(
+                path,
+                format!("cannot keep this survey in the stack's scratch file: {e}"),
+            )
+        })
     }
 
     /// The stack, and per survey how it was reprojected (None: already in the analysis grid's CRS).
@@ -360,7 +380,7 @@ pub fn resample(src: &Grid, target: &GridGeometry) -> Array2<f32> {
 }
 
 /// [`resample`] into `out`, which has `target`'s shape.
-pub fn resample_into(src: &Grid, target: &GridGeometry, mut out: ArrayViewMut2<'_, f32>) {
+fn resample_into(src: &Grid, target: &GridGeometry, mut out: ArrayViewMut2<'_, f32>) {
     assert_eq!(
         out.dim(),
         (target.rows, target.cols),

@@ -14,7 +14,7 @@
 
 use std::io;
 
-use ndarray::{Array2, ArrayView2, ArrayViewMut2};
+use ndarray::{Array2, ArrayRef2, ArrayView2, ArrayViewMut2};
 
 /// Stacks larger than this, in bytes, are kept in a mapped scratch file rather than in memory
 /// (256 MiB: sixteen 2048² grids, four 4096² grids; the standard 1024² job stays in memory).
@@ -164,6 +164,33 @@ impl Elevations {
         }
     }
 
+    /// Sets grid `i` to `z`. A scratch-file store writes it to the file rather than through the
+    /// map: a first write through the map would make the system read (zero-fill) each page
+    /// before it is overwritten, which took more time than reading the GeoTIFFs.
+    ///
+    /// # Errors
+    /// When the scratch file cannot be written.
+    ///
+    /// # Panics
+    /// When `i >= len` or `z` has another shape.
+    pub fn set(&mut self, i: usize, z: &ArrayRef2<f32>) -> io::Result<()> {
+        assert_eq!(z.dim(), (self.rows, self.cols), "grid shape");
+        let cells = self.rows * self.cols;
+        match &mut self.store {
+            Store::Memory(v) => v[i].assign(z),
+            Store::Mapped {
+                len, _file: file, ..
+            } => {
+                assert!(i < *len, "grid {i} of {len}");
+                let laid_out = z.as_standard_layout();
+                let values = laid_out.as_slice().expect("standard layout");
+                let offset = (i * cells * std::mem::size_of::<f32>()) as u64;
+                write_at(file, bytemuck::cast_slice(values), offset)?;
+            }
+        }
+        Ok(())
+    }
+
     /// Hands the memory of a scratch-file store back to the system; the next read of a grid
     /// fetches it again from the file, with the same values. Nothing happens to an in-memory store.
     /// Call it when a piece of work that read some grids is done; it is safe at any time, even
@@ -189,6 +216,22 @@ fn floats(map: &memmap2::MmapMut) -> &[f32] {
 
 fn floats_mut(map: &mut memmap2::MmapMut) -> &mut [f32] {
     bytemuck::cast_slice_mut(&mut map[..])
+}
+
+/// Writes all of `bytes` at `offset` in `file`.
+fn write_at(file: &std::fs::File, bytes: &[u8], offset: u64) -> io::Result<()> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileExt;
+        file.write_all_at(bytes, offset)
+    }
+    #[cfg(not(unix))]
+    {
+        use std::io::{Seek, SeekFrom, Write};
+        let mut f = file;
+        f.seek(SeekFrom::Start(offset))?;
+        f.write_all(bytes)
+    }
 }
 
 /// Gives `file` `bytes` of reserved blocks (not a sparse hole), so writing through a map cannot
@@ -229,8 +272,13 @@ mod tests {
             assert!(mapped.z(i).iter().all(|&v| v == 0.0));
             assert!(memory.z(i).iter().all(|&v| v == 0.0));
             let g = ramp(rows, cols, i as f32 * 100.0);
-            mapped.z_mut(i).assign(&g);
-            memory.z_mut(i).assign(&g);
+            if i == 1 {
+                // Written through the map and through the file alike.
+                mapped.z_mut(i).assign(&g);
+            } else {
+                mapped.set(i, &g).unwrap();
+            }
+            memory.set(i, &g).unwrap();
             mapped.let_go();
         }
         mapped.z_mut(1)[[5, 7]] = -3.5;

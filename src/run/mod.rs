@@ -335,20 +335,24 @@ impl Prepared {
     }
 }
 
-/// Reads the job's surveys and brings them onto the analysis grid, as many side by side as there are
-/// threads: each is pushed onto the stack as soon as it is read and then dropped, so the grids as
-/// read never all sit in memory at once (and a long series of large grids goes straight to the
-/// stack's scratch file, see `crate::elevations`). The first failing survey in job order is the
-/// one reported. Also returns the warnings for units nobody stated.
+/// Reads the job's surveys and brings them onto the analysis grid, in chunks of as many surveys as
+/// there are threads, read side by side while the chunk before is pushed onto the stack (a large
+/// stack writes its grids to a scratch file, see `crate::elevations`, and the disk then sets the
+/// pace). Each survey is dropped once pushed, so the grids as read never all sit in memory at
+/// once. The first failing survey in job order is the one reported. Also returns the warnings
+/// for units nobody stated.
 pub(super) fn read_and_align(
     job: &Job,
 ) -> Result<(AlignedStack, Vec<Option<Reprojection>>, Vec<String>)> {
     let threads = rayon::current_num_threads().max(1);
+    let chunks: Vec<_> = job.surveys.chunks(threads).collect();
+    let read = |c: usize| -> Vec<Result<survey::Survey>> {
+        chunks[c].par_iter().map(survey::read_survey).collect()
+    };
     let mut unit_warnings = Vec::new();
     let mut builder: Option<align::StackBuilder> = None;
-    for (c, specs) in job.surveys.chunks(threads).enumerate() {
-        let read: Vec<Result<survey::Survey>> = specs.par_iter().map(survey::read_survey).collect();
-        for (k, s) in read.into_iter().enumerate() {
+    let mut push_chunk = |c: usize, surveys: Vec<Result<survey::Survey>>| -> Result<()> {
+        for (k, s) in surveys.into_iter().enumerate() {
             let s = s?;
             unit_warnings.extend(s.unit_warnings(c * threads + k));
             let b = match &mut builder {
@@ -361,6 +365,17 @@ pub(super) fn read_and_align(
             };
             b.push(s)?;
         }
+        Ok(())
+    };
+    let mut next = (!chunks.is_empty()).then(|| read(0));
+    for c in 0..chunks.len() {
+        let current = next.take().expect("each chunk is read before it is pushed");
+        let (pushed, read_ahead) = rayon::join(
+            || push_chunk(c, current),
+            || (c + 1 < chunks.len()).then(|| read(c + 1)),
+        );
+        pushed?;
+        next = read_ahead;
     }
     let builder =
         builder.ok_or_else(|| Error::job(&job.path, "surveys", "the job lists no surveys"))?;
