@@ -206,13 +206,16 @@ pub(crate) fn base_plane_outside(a: &[f32], b: &[f32], skip: Option<&[bool]>, d:
             .then_some(0.5 * (x as f64 + y as f64))
     };
     let total = (0..n).filter(|&i| mean(i).is_some()).count();
-    let mut p = fit_plane(n, mean, d);
+    let mut p = fit_plane(n, |i, _, _| mean(i), d);
     for _ in 0..2 {
         let q = p;
-        let below = |i: usize| {
-            mean(i).filter(|&z| z <= q[0] + q[1] * (i % d.cols) as f64 + q[2] * (i / d.cols) as f64)
+        let below = |i: usize, r: usize, c: usize| {
+            mean(i).filter(|&z| z <= q[0] + q[1] * c as f64 + q[2] * r as f64)
         };
-        if (0..n).filter(|&i| below(i).is_some()).count() < (total / 10).max(3) {
+        let count = cells(n, d.cols)
+            .filter(|&(i, r, c)| below(i, r, c).is_some())
+            .count();
+        if count < (total / 10).max(3) {
             break;
         }
         p = fit_plane(n, below, d);
@@ -220,24 +223,35 @@ pub(crate) fn base_plane_outside(a: &[f32], b: &[f32], skip: Option<&[bool]>, d:
     p
 }
 
-/// Least-squares plane through the cells `0..n` for which `z` gives a value; level when they are
-/// collinear.
-fn fit_plane(n: usize, z: impl Fn(usize) -> Option<f64>, d: Dims) -> [f64; 3] {
+/// The cells `0..n` of a grid `cols` wide, in order, as (index, row, column).
+fn cells(n: usize, cols: usize) -> impl Iterator<Item = (usize, usize, usize)> {
+    let cols = cols.max(1);
+    (0..n.div_ceil(cols))
+        .flat_map(move |r| (0..cols).map(move |c| (r * cols + c, r, c)))
+        .take_while(move |&(i, _, _)| i < n)
+}
+
+/// Least-squares plane through the cells `0..n` for which `z(index, row, column)` gives a value;
+/// level when they are collinear.
+fn fit_plane(n: usize, z: impl Fn(usize, usize, usize) -> Option<f64>, d: Dims) -> [f64; 3] {
     let (mut count, mut sx, mut sy, mut sz) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
-    for (i, v) in (0..n).filter_map(|i| z(i).map(|v| (i, v))) {
-        count += 1.0;
-        sx += (i % d.cols) as f64;
-        sy += (i / d.cols) as f64;
-        sz += v;
+    for (i, r, c) in cells(n, d.cols) {
+        if let Some(v) = z(i, r, c) {
+            count += 1.0;
+            sx += c as f64;
+            sy += r as f64;
+            sz += v;
+        }
     }
     if count == 0.0 {
         return [0.0; 3];
     }
     let (mx, my, mz) = (sx / count, sy / count, sz / count);
     let (mut xx, mut xy, mut yy, mut xz, mut yz) = (0.0, 0.0, 0.0, 0.0, 0.0);
-    for (i, v) in (0..n).filter_map(|i| z(i).map(|v| (i, v))) {
-        let x = (i % d.cols) as f64 - mx;
-        let y = (i / d.cols) as f64 - my;
+    for (i, r, c) in cells(n, d.cols) {
+        let Some(v) = z(i, r, c) else { continue };
+        let x = c as f64 - mx;
+        let y = r as f64 - my;
         let zz = v - mz;
         xx += x * x;
         xy += x * y;
