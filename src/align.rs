@@ -156,6 +156,37 @@ pub fn align_with_report(
     builder.finish()
 }
 
+/// Where a stack keeps its elevations (see `crate::elevations`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Keep {
+    /// In memory up to [`crate::elevations::SCRATCH_FILE_ABOVE_BYTES`], in a scratch file above.
+    #[default]
+    BySize,
+    /// Always in memory.
+    Memory,
+    /// Always in a scratch file (tests use it to check that both give the same figures).
+    ScratchFile,
+}
+
+/// Like [`align`], with the elevations kept where `keep` says.
+///
+/// # Errors
+/// As [`align`], and when a scratch file cannot be made.
+pub fn align_kept(
+    surveys: Vec<Survey>,
+    aoi: Option<AreaOfInterest>,
+    keep: Keep,
+) -> Result<AlignedStack> {
+    let first = surveys
+        .first()
+        .ok_or_else(|| Error::input(std::path::Path::new("(job)"), "no surveys to align"))?;
+    let mut builder = StackBuilder::with_keep(first, surveys.len(), aoi, keep)?;
+    for s in surveys {
+        builder.push(s)?;
+    }
+    builder.finish().map(|(stack, _)| stack)
+}
+
 /// Builds an [`AlignedStack`] one survey at a time, so a run need not hold every survey as read
 /// and every survey as aligned at once: read a survey, push it, drop it.
 #[derive(Debug)]
@@ -173,6 +204,19 @@ impl StackBuilder {
     /// `Error::Input` when the area of interest misses the first grid, or the scratch file for a
     /// large stack cannot be made (see `crate::elevations`).
     pub fn new(first: &Survey, count: usize, aoi: Option<AreaOfInterest>) -> Result<Self> {
+        Self::with_keep(first, count, aoi, Keep::BySize)
+    }
+
+    /// Like [`StackBuilder::new`], with the elevations kept where `keep` says.
+    ///
+    /// # Errors
+    /// As [`StackBuilder::new`].
+    pub fn with_keep(
+        first: &Survey,
+        count: usize,
+        aoi: Option<AreaOfInterest>,
+        keep: Keep,
+    ) -> Result<Self> {
         let base = match aoi {
             Some(a) => crop_geometry(&first.grid.geometry, &a).ok_or_else(|| {
                 let (w, s, e, n) = first.grid.geometry.extent();
@@ -187,8 +231,12 @@ impl StackBuilder {
             })?,
             None => first.grid.geometry.clone(),
         };
-        let elevations = Elevations::new(count, base.rows, base.cols)
-            .map_err(|e| Error::input(&first.source.path, e.to_string()))?;
+        let elevations = match keep {
+            Keep::BySize => Elevations::new(count, base.rows, base.cols),
+            Keep::Memory => Ok(Elevations::in_memory(count, base.rows, base.cols)),
+            Keep::ScratchFile => Elevations::in_scratch_file(count, base.rows, base.cols),
+        }
+        .map_err(|e| Error::input(&first.source.path, e.to_string()))?;
         Ok(StackBuilder {
             base,
             surveys: Vec::with_capacity(count),

@@ -82,8 +82,20 @@ impl Elevations {
     /// # Errors
     /// As [`Elevations::new`].
     pub fn in_scratch_file(len: usize, rows: usize, cols: usize) -> io::Result<Self> {
+        Self::in_scratch_file_in(&std::env::temp_dir(), len, rows, cols)
+    }
+
+    /// Like [`Elevations::in_scratch_file`], in `folder` rather than the temporary folder.
+    ///
+    /// # Errors
+    /// As [`Elevations::new`].
+    pub fn in_scratch_file_in(
+        folder: &std::path::Path,
+        len: usize,
+        rows: usize,
+        cols: usize,
+    ) -> io::Result<Self> {
         let bytes = len * rows * cols * std::mem::size_of::<f32>();
-        let folder = std::env::temp_dir();
         let explain = |e: io::Error| {
             io::Error::new(
                 e.kind(),
@@ -95,7 +107,7 @@ impl Elevations {
                 ),
             )
         };
-        let file = tempfile::tempfile_in(&folder).map_err(explain)?;
+        let file = tempfile::tempfile_in(folder).map_err(explain)?;
         reserve(&file, bytes).map_err(explain)?;
         // SAFETY: the file is unnamed and private to this process, so nothing else can change or
         // truncate it while mapped; its blocks are reserved, so writes through the map cannot fault.
@@ -293,6 +305,19 @@ mod tests {
         let copy = mapped.clone();
         assert!(!copy.is_mapped());
         assert_eq!(copy.z(1), mapped.z(1));
+    }
+
+    #[test]
+    fn a_scratch_folder_that_cannot_be_used_is_named_with_the_fix() {
+        let missing = std::env::temp_dir().join("dunereel-no-such-folder-for-this-test");
+        let err = Elevations::in_scratch_file_in(&missing, 12, 4096, 4096).unwrap_err();
+        let text = err.to_string();
+        assert!(
+            text.contains("12 aligned grids (768 MiB)")
+                && text.contains(&missing.display().to_string())
+                && text.contains("set TMPDIR"),
+            "{text}"
+        );
     }
 
     #[test]

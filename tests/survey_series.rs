@@ -207,6 +207,64 @@ fn migration_follows_each_moving_dune() {
     assert!((site - 67.5).abs() < 10.0, "{site}");
 }
 
+#[test]
+fn a_stack_in_a_scratch_file_gives_the_figures_of_one_in_memory() {
+    // The same mis-registered pair plus a third survey, kept in memory and in a scratch file
+    // (which hands its pages back after every pair): co-registration, the record and the
+    // landforms must come out the same, value for value.
+    // Check: common practice — a change of storage must not change a figure
+    let a = series_survey(false, 0.0, 0.0, 0.0, NOISE, 1);
+    let b = series_survey(true, OFFSET.0, OFFSET.1, OFFSET.2, NOISE, 2);
+    let c = series_survey(true, 0.0, 0.0, 0.0, NOISE, 3);
+    let surveys = || {
+        vec![
+            survey(0, a.clone()),
+            survey(1, b.clone()),
+            survey(2, c.clone()),
+        ]
+    };
+    let opts = ChangeOptions::default();
+    let figures = |keep: align::Keep| {
+        let mut stack = align::align_kept(surveys(), None, keep).unwrap();
+        assert_eq!(stack.is_in_scratch_file(), keep == align::Keep::ScratchFile);
+        let lods = vec![
+            0.0,
+            opts.lod_t * 0.05f64.hypot(0.05),
+            opts.lod_t * 0.05f64.hypot(0.05),
+        ];
+        let regs = coregister::coregister(&mut stack, None, &lods, &CoregOptions::default());
+        let mut record = change::record(&stack, &opts).unwrap();
+        let landforms: Vec<_> = record
+            .pairs
+            .iter_mut()
+            .map(|p| change::landforms(&stack, p, &FlowOptions::default(), 10.0, 100.0, 1024))
+            .collect();
+        // Bit for bit (nodata is NaN, which never equals itself).
+        let grids: Vec<Vec<u32>> = (0..stack.len())
+            .map(|i| stack.z(i).iter().map(|v| v.to_bits()).collect())
+            .collect();
+        (
+            format!("{regs:?}"),
+            format!("{record:?}"),
+            format!("{landforms:?}"),
+            grids,
+        )
+    };
+    let (memory, mapped) = (
+        figures(align::Keep::Memory),
+        figures(align::Keep::ScratchFile),
+    );
+    assert!(
+        memory.0.contains("applied"),
+        "the offset was corrected: {}",
+        memory.0
+    );
+    assert_eq!(memory.0, mapped.0, "co-registration");
+    assert_eq!(memory.1, mapped.1, "record");
+    assert_eq!(memory.2, mapped.2, "landforms");
+    assert_eq!(memory.3, mapped.3, "corrected grids");
+}
+
 /// Writes the moving-dune job in `dir`, runs it and returns its tables as text.
 fn tables_of(dir: &std::path::Path, extra: &str) -> Vec<(String, String)> {
     run_tables(&common::moving_dune_job(dir, extra))
