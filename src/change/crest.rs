@@ -136,13 +136,29 @@ pub fn estimate(z: &ArrayRef2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> 
 
 /// The highest finite cell: (elevation, row, col); the first in row order on ties.
 pub fn highest_cell(z: &ArrayRef2<f32>) -> Option<(f32, usize, usize)> {
-    let mut best: Option<(f32, usize, usize)> = None;
-    for ((r, c), &v) in z.indexed_iter() {
-        if v.is_finite() && best.is_none_or(|(b, _, _)| v > b) {
-            best = Some((v, r, c));
+    let (_, cols) = z.dim();
+    let laid_out = z.as_standard_layout();
+    let zs = laid_out.as_slice().expect("standard layout");
+    // The first highest cell of each chunk, side by side; then the chunks in order with a strict
+    // comparison, so the first in row order wins a tie, as in a single scan.
+    const CHUNK: usize = 1 << 16;
+    let best_in = |(k, chunk): (usize, &[f32])| {
+        let mut best: Option<(f32, usize)> = None;
+        for (i, &v) in chunk.iter().enumerate() {
+            if v.is_finite() && best.is_none_or(|(b, _)| v > b) {
+                best = Some((v, k * CHUNK + i));
+            }
+        }
+        best
+    };
+    let chunks: Vec<Option<(f32, usize)>> = zs.par_chunks(CHUNK).enumerate().map(best_in).collect();
+    let mut best: Option<(f32, usize)> = None;
+    for (v, i) in chunks.into_iter().flatten() {
+        if best.is_none_or(|(b, _)| v > b) {
+            best = Some((v, i));
         }
     }
-    best
+    best.map(|(v, i)| (v, i / cols, i % cols))
 }
 
 /// The cell where the mean over a (2k+1)² window (cells with data only) is highest.
