@@ -108,6 +108,15 @@ impl Elevations {
             )
         };
         let file = tempfile::tempfile_in(folder).map_err(explain)?;
+        if in_memory_file_system(folder) {
+            log::warn!(
+                "the temporary folder {} is a memory file system (tmpfs), so the scratch file of \
+                 the {len} aligned grids ({} MiB) takes that much memory anyway; set TMPDIR to a \
+                 folder on disk to keep the run's memory bounded",
+                folder.display(),
+                bytes >> 20
+            );
+        }
         reserve(&file, bytes).map_err(explain)?;
         // SAFETY: the file is unnamed and private to this process, so nothing else can change or
         // truncate it while mapped; its blocks are reserved, so writes through the map cannot fault.
@@ -230,6 +239,34 @@ fn floats_mut(map: &mut memmap2::MmapMut) -> &mut [f32] {
     bytemuck::cast_slice_mut(&mut map[..])
 }
 
+/// True when `folder` lies on a file system held in memory (tmpfs, ramfs), where a scratch file
+/// saves no memory. False when it cannot be told.
+fn in_memory_file_system(folder: &std::path::Path) -> bool {
+    #[cfg(target_os = "linux")]
+    {
+        use std::os::unix::ffi::OsStrExt;
+        // Magic numbers of tmpfs and ramfs, from linux/magic.h.
+        const TMPFS_MAGIC: i64 = 0x0102_1994;
+        const RAMFS_MAGIC: i64 = 0x8584_58f6;
+        let Ok(path) = std::ffi::CString::new(folder.as_os_str().as_bytes()) else {
+            return false;
+        };
+        let mut fs = std::mem::MaybeUninit::<libc::statfs>::uninit();
+        // SAFETY: `path` is a valid C string and `fs` is written by the call before it is read.
+        if unsafe { libc::statfs(path.as_ptr(), fs.as_mut_ptr()) } != 0 {
+            return false;
+        }
+        // SAFETY: statfs returned 0, so it filled `fs`.
+        let kind = unsafe { fs.assume_init() }.f_type as i64;
+        kind == TMPFS_MAGIC || kind == RAMFS_MAGIC
+    }
+    #[cfg(not(target_os = "linux"))]
+    {
+        let _ = folder;
+        false
+    }
+}
+
 /// Writes all of `bytes` at `offset` in `file`.
 fn write_at(file: &std::fs::File, bytes: &[u8], offset: u64) -> io::Result<()> {
     #[cfg(unix)]
@@ -318,6 +355,18 @@ mod tests {
                 && text.contains("set TMPDIR"),
             "{text}"
         );
+    }
+
+    #[test]
+    fn a_memory_file_system_is_told_from_a_disk() {
+        // /dev/shm is tmpfs on Linux wherever it exists.
+        if cfg!(target_os = "linux") && std::path::Path::new("/dev/shm").is_dir() {
+            assert!(in_memory_file_system(std::path::Path::new("/dev/shm")));
+        }
+        // A folder that cannot be asked about is not taken for memory.
+        assert!(!in_memory_file_system(std::path::Path::new(
+            "/no/such/folder/for/dunereel"
+        )));
     }
 
     #[test]
