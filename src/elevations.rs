@@ -257,6 +257,7 @@ fn in_memory_file_system(folder: &std::path::Path) -> bool {
             return false;
         }
         // SAFETY: statfs returned 0, so it filled `fs`.
+        #[allow(clippy::unnecessary_cast)] // f_type's width differs between C libraries
         let kind = unsafe { fs.assume_init() }.f_type as i64;
         kind == TMPFS_MAGIC || kind == RAMFS_MAGIC
     }
