@@ -406,7 +406,9 @@ fn check_options(opts: &ChangeOptions) -> Result<()> {
         return Err(bad_option(
             "default_sigma_z_m",
             format!(
-                "{} is not a non-negative number of metres; typical lidar values are 0.05 to 0.3",
+                "{} is not a non-negative number of metres; give the vertical uncertainty (one standard \
+                 deviation) to assume for surveys without sigma_z_m, typically 0.05 to 0.3 for lidar, \
+                 or leave it out for the default 0.15",
                 opts.default_sigma_z_m
             ),
         ));

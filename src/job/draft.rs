@@ -283,6 +283,9 @@ pub fn draft(grids: &[PathBuf], job_path: &Path) -> Result<String> {
          # change:\n\
          #   reference_elevation_m: 0.0\n\
          #   display_unit: metre      # or foot, us-survey-foot\n\
+         #   lod_t: 1.96              # level of detection = lod_t x the pair's combined sigma_z_m\n\
+         #   min_patch_m2: 4          # smallest patch of change counted; default 4 cells at lod_t 1.96, 0 = no filter\n\
+         #   default_sigma_z_m: 0.15  # for surveys without sigma_z_m (better: state it per survey)\n\
          #   transect: [[x1, y1], [x2, y2]]\n\n",
     );
     t.push_str(&format!(
