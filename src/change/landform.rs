@@ -92,10 +92,10 @@ pub const COLUMNS: &[&str] = &[
 
 /// A region of detected change.
 struct Region {
-    /// Cells of the grown region (row-major indices).
-    cells: Vec<usize>,
+    /// Cells of the grown region (row-major indices; 32 bits halve the memory of large regions).
+    cells: Vec<u32>,
     /// Detected-change cells inside it.
-    detected: Vec<usize>,
+    detected: Vec<u32>,
 }
 
 /// Settings the delimitation needs, in cells.
@@ -230,22 +230,26 @@ pub(crate) fn dilate(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<bool> 
 /// Regions of kept change, grown by `join_cells`, largest detected area first; `detected` is the
 /// change before speckle removal, counted inside each region.
 fn regions(detected: &[bool], kept: &[bool], rows: usize, cols: usize, d: &Delimit) -> Vec<Region> {
+    assert!(
+        rows * cols <= u32::MAX as usize,
+        "landform regions index cells with 32 bits"
+    );
     let as_bytes: Vec<u8> = kept.iter().map(|&k| k as u8).collect();
-    let grown = dilate(&as_bytes, rows, cols, d.join_cells);
-    let mut label = vec![0u32; rows * cols];
+    // A cell is cleared from `unvisited` when it joins a region, so each is taken once.
+    let mut unvisited = dilate(&as_bytes, rows, cols, d.join_cells);
+    drop(as_bytes);
     let mut out = Vec::new();
     let mut queue = Vec::new();
     for start in 0..rows * cols {
-        if !grown[start] || label[start] != 0 {
+        if !unvisited[start] {
             continue;
         }
-        let id = out.len() as u32 + 1;
-        label[start] = id;
+        unvisited[start] = false;
         queue.clear();
         queue.push(start);
-        let mut cells = Vec::new();
+        let mut cells: Vec<u32> = Vec::new();
         while let Some(k) = queue.pop() {
-            cells.push(k);
+            cells.push(k as u32);
             let (r, c) = ((k / cols) as isize, (k % cols) as isize);
             for dr in -1..=1 {
                 for dc in -1..=1 {
@@ -254,21 +258,25 @@ fn regions(detected: &[bool], kept: &[bool], rows: usize, cols: usize, d: &Delim
                         continue;
                     }
                     let j = rr as usize * cols + cc as usize;
-                    if grown[j] && label[j] == 0 {
-                        label[j] = id;
+                    if unvisited[j] {
+                        unvisited[j] = false;
                         queue.push(j);
                     }
                 }
             }
         }
         cells.sort_unstable();
-        let inside: Vec<usize> = cells.iter().copied().filter(|&k| detected[k]).collect();
+        let inside: Vec<u32> = cells
+            .iter()
+            .copied()
+            .filter(|&k| detected[k as usize])
+            .collect();
         out.push(Region {
             cells,
             detected: inside,
         });
     }
-    out.retain(|r| r.cells.iter().filter(|&&k| kept[k]).count() >= d.min_cells.max(1));
+    out.retain(|r| r.cells.iter().filter(|&&k| kept[k as usize]).count() >= d.min_cells.max(1));
     // Largest first; ties keep raster order (the sort is stable).
     out.sort_by_key(|r| std::cmp::Reverse(r.detected.len()));
     out
@@ -289,7 +297,7 @@ const MARGIN_CELLS: usize = 16;
 fn region_migration(
     a: &ArrayRef2<f32>,
     b: &ArrayRef2<f32>,
-    cells: &[usize],
+    cells: &[u32],
     plane: [f64; 3],
     cell_m: f64,
     flow_opts: &FlowOptions,
@@ -298,6 +306,7 @@ fn region_migration(
     let (rows, cols) = a.dim();
     let (mut r0, mut r1, mut c0, mut c1) = (usize::MAX, 0, usize::MAX, 0);
     for &k in cells {
+        let k = k as usize;
         let (r, c) = (k / cols, k % cols);
         r0 = r0.min(r);
         r1 = r1.max(r);
@@ -318,6 +327,7 @@ fn region_migration(
     let (h, w) = (r1 - r0 + 1, c1 - c0 + 1);
     let mut inside = Array2::from_elem((h, w), false);
     for &k in cells {
+        let k = k as usize;
         inside[[k / cols - r0, k % cols - c0]] = true;
     }
     let crop = |z: &ArrayRef2<f32>| {
@@ -368,15 +378,17 @@ pub fn landforms(
     let mut in_region = vec![false; rows * cols];
     for r in &found {
         for &k in &r.cells {
+            let k = k as usize;
             in_region[k] = true;
         }
     }
     let plane = flow::base_plane_outside(sa, sb, Some(&in_region), flow::RasterDims { rows, cols });
     let years = pair.interval_years;
     let (kind, from_id, to_id) = (pair.pair_kind, pair.from_id.clone(), pair.to_id.clone());
-    let row = |id: String, detected: &[usize], m: &Result<flow::Dominant, String>| {
+    let row = |id: String, detected: &[u32], m: &Result<flow::Dominant, String>| {
         let (mut sx, mut sy, mut ero, mut dep) = (0.0, 0.0, 0.0, 0.0);
         for &k in detected {
+            let k = k as usize;
             let (x, y) = g.cell_center(k / cols, k % cols);
             sx += x;
             sy += y;
@@ -419,9 +431,9 @@ pub fn landforms(
             row((i + 1).to_string(), &r.detected, &m)
         })
         .collect();
-    let mut all: Vec<usize> = found.iter().flat_map(|r| r.cells.iter().copied()).collect();
+    let mut all: Vec<u32> = found.iter().flat_map(|r| r.cells.iter().copied()).collect();
     all.sort_unstable();
-    let detected: Vec<usize> = found
+    let detected: Vec<u32> = found
         .iter()
         .flat_map(|r| r.detected.iter().copied())
         .collect();
