@@ -705,29 +705,32 @@ pub fn coregister(
         let t = Terrain::new(reference, &g);
         let given_slice: Option<Vec<bool>> = given.map(|(m, _)| m.iter().copied().collect());
         let found = given.is_none();
-        // In waves of one survey per thread: each holds a few grid-sized scratch arrays.
-        let mut estimates: Vec<Estimate> = crate::waves::map_in_waves(stack.len() - 1, |k| {
-            let i = k + 1;
-            let e = estimate(
-                reference,
-                &stack.z(i),
-                &g,
-                &t,
-                given_slice.as_deref(),
-                lod_m[i],
-                found,
-                opts,
-            );
-            stack.let_go();
-            e
-        });
+        // One survey per thread, and no more than two on large grids: each holds a few
+        // grid-sized scratch arrays.
+        let in_flight = crate::waves::items_in_flight(g.rows * g.cols);
+        let mut estimates: Vec<Estimate> =
+            crate::waves::map_at_most(stack.len() - 1, in_flight, |k| {
+                let i = k + 1;
+                let e = estimate(
+                    reference,
+                    &stack.z(i),
+                    &g,
+                    &t,
+                    given_slice.as_deref(),
+                    lod_m[i],
+                    found,
+                    opts,
+                );
+                stack.let_go();
+                e
+            });
         if found && stack.len() > 2 {
             // Second pass: the cells stable against the first survey in every survey.
             let common: Vec<bool> = (0..reference.len())
                 .map(|k| estimates.iter().all(|e| e.stable.get(k)))
                 .collect();
             if common.iter().filter(|&&s| s).count() >= opts.min_cells {
-                estimates = crate::waves::map_in_waves(stack.len() - 1, |k| {
+                estimates = crate::waves::map_at_most(stack.len() - 1, in_flight, |k| {
                     let i = k + 1;
                     let e = estimate(
                         reference,

@@ -10,12 +10,37 @@
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Mutex;
 
+/// Grids above this many cells (2048²) are large: an item of work on them holds hundreds of MB of
+/// scratch (at 4096², about 300 MB for a pair's landforms), so [`items_in_flight`] allows at most
+/// [`LARGE_GRID_ITEMS`] of them at once, whatever the number of cores.
+pub const LARGE_GRID_CELLS: usize = 2048 * 2048;
+
+/// Most items in flight on large grids: two keeps two cores busy and twelve 4096² surveys under
+/// 1 GiB (see the README's "Performance").
+pub const LARGE_GRID_ITEMS: usize = 2;
+
+/// How many items on grids of `cells` cells may be in flight: one per thread, and no more than
+/// [`LARGE_GRID_ITEMS`] when the grids are large.
+pub fn items_in_flight(cells: usize) -> usize {
+    if cells > LARGE_GRID_CELLS {
+        LARGE_GRID_ITEMS
+    } else {
+        usize::MAX
+    }
+}
+
 /// `f(i)` for every `i` in `0..n`, at most one item per pool thread at a time; results in order.
 ///
 /// One worker per thread takes the next item as soon as it is done with one (no wave waits for
 /// its slowest item), so items of unequal cost still keep every thread busy.
 pub fn map_in_waves<T: Send>(n: usize, f: impl Fn(usize) -> T + Sync) -> Vec<T> {
-    let workers = rayon::current_num_threads().max(1).min(n);
+    map_at_most(n, usize::MAX, f)
+}
+
+/// [`map_in_waves`] with no more than `most` items in flight (and never more than threads); the
+/// items still use every thread inside (their own steps are parallel).
+pub fn map_at_most<T: Send>(n: usize, most: usize, f: impl Fn(usize) -> T + Sync) -> Vec<T> {
+    let workers = rayon::current_num_threads().max(1).min(most.max(1)).min(n);
     let next = AtomicUsize::new(0);
     let slots: Vec<Mutex<Option<T>>> = (0..n).map(|_| Mutex::new(None)).collect();
     rayon::scope(|s| {
@@ -78,6 +103,21 @@ mod tests {
         });
         let sum: usize = (0..20_000usize).map(|k| k % 7).sum();
         assert_eq!(out, (0..9).map(|i| (i * 10, sum)).collect::<Vec<_>>());
+        // Capped at one item in flight on the same two threads.
+        let (live, most_capped) = (AtomicUsize::new(0), AtomicUsize::new(0));
+        let capped = pool.install(|| {
+            map_at_most(9, 1, |i| {
+                let now = live.fetch_add(1, Ordering::SeqCst) + 1;
+                most_capped.fetch_max(now, Ordering::SeqCst);
+                let s: usize = (0..20_000usize).into_par_iter().map(|k| k % 7).sum();
+                live.fetch_sub(1, Ordering::SeqCst);
+                (i * 10, s)
+            })
+        });
+        assert_eq!(capped, out);
+        assert_eq!(most_capped.load(Ordering::SeqCst), 1);
+        assert_eq!(items_in_flight(4096 * 4096), LARGE_GRID_ITEMS);
+        assert_eq!(items_in_flight(1024 * 1024), usize::MAX);
         assert!(
             most.load(Ordering::SeqCst) <= 2,
             "{} in flight",

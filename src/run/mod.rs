@@ -261,7 +261,9 @@ fn prepare_share(job: &Job, share: FrameShare) -> Result<Prepared> {
     } else {
         Vec::new()
     };
-    let items = crate::waves::map_in_waves(n_fields + pairs.len(), |k| {
+    let cells = stack.geometry().rows * stack.geometry().cols;
+    let in_flight = crate::waves::items_in_flight(cells);
+    let items = crate::waves::map_at_most(n_fields + pairs.len(), in_flight, |k| {
         let item = if k < n_fields {
             Item::Field(needed[k].then(|| Box::new(pair_field(job, &stack, k))))
         } else {
