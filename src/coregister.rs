@@ -708,7 +708,8 @@ pub fn coregister(
         // One survey per thread, and no more than two on large grids: each holds a few
         // grid-sized scratch arrays.
         let in_flight = crate::waves::items_in_flight(g.rows * g.cols);
-        let mut estimates: Vec<Estimate> =
+        // One pass over the surveys against the reference, on the given candidate cells.
+        let pass = |candidates: Option<&[bool]>, found: bool| -> Vec<Estimate> {
             crate::waves::map_at_most(stack.len() - 1, in_flight, |k| {
                 let i = k + 1;
                 let e = estimate(
@@ -716,35 +717,23 @@ pub fn coregister(
                     &stack.z(i),
                     &g,
                     &t,
-                    given_slice.as_deref(),
+                    candidates,
                     lod_m[i],
                     found,
                     opts,
                 );
                 stack.let_go();
                 e
-            });
+            })
+        };
+        let mut estimates = pass(given_slice.as_deref(), found);
         if found && stack.len() > 2 {
             // Second pass: the cells stable against the first survey in every survey.
             let common: Vec<bool> = (0..reference.len())
                 .map(|k| estimates.iter().all(|e| e.stable.get(k)))
                 .collect();
             if common.iter().filter(|&&s| s).count() >= opts.min_cells {
-                estimates = crate::waves::map_at_most(stack.len() - 1, in_flight, |k| {
-                    let i = k + 1;
-                    let e = estimate(
-                        reference,
-                        &stack.z(i),
-                        &g,
-                        &t,
-                        Some(&common),
-                        lod_m[i],
-                        true,
-                        opts,
-                    );
-                    stack.let_go();
-                    e
-                });
+                estimates = pass(Some(&common), true);
             }
         }
         estimates
