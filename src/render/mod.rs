@@ -341,16 +341,16 @@ impl Renderer {
         let l = light;
         if let Some(az) = l.azimuth_deg {
             check(az.is_finite() && (0.0..360.0).contains(&az), || {
-                format!("light.azimuth_deg: {az} is outside [0, 360); give the sun's compass bearing, e.g. 315, or leave it out for light from behind the viewer's left shoulder")
+                format!("sun.azimuth_deg: {az} is outside [0, 360); give the sun's compass bearing, e.g. 315, or leave it out for light from behind the viewer's left shoulder")
             })?;
         }
         check(
             l.altitude_deg.is_finite() && l.altitude_deg > 0.0 && l.altitude_deg <= 90.0,
             || {
                 if l.altitude_deg <= 0.0 {
-                    format!("light.altitude_deg: {} puts the sun at or below the horizon; give an altitude in (0, 90], e.g. 40", l.altitude_deg)
+                    format!("sun.altitude_deg: {} puts the sun at or below the horizon; give an altitude in (0, 90], e.g. 40", l.altitude_deg)
                 } else {
-                    format!("light.altitude_deg: {} is outside (0, 90]; give the sun's altitude in degrees, e.g. 40", l.altitude_deg)
+                    format!("sun.altitude_deg: {} is outside (0, 90]; give the sun's altitude in degrees, e.g. 40", l.altitude_deg)
                 }
             },
         )?;
@@ -363,14 +363,14 @@ impl Renderer {
             ("hollow_darkening", l.hollow_darkening, 0.0, 1.0),
         ] {
             check(val.is_finite() && (lo..=hi).contains(&val), || {
-                format!("light.{name}: {val} is outside {lo}..={hi}")
+                format!("sun.{name}: {val} is outside {lo}..={hi}; give a value in that range, or leave it out for the default")
             })?;
         }
         check(
             l.intensity.is_finite() && l.intensity > 0.0 && l.intensity <= 10.0,
             || {
                 format!(
-                    "light.intensity: {} must be above 0 and at most 10; 1 is full sunlight",
+                    "sun.intensity: {} must be above 0 and at most 10; 1 is full sunlight",
                     l.intensity
                 )
             },

@@ -289,7 +289,7 @@ fn bad_options_are_refused_with_the_option_named() {
                 altitude_deg: 0.0,
                 ..l.clone()
             },
-            "light.altitude_deg",
+            "sun.altitude_deg",
         ),
         (
             v.clone(),
@@ -297,7 +297,7 @@ fn bad_options_are_refused_with_the_option_named() {
                 azimuth_deg: Some(360.0),
                 ..l.clone()
             },
-            "light.azimuth_deg",
+            "sun.azimuth_deg",
         ),
         (
             v.clone(),
@@ -305,7 +305,7 @@ fn bad_options_are_refused_with_the_option_named() {
                 ambient: 1.5,
                 ..l.clone()
             },
-            "light.ambient",
+            "sun.ambient",
         ),
     ];
     for (view, light, want) in cases {
