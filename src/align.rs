@@ -146,14 +146,7 @@ pub fn align_with_report(
     surveys: Vec<Survey>,
     aoi: Option<AreaOfInterest>,
 ) -> Result<(AlignedStack, Vec<Option<Reprojection>>)> {
-    let first = surveys
-        .first()
-        .ok_or_else(|| Error::input(std::path::Path::new("(job)"), "no surveys to align"))?;
-    let mut builder = StackBuilder::new(first, surveys.len(), aoi)?;
-    for s in surveys {
-        builder.push(s)?;
-    }
-    builder.finish()
+    align_kept_with_report(surveys, aoi, Keep::BySize)
 }
 
 /// Where a stack keeps its elevations (see `crate::elevations`).
@@ -177,6 +170,15 @@ pub fn align_kept(
     aoi: Option<AreaOfInterest>,
     keep: Keep,
 ) -> Result<AlignedStack> {
+    align_kept_with_report(surveys, aoi, keep).map(|(stack, _)| stack)
+}
+
+/// All the surveys pushed onto one [`StackBuilder`].
+fn align_kept_with_report(
+    surveys: Vec<Survey>,
+    aoi: Option<AreaOfInterest>,
+    keep: Keep,
+) -> Result<(AlignedStack, Vec<Option<Reprojection>>)> {
     let first = surveys
         .first()
         .ok_or_else(|| Error::input(std::path::Path::new("(job)"), "no surveys to align"))?;
@@ -184,7 +186,7 @@ pub fn align_kept(
     for s in surveys {
         builder.push(s)?;
     }
-    builder.finish().map(|(stack, _)| stack)
+    builder.finish()
 }
 
 /// Builds an [`AlignedStack`] one survey at a time, so a run need not hold every survey as read
@@ -422,24 +424,11 @@ fn crop_geometry(g: &GridGeometry, a: &AreaOfInterest) -> Option<GridGeometry> {
 /// Bilinear resampling of `src` onto `target`; exact copy when the cells coincide. Cells outside
 /// `src`, or whose neighbourhood touches nodata, are NaN. The caller checks the CRS.
 pub fn resample(src: &Grid, target: &GridGeometry) -> Array2<f32> {
-    let mut out = Array2::from_elem((target.rows, target.cols), f32::NAN);
-    resample_into(src, target, out.view_mut());
-    out
-}
-
-/// [`resample`] into `out`, which has `target`'s shape.
-fn resample_into(src: &Grid, target: &GridGeometry, mut out: ArrayViewMut2<'_, f32>) {
-    assert_eq!(
-        out.dim(),
-        (target.rows, target.cols),
-        "output has the target's shape"
-    );
     // A grid already on the analysis grid (the usual case: surveys delivered on one grid) is copied.
     if src.geometry == *target {
-        out.assign(&src.z);
-        return;
+        return src.z.clone();
     }
-    ndarray::Zip::indexed(&mut out).for_each(|(r, c), v| {
+    Array2::from_shape_fn((target.rows, target.cols), |(r, c)| {
         let (x, y) = target.cell_center(r, c);
         let (sr, sc) = src.geometry.to_cell(x, y);
         // Snap values within a millionth of a cell so coincident grids copy exactly.
@@ -450,8 +439,8 @@ fn resample_into(src: &Grid, target: &GridGeometry, mut out: ArrayViewMut2<'_, f
                 v
             }
         };
-        *v = src.sample_bilinear(snap(sr), snap(sc));
-    });
+        src.sample_bilinear(snap(sr), snap(sc))
+    })
 }
 
 #[cfg(test)]

@@ -313,6 +313,8 @@ mod tests {
 
     #[test]
     fn a_scratch_file_store_reads_back_what_was_written_after_letting_go() {
+        // Check: common practice — a change of storage must give back every value bit for bit;
+        // the in-memory store is the reference.
         let (rows, cols) = (37, 53);
         let mut mapped = Elevations::in_scratch_file(3, rows, cols).unwrap();
         let mut memory = Elevations::in_memory(3, rows, cols);
@@ -347,6 +349,8 @@ mod tests {
 
     #[test]
     fn a_scratch_folder_that_cannot_be_used_is_named_with_the_fix() {
+        // Check: common practice — the message names the place, the size (12 × 4096² × 4 bytes
+        // = 768 MiB, analytic) and the fix.
         let missing = std::env::temp_dir().join("dunereel-no-such-folder-for-this-test");
         let err = Elevations::in_scratch_file_in(&missing, 12, 4096, 4096).unwrap_err();
         let text = err.to_string();
@@ -360,7 +364,8 @@ mod tests {
 
     #[test]
     fn a_memory_file_system_is_told_from_a_disk() {
-        // /dev/shm is tmpfs on Linux wherever it exists.
+        // Check: statfs(2) and TMPFS_MAGIC 0x01021994 from linux/magic.h; /dev/shm is tmpfs on
+        // Linux wherever it exists (common practice).
         if cfg!(target_os = "linux") && std::path::Path::new("/dev/shm").is_dir() {
             assert!(in_memory_file_system(std::path::Path::new("/dev/shm")));
         }
@@ -372,8 +377,9 @@ mod tests {
 
     #[test]
     fn letting_go_hands_the_pages_back() {
-        // 64 MiB of grids: resident after writing, far less after letting go (the map's pages
-        // count as file or shared memory, not heap).
+        // Check: madvise(2) — MADV_DONTNEED on a shared file mapping drops the pages from the
+        // process and reads them back from the file. 64 MiB of grids: resident after writing, far
+        // less after letting go (the map's pages count as file or shared memory, not heap).
         let mut e = Elevations::in_scratch_file(4, 2048, 2048).unwrap();
         for i in 0..4 {
             e.z_mut(i).fill(i as f32);
