@@ -18,6 +18,7 @@ fn surface(g: &dunereel::grid::GridGeometry, z: Array2<f32>) -> Surface {
         geometry: g.clone(),
         z,
         kind: FrameKind::Measured { survey: 0 },
+        samples: None,
     }
 }
 

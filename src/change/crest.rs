@@ -24,6 +24,7 @@ use ndarray::ArrayRef2;
 use rayon::prelude::*;
 
 use crate::grid::GridGeometry;
+use crate::interp::piecewise::{self, Piecewise};
 
 /// The standard error, metres, the neighbourhood grows to reach: a tenth of the usual lidar σ on
 /// bare sand (REFERENCES §12: 0.05–0.15 m, common practice, no source), below what a slide shows.
@@ -72,9 +73,65 @@ pub fn estimate(z: &ArrayRef2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> 
         // A stated σ of 0 would make every window "misfit"; a millimetre stands for exact data.
         0.001
     };
-    let (r0, c0) = smoothed_top(z, 3)?;
-    let mut best: Option<Fit> = None;
+    let top = smoothed_top(z, 3)?;
+    estimate_near(z, (0, 0), top, geometry, sigma, || highest_cell(z))
+}
+
+/// [`estimate`] of a surface computed piece by piece (an in-between surface, see
+/// `interp::piecewise`): the top is found by a search that computes only the tiles that can hold
+/// it, the fits run on a window around it, and the result is that of [`estimate`] on the whole
+/// surface. (The one difference: the moving means that find the top are summed cell by cell
+/// rather than from summed-area tables, so two windows whose means differ only in the last digits
+/// of a double might be ranked the other way.)
+pub fn estimate_piecewise(
+    src: &dyn Piecewise,
+    geometry: &GridGeometry,
+    sigma_z_m: f64,
+) -> Option<Crest> {
+    let sigma = if sigma_z_m.is_finite() && sigma_z_m > 0.0 {
+        sigma_z_m
+    } else {
+        0.001
+    };
+    let (rows, cols) = src.dim();
+    let top = smoothed_top_piecewise(src, 3)
+        .or_else(|| piecewise::highest_cell(src).map(|(_, r, c)| (r, c)))?;
+    // Every fit stays within FIT_REACH_CELLS of the top; outside the window nothing is read.
+    let near =
+        |x: usize, n: usize| x.saturating_sub(FIT_REACH_CELLS)..(x + FIT_REACH_CELLS + 1).min(n);
+    let (rr, cc) = (near(top.0, rows), near(top.1, cols));
+    let mut window = ndarray::Array2::zeros((rr.len(), cc.len()));
+    src.fill(
+        rr.clone(),
+        cc.clone(),
+        window.as_slice_mut().expect("a new array is row-major"),
+    );
+    estimate_near(
+        &window,
+        (rr.start, cc.start),
+        (top.0 - rr.start, top.1 - cc.start),
+        geometry,
+        sigma,
+        || piecewise::highest_cell(src),
+    )
+}
+
+/// Cells from the top that the fits can reach: eight moves of at most a radius, then the window.
+const FIT_REACH_CELLS: usize = 9 * MAX_RADIUS_CELLS + 1;
+
+/// The fits of [`estimate`] around `(r0, c0)` of `z`, a window whose first cell is `origin` of the
+/// grid (the whole grid when it is (0, 0)); `highest` gives the grid's highest cell for the
+/// fallback. Coordinates in the result are the grid's.
+fn estimate_near(
+    z: &ArrayRef2<f32>,
+    origin: (usize, usize),
+    (r0, c0): (usize, usize),
+    geometry: &GridGeometry,
+    sigma: f64,
+    highest: impl FnOnce() -> Option<(f32, usize, usize)>,
+) -> Option<Crest> {
     let mut sigma = sigma;
+    let mut best: Option<Fit> = None;
     for radius in MIN_RADIUS_CELLS..=MAX_RADIUS_CELLS {
         if let Some(f) = &best {
             if f.radius == MIN_RADIUS_CELLS && f.resid_sd_m < 0.5 * sigma {
@@ -103,8 +160,9 @@ pub fn estimate(z: &ArrayRef2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> 
     let crest = match best {
         Some(f) => Crest {
             elevation_m: f.elevation_m,
-            row: f.row,
-            col: f.col,
+            // The centre's grid row plus the fitted offset, as on the whole grid.
+            row: (origin.0 + f.centre.0) as f64 + f.offset.0,
+            col: (origin.1 + f.centre.1) as f64 + f.offset.1,
             x_crs: 0.0,
             y_crs: 0.0,
             radius_cells: f.radius,
@@ -112,7 +170,7 @@ pub fn estimate(z: &ArrayRef2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> 
             method: CrestMethod::QuadraticFit,
         },
         None => {
-            let (v, r, c) = highest_cell(z)?;
+            let (v, r, c) = highest()?;
             Crest {
                 elevation_m: v as f64,
                 row: r as f64,
@@ -265,11 +323,51 @@ fn smoothed_top(z: &ArrayRef2<f32>, k: usize) -> Option<(usize, usize)> {
     })
 }
 
+/// [`smoothed_top`] of a surface computed piece by piece: the search computes only tiles whose
+/// bound (the highest value within reach of their windows) can beat the best mean so far.
+fn smoothed_top_piecewise(src: &dyn Piecewise, k: usize) -> Option<(usize, usize)> {
+    let need = ((2 * k + 1) * (2 * k + 1) / 2) as u32;
+    piecewise::search(src, k, |tile, values| {
+        let (rows, cols) = tile.grid;
+        let mut best: Option<(f64, usize, usize)> = None;
+        for r in tile.rows.clone() {
+            let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
+            for c in tile.cols.clone() {
+                if !tile.at(values, r, c).is_finite() {
+                    continue;
+                }
+                let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
+                let (mut s, mut n) = (0.0f64, 0u32);
+                for rr in ra..rb {
+                    for cc in ca..cb {
+                        let v = tile.at(values, rr, cc);
+                        if v.is_finite() {
+                            s += f64::from(v);
+                            n += 1;
+                        }
+                    }
+                }
+                if n < need.min(((rb - ra) * (cb - ca)) as u32) || n == 0 {
+                    continue;
+                }
+                let mean = s / f64::from(n);
+                if best.is_none_or(|(b, _, _)| mean > b) {
+                    best = Some((mean, r, c));
+                }
+            }
+        }
+        best
+    })
+    .map(|(_, r, c)| (r, c))
+}
+
 #[derive(Debug, Clone, Copy)]
 struct Fit {
     elevation_m: f64,
-    row: f64,
-    col: f64,
+    /// The window's centre cell (row, col) in the array fitted.
+    centre: (usize, usize),
+    /// The top's offset from the centre, cells (rows, cols).
+    offset: (f64, f64),
     radius: usize,
     standard_error_m: f64,
     resid_sd_m: f64,
@@ -283,8 +381,9 @@ fn fit_recentred(z: &ArrayRef2<f32>, r: usize, c: usize, radius: usize, sigma: f
     let (mut r, mut c) = (r, c);
     let mut fit = fit_at(z, r, c, radius, sigma)?;
     for _ in 0..8 {
-        let nr = fit.row.round().clamp(0.0, (rows - 1) as f64) as usize;
-        let nc = fit.col.round().clamp(0.0, (cols - 1) as f64) as usize;
+        let (row, col) = (r as f64 + fit.offset.0, c as f64 + fit.offset.1);
+        let nr = row.round().clamp(0.0, (rows - 1) as f64) as usize;
+        let nc = col.round().clamp(0.0, (cols - 1) as f64) as usize;
         if (nr, nc) == (r, c) {
             break;
         }
@@ -449,8 +548,8 @@ fn fit_at(z: &ArrayRef2<f32>, r: usize, c: usize, radius: usize, sigma: f64) -> 
     let resid_var = (rss / dof).max(sigma * sigma);
     Some(Fit {
         elevation_m: z0 + poly_eval(&coef, u, v).0,
-        row: r as f64 + v * radius as f64,
-        col: c as f64 + u * radius as f64,
+        centre: (r, c),
+        offset: (v * radius as f64, u * radius as f64),
         radius,
         standard_error_m: (resid_var * var_factor.max(0.0)).sqrt(),
         resid_sd_m: (rss / dof).sqrt(),

@@ -6,11 +6,15 @@
 pub mod flow;
 pub mod linear;
 pub mod morph;
+pub mod piecewise;
+
+use std::sync::Arc;
 
 use ndarray::Array2;
 
 use crate::align::AlignedStack;
 use crate::grid::GridGeometry;
+use crate::render::lod;
 use crate::timeline::{FrameKind, FrameTime};
 
 /// An elevation surface ready to render: a survey, or an interpolation between two.
@@ -18,10 +22,14 @@ use crate::timeline::{FrameKind, FrameTime};
 pub struct Surface {
     /// The analysis grid's geometry.
     pub geometry: GridGeometry,
-    /// Elevations in metres, NaN for nodata; shape (rows, cols).
+    /// Elevations in metres, NaN for nodata; shape (rows, cols), or the shape of `samples`.
     pub z: Array2<f32>,
     /// Measured or interpolated; travels to the label.
     pub kind: FrameKind,
+    /// When set, `z` holds only the cells a renderer's level of detail reads (see
+    /// [`lod::SamplePlan`]), not the whole grid: what the frames draw, at a fraction of the cost
+    /// on a large grid.
+    pub samples: Option<Arc<lod::SamplePlan>>,
 }
 
 impl Surface {
@@ -32,6 +40,17 @@ impl Surface {
             z: Array2::from_elem((g.rows, g.cols), f32::NAN),
             geometry: g,
             kind: FrameKind::Measured { survey: 0 },
+            samples: None,
+        }
+    }
+
+    /// A surface buffer holding the samples of `plan` (see [`Surface::samples`]).
+    pub fn for_samples(geometry: &GridGeometry, plan: Arc<lod::SamplePlan>) -> Surface {
+        Surface {
+            z: Array2::from_elem(plan.shape(), f32::NAN),
+            geometry: geometry.clone(),
+            kind: FrameKind::Measured { survey: 0 },
+            samples: Some(plan),
         }
     }
 

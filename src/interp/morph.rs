@@ -47,6 +47,45 @@ fn sample(z: &[f32], d: RasterDims, r: f32, c: f32) -> f32 {
     }
 }
 
+/// One cell (r, c) of the warp-and-blend surface, the field there being (`e`, `n`) metres east and
+/// north and `inv_cell` cells per metre. The whole-grid and the sampled morph share it, so a cell
+/// has the same value bit for bit whichever computes it.
+#[inline(always)]
+#[allow(clippy::too_many_arguments)]
+fn warp_blend(
+    a: &[f32],
+    b: &[f32],
+    d: RasterDims,
+    r: usize,
+    c: usize,
+    e: f32,
+    n: f32,
+    w: f32,
+    inv_cell: f32,
+) -> f32 {
+    // Field in cells: columns east, rows south.
+    let du = e * inv_cell;
+    let dv = -n * inv_cell;
+    let (rf, cf) = (r as f32, c as f32);
+    let za = sample(a, d, rf - w * dv, cf - w * du);
+    let zb = sample(b, d, rf + (1.0 - w) * dv, cf + (1.0 - w) * du);
+    (1.0 - w) * za + w * zb
+}
+
+/// Cells per metre of `field`, or 0 (no warping, with a warning) when its cell size is unusable.
+fn cells_per_metre(field: &FlowField) -> f32 {
+    if field.cell_size_m.is_finite() && field.cell_size_m > 0.0 {
+        (1.0 / field.cell_size_m) as f32
+    } else {
+        // A field without a usable cell size cannot be placed: blend without moving anything.
+        log::warn!(
+            "morph: displacement field has cell size {} m; blending without warping",
+            field.cell_size_m
+        );
+        0.0
+    }
+}
+
 /// Rows per parallel task: 16 rows of a 1024-wide grid is 64 KiB of output, a few dozen tasks per frame.
 const BAND_ROWS: usize = 16;
 
@@ -96,16 +135,7 @@ pub fn morph_into(
         east.as_slice().expect("standard layout"),
         north.as_slice().expect("standard layout"),
     );
-    let inv_cell = if field.cell_size_m.is_finite() && field.cell_size_m > 0.0 {
-        (1.0 / field.cell_size_m) as f32
-    } else {
-        // A field without a usable cell size cannot be placed: blend without moving anything.
-        log::warn!(
-            "morph: displacement field has cell size {} m; blending without warping",
-            field.cell_size_m
-        );
-        0.0
-    };
+    let inv_cell = cells_per_metre(field);
     let d = RasterDims { rows, cols };
     let columns = field.column_weights();
     let write = |dst: &mut [f32]| {
@@ -125,13 +155,7 @@ pub fn morph_into(
                         (&east[base..base + cols], &north[base..base + cols])
                     };
                     for (c, ((o, &e), &n)) in orow.iter_mut().zip(er).zip(nr).enumerate() {
-                        // Field in cells: columns east, rows south.
-                        let du = e * inv_cell;
-                        let dv = -n * inv_cell;
-                        let (rf, cf) = (r as f32, c as f32);
-                        let za = sample(a, d, rf - w * dv, cf - w * du);
-                        let zb = sample(b, d, rf + (1.0 - w) * dv, cf + (1.0 - w) * du);
-                        *o = (1.0 - w) * za + w * zb;
+                        *o = warp_blend(a, b, d, r, c, e, n, w, inv_cell);
                     }
                 }
             });
@@ -144,6 +168,75 @@ pub fn morph_into(
             out.assign(&Array2::from_shape_vec(dim, tmp).expect("shape"));
         }
     }
+}
+
+/// The warp-and-blend surface at fraction `w` at the cells `rows` × `cols` only, into `out`
+/// (row-major, `rows.len() × cols.len()`): each value is the one [`morph_into`] gives that cell,
+/// bit for bit. A frame needs only the cells its level of detail reads
+/// ([`crate::render::lod::SamplePlan`]), and the frame's figures only a few tiles near the top
+/// (`interp::piecewise`).
+///
+/// # Panics
+/// As [`morph_into`]; also when `out` has the wrong length or an index is outside the grid.
+pub fn morph_at_into(
+    out: &mut [f32],
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
+    field: &FlowField,
+    w: f32,
+    rows: &[usize],
+    cols: &[usize],
+) {
+    let dim = a.dim();
+    assert!(
+        b.dim() == dim
+            && field.grid_dim == dim
+            && (field.step > 1 || (field.east_m.dim() == dim && field.north_m.dim() == dim))
+            && out.len() == rows.len() * cols.len(),
+        "morph_at_into: arrays differ in shape"
+    );
+    let w = if w.is_nan() { 0.0 } else { w.clamp(0.0, 1.0) };
+    if w == 0.0 || w == 1.0 {
+        let src = if w == 0.0 { a } else { b };
+        for (orow, &r) in out.chunks_exact_mut(cols.len().max(1)).zip(rows) {
+            for (o, &c) in orow.iter_mut().zip(cols) {
+                *o = src[[r, c]];
+            }
+        }
+        return;
+    }
+    if rows.is_empty() || cols.is_empty() {
+        return;
+    }
+    let a = a.as_standard_layout();
+    let b = b.as_standard_layout();
+    let (a, b) = (
+        a.as_slice().expect("standard layout"),
+        b.as_slice().expect("standard layout"),
+    );
+    let inv_cell = cells_per_metre(field);
+    let d = RasterDims {
+        rows: dim.0,
+        cols: dim.1,
+    };
+    let all = field.column_weights();
+    let weights: Vec<(u32, u32, f32)> = if all.is_empty() {
+        Vec::new()
+    } else {
+        cols.iter().map(|&c| all[c]).collect()
+    };
+    let band = (BAND_ROWS * dim.1).div_ceil(cols.len()).max(1);
+    out.par_chunks_mut(cols.len() * band)
+        .zip(rows.par_chunks(band))
+        .for_each(|(chunk, band_rows)| {
+            let (mut east, mut north) = (Vec::new(), Vec::new());
+            for (orow, &r) in chunk.chunks_exact_mut(cols.len()).zip(band_rows) {
+                field.row_at_columns(r, cols, &weights, &mut east, &mut north);
+                for (((o, &c), &e), &n) in orow.iter_mut().zip(cols).zip(&east).zip(&north) {
+                    *o = warp_blend(a, b, d, r, c, e, n, w, inv_cell);
+                }
+            }
+        });
 }
 
 #[cfg(test)]
@@ -187,6 +280,55 @@ mod tests {
         // Check: REFERENCES.md §5 — both conserve volume; cell sums equal within 1e-4 relative
         let vol = |z: &ArrayRef2<f32>| z.row(1).iter().map(|&v| v as f64).sum::<f64>();
         assert!((vol(&out) - vol(&a)).abs() < 1e-4 * vol(&a));
+    }
+
+    #[test]
+    fn sampled_cells_equal_the_whole_grid_bit_for_bit() {
+        let (rows, cols) = (45, 38);
+        let a = Array2::from_shape_fn((rows, cols), |(r, c)| {
+            ((r * 31 + c * 17) % 23) as f32 * 0.37 + (r as f32 * 0.2).sin()
+        });
+        let mut b = Array2::from_shape_fn((rows, cols), |(r, c)| {
+            ((r * 13 + c * 7) % 19) as f32 * 0.53 + (c as f32 * 0.3).cos()
+        });
+        b[[7, 9]] = f32::NAN;
+        // A field at grid resolution and one kept at blocks of 4 cells.
+        let full = FlowField::full(
+            Array2::from_shape_fn((rows, cols), |(r, c)| {
+                2.5 + 0.05 * c as f32 - 0.03 * r as f32
+            }),
+            Array2::from_shape_fn((rows, cols), |(r, _)| -1.2 + 0.04 * r as f32),
+            Array2::ones((rows, cols)),
+            0.5,
+        );
+        let blocks = FlowField {
+            east_m: Array2::from_shape_fn((12, 10), |(r, c)| 1.5 + 0.2 * c as f32 - 0.1 * r as f32),
+            north_m: Array2::from_shape_fn((12, 10), |(r, c)| {
+                0.7 - 0.15 * r as f32 + 0.05 * c as f32
+            }),
+            quality: Array2::ones((12, 10)),
+            cell_size_m: 0.5,
+            step: 4,
+            grid_dim: (rows, cols),
+        };
+        let rs = [0, 3, 7, 8, 20, 44];
+        let cs = [1, 2, 9, 30, 37];
+        for field in [&full, &blocks] {
+            for w in [0.0, 0.31, 0.5, 1.0] {
+                let mut whole = Array2::zeros((rows, cols));
+                morph_into(&mut whole, &a, &b, field, w);
+                let mut some = vec![0.0; rs.len() * cs.len()];
+                morph_at_into(&mut some, &a, &b, field, w, &rs, &cs);
+                // Check: common practice, no source — the same cell computed by either path has
+                // the same bits.
+                for (i, &r) in rs.iter().enumerate() {
+                    for (j, &c) in cs.iter().enumerate() {
+                        let (x, y) = (whole[[r, c]], some[i * cs.len() + j]);
+                        assert!(x.to_bits() == y.to_bits(), "w {w} ({r}, {c}): {x} vs {y}");
+                    }
+                }
+            }
+        }
     }
 
     #[test]

@@ -613,6 +613,12 @@ impl Renderer {
         self.level
     }
 
+    /// The cells of the grid this renderer's level of detail reads: a surface holding only those
+    /// ([`Surface::samples`]) draws exactly as the whole grid does.
+    pub fn sample_plan(&self) -> lod::SamplePlan {
+        lod::SamplePlan::new(self.geometry.rows, self.geometry.cols, self.level)
+    }
+
     /// Renders `surface` into `frame`.
     pub fn render_into(
         &mut self,

@@ -225,6 +225,23 @@ fn heights<'a>(z: &'a ndarray::ArrayRef2<f32>, copy: &'a mut Vec<f32>) -> &'a [f
     copy
 }
 
+/// `surface` at `level`, times `k`, into `out`: from the whole grid, or from the level's samples
+/// when the surface holds only those (the same values either way).
+fn reduce_surface(
+    surface: &Surface,
+    g: &GridGeometry,
+    level: u32,
+    k: f32,
+    copy: &mut Vec<f32>,
+    out: &mut [f32],
+) {
+    let z = heights(&surface.z, copy);
+    match &surface.samples {
+        Some(plan) => lod::reduce_samples_into(plan, z, k, out),
+        None => lod::reduce_into(z, g.rows, g.cols, level, k, out),
+    }
+}
+
 /// Per-vertex normals, light and projection of a reduced height field.
 #[allow(clippy::too_many_arguments)]
 fn vertex_pass(
@@ -459,7 +476,12 @@ pub(super) fn render(
     let b = &mut r.buffers;
     let cam_int = fv.camera.scaled(b.ss as f64);
     let cam = CamF::new(&cam_int);
-    let shape_ok = |s: &Surface| s.z.dim() == (g.rows, g.cols);
+    let level = r.level;
+    // A whole grid, or the samples of this renderer's level (see `lod::SamplePlan`).
+    let shape_ok = |s: &Surface| match &s.samples {
+        None => s.z.dim() == (g.rows, g.cols),
+        Some(p) => p.level == level && p.grid == (g.rows, g.cols) && s.z.dim() == p.shape(),
+    };
     let mut draw_surface = shape_ok(surface);
     if !draw_surface {
         log::warn!(
@@ -471,8 +493,7 @@ pub(super) fn render(
     }
     let (lr, lc) = (b.lr, b.lc);
     if draw_surface {
-        let z = heights(&surface.z, &mut b.z_copy);
-        lod::reduce_into(z, g.rows, g.cols, r.level, k, &mut b.zk);
+        reduce_surface(surface, g, level, k, &mut b.z_copy, &mut b.zk);
         if r.light.shadows {
             cast_shadow_into(
                 &b.zk,
@@ -607,8 +628,7 @@ pub(super) fn render(
         if b.shell_bins.len() != chunks {
             b.shell_bins = vec![vec![Vec::new(); bands]; chunks];
         }
-        let z = heights(&s.z, &mut b.z_copy);
-        lod::reduce_into(z, g.rows, g.cols, r.level, k, &mut b.shell_zk);
+        reduce_surface(s, g, level, k, &mut b.z_copy, &mut b.shell_zk);
         smooth_in_place(&mut b.shell_zk, lr, lc, &mut b.smooth_tmp);
         let col = lin(r.shell.rgb);
         let albedo = move |_: usize| col;

@@ -35,5 +35,6 @@ pub fn synthetic_dunes(rows: usize, cols: usize, cell_m: f64) -> Surface {
         geometry,
         z,
         kind: crate::timeline::FrameKind::Measured { survey: 0 },
+        samples: None,
     }
 }

@@ -27,6 +27,7 @@ fn surface(z: Array2<f32>, cell: f64) -> Surface {
         geometry: geometry(rows, cols, cell),
         z,
         kind: FrameKind::Measured { survey: 0 },
+        samples: None,
     }
 }
 

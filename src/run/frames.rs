@@ -4,6 +4,8 @@
 //! into the caller's `Frame`. Nothing in it depends on other frames, so any one frame can be made
 //! alone (`dunereel still`) and comes out identical.
 
+use std::sync::Arc;
+
 use crate::align::AlignedStack;
 use crate::annotate::{
     self, Annotator, CrestFigure, CrestLabel, FrameStatus, InsetChart, Legend, Overlay,
@@ -11,8 +13,10 @@ use crate::annotate::{
 use crate::change::crest::{self, Crest};
 use crate::change::ChangeRecord;
 use crate::interp::flow::FlowResult;
-use crate::interp::{self, morph, Surface};
+use crate::interp::piecewise::{self, Between, BlockMax, FieldReach, InBetween};
+use crate::interp::{linear, morph, Surface};
 use crate::job::{ColourBy, Job, Method, ShellSurvey};
+use crate::render::lod::SamplePlan;
 use crate::render::{ramp, Colouring, Drape, Frame, Renderer};
 use crate::timeline::{self, FrameKind, FrameTime};
 
@@ -36,6 +40,9 @@ pub(super) struct Painter<'a> {
     drape: Option<&'a Drape>,
     /// The `shell.grid` surface, when the job draws one instead of an earlier survey.
     shell_grid: Option<&'a ndarray::Array2<f32>>,
+    /// The cells the renderer's level of detail reads; `surface` and `shell` hold only those.
+    /// Made on the first frame (it depends on the renderer), remade if a renderer reads others.
+    plan: Option<Arc<SamplePlan>>,
     surface: Surface,
     shell: Surface,
     /// Which grid `shell` holds (see `paint`), None before the first.
@@ -43,6 +50,9 @@ pub(super) struct Painter<'a> {
     /// The interval (its earlier survey) of the frame painted last: when the next frame starts
     /// another, the stack may hand back the grids read so far (see `AlignedStack::let_go`).
     interval: Option<usize>,
+    /// What the current interval's in-between frames need to find their figures without
+    /// computing the whole surface (see `interp::piecewise`); made on its first in-between frame.
+    bounds: Option<IntervalBounds>,
     /// The crest of every survey as the frames show it (display unit): (decimal year, value).
     survey_points: Vec<(f64, f64)>,
     /// Each of those surveys' σ (display unit), for the chart's ±σ bars.
@@ -101,10 +111,13 @@ impl<'a> Painter<'a> {
             fields,
             drape,
             shell_grid,
-            shell: Surface::for_stack(stack),
+            // Sized on the first frame, when the renderer's samples are known.
+            plan: None,
+            shell: unsized_surface(stack),
             shell_holds: None,
             interval: None,
-            surface: Surface::for_stack(stack),
+            bounds: None,
+            surface: unsized_surface(stack),
             survey_points,
             survey_sigma,
             inset_min_span,
@@ -128,18 +141,81 @@ impl<'a> Painter<'a> {
         if self.interval != Some(t.from) {
             stack.let_go();
             self.interval = Some(t.from);
+            self.bounds = None;
         }
-        make_surface(&mut self.surface, stack, self.fields, job, t);
+        let plan = renderer.sample_plan();
+        if self.plan.as_deref() != Some(&plan) {
+            let plan = Arc::new(plan);
+            self.surface = Surface::for_samples(stack.geometry(), plan.clone());
+            self.shell = Surface::for_samples(stack.geometry(), plan.clone());
+            self.shell_holds = None;
+            self.plan = Some(plan);
+        }
+        let plan = self.plan.clone().expect("made above");
         // The crest of this very surface; between surveys the blend's σ (see `change::crest`).
         let sigma = |i: usize| self.record.surveys[i].sigma_z_m;
-        let sigma_t = match t.kind {
-            FrameKind::Measured { survey } => sigma(survey),
+        let geometry = stack.geometry();
+        self.surface.kind = t.kind;
+        let out = self
+            .surface
+            .z
+            .as_slice_mut()
+            .expect("a new array is row-major");
+        let (crest, highest_cell) = match t.kind {
+            FrameKind::Measured { survey } => {
+                let z = stack.z(survey);
+                gather(&plan, &z, out);
+                (
+                    crest::estimate(&z, geometry, sigma(survey)),
+                    crest::highest_cell(&z),
+                )
+            }
             FrameKind::Interpolated { from, to } => {
-                crest::blend_sigma_m(sigma(from), sigma(to), t.weight)
+                // The frame draws the samples alone; its figures are those of the whole
+                // surface, found by computing it only where they can lie.
+                let field =
+                    (effective_method(job, self.fields, from) == Method::Morph).then(|| {
+                        &self.fields[from]
+                            .as_ref()
+                            .expect("checked by effective_method")
+                            .field
+                    });
+                let (a, b) = (stack.z(from), stack.z(to));
+                if self.bounds.is_none() {
+                    self.bounds = Some(IntervalBounds {
+                        max_a: BlockMax::new(&a),
+                        max_b: BlockMax::new(&b),
+                        reach: field.map(FieldReach::new),
+                    });
+                }
+                let bounds = self.bounds.as_ref().expect("made above");
+                let w = t.weight as f32;
+                let how = match (field, &bounds.reach) {
+                    (Some(field), Some(reach)) => {
+                        morph::morph_at_into(out, &a, &b, field, w, &plan.rows, &plan.cols);
+                        Between::Morph { field, reach }
+                    }
+                    _ => {
+                        linear::blend_at_into(out, &a, &b, w, &plan.rows, &plan.cols);
+                        Between::Blend
+                    }
+                };
+                let src = InBetween {
+                    a: a.view(),
+                    b: b.view(),
+                    max_a: &bounds.max_a,
+                    max_b: &bounds.max_b,
+                    w,
+                    how,
+                };
+                let sigma_t = crest::blend_sigma_m(sigma(from), sigma(to), t.weight);
+                (
+                    crest::estimate_piecewise(&src, geometry, sigma_t),
+                    piecewise::highest_cell(&src),
+                )
             }
         };
-        let crest = crest::estimate(&self.surface.z, stack.geometry(), sigma_t);
-        let highest_cell_m = crest::highest_cell(&self.surface.z).map(|(z, _, _)| z as f64);
+        let highest_cell_m = highest_cell.map(|(z, _, _)| z as f64);
         // The shell: a grid from the job, or an earlier survey (none on the survey itself).
         // (Which grid: `usize::MAX` for the job's shell grid, else the survey's index.)
         let shell_z = match self.shell_grid {
@@ -149,10 +225,17 @@ impl<'a> Painter<'a> {
                 .map(|i| (i, stack.z(i))),
         };
         if let Some((which, z)) = shell_z {
-            // The renderer fades the shell in with its height above the surface. Copied only when
-            // it changes (at 4096² a copy is 64 MB, and the shell is often one survey throughout).
+            // The renderer fades the shell in with its height above the surface. Its samples are
+            // copied only when it changes (the shell is often one survey throughout).
             if self.shell_holds != Some(which) {
-                self.shell.z.assign(&z);
+                gather(
+                    &plan,
+                    &z,
+                    self.shell
+                        .z
+                        .as_slice_mut()
+                        .expect("a new array is row-major"),
+                );
                 self.shell_holds = Some(which);
             }
         }
@@ -318,32 +401,27 @@ fn legend(job: &Job, stack: &AlignedStack, change_limit_m: Option<f64>) -> Legen
     }
 }
 
-pub(super) fn make_surface(
-    out: &mut Surface,
-    stack: &AlignedStack,
-    fields: &[Option<FlowResult>],
-    job: &Job,
-    t: &FrameTime,
-) {
-    match t.kind {
-        FrameKind::Interpolated { from, to }
-            if effective_method(job, fields, from) == Method::Morph =>
-        {
-            let field = &fields[from]
-                .as_ref()
-                .expect("checked by effective_method")
-                .field;
-            out.kind = t.kind;
-            morph::morph_into(
-                &mut out.z,
-                &stack.z(from),
-                &stack.z(to),
-                field,
-                t.weight as f32,
-            );
-        }
-        _ => interp::linear_into(out, stack, t),
+/// Per interval: the two surveys' block maxima and, for the morph, the field's reach.
+struct IntervalBounds {
+    max_a: BlockMax,
+    max_b: BlockMax,
+    reach: Option<FieldReach>,
+}
+
+/// A surface without cells yet (see `Painter::plan`).
+fn unsized_surface(stack: &AlignedStack) -> Surface {
+    Surface {
+        geometry: stack.geometry().clone(),
+        z: ndarray::Array2::zeros((0, 0)),
+        kind: FrameKind::Measured { survey: 0 },
+        samples: None,
     }
+}
+
+/// The samples of `plan` from the whole grid `z` into `out`.
+fn gather(plan: &SamplePlan, z: &ndarray::ArrayRef2<f32>, out: &mut [f32]) {
+    let z = z.as_standard_layout();
+    plan.gather_into(z.as_slice().expect("standard layout"), out);
 }
 
 /// The survey a frame is compared with: the first, or the earlier end of the frame's interval (for

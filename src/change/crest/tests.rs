@@ -186,3 +186,71 @@ fn sharp_and_broad_dunes_on_fine_and_coarse_grids() {
         }
     }
 }
+
+#[test]
+fn a_surface_computed_piece_by_piece_gives_the_whole_grids_crest() {
+    use crate::interp::flow::FlowField;
+    use crate::interp::piecewise::{Between, BlockMax, FieldReach, InBetween, Whole};
+    use crate::interp::{linear, morph};
+    // Two noisy dunes 30 m apart on a 300 m grid (cell 1 m), a field moving the first onto the
+    // second, and nodata in a strip: the crest of every in-between surface found piece by piece
+    // equals the crest found on the whole surface.
+    let g = geometry(300, 1.0);
+    let mut a = with_noise(&surface(&g, dune(-20.0, 10.0, 9.0)), 0.08, 11);
+    let b = with_noise(&surface(&g, dune(10.0, 5.0, 8.2)), 0.08, 12);
+    for r in 0..300 {
+        a[[r, 40]] = f32::NAN;
+    }
+    let field = FlowField::full(
+        Array2::from_elem((300, 300), 30.0),
+        Array2::from_elem((300, 300), -5.0),
+        Array2::ones((300, 300)),
+        1.0,
+    );
+    let (ma, mb, reach) = (
+        BlockMax::new(&a),
+        BlockMax::new(&b),
+        FieldReach::new(&field),
+    );
+    // Check: common practice, no source — the whole grid read piece by piece is the whole grid.
+    assert_eq!(
+        estimate_piecewise(&Whole::new(a.view()), &g, 0.08),
+        estimate(&a, &g, 0.08)
+    );
+    for w in [0.0, 0.2, 0.5, 0.8, 1.0] {
+        for morphing in [false, true] {
+            let mut z = Array2::zeros((300, 300));
+            let how = if morphing {
+                morph::morph_into(&mut z, &a, &b, &field, w);
+                Between::Morph {
+                    field: &field,
+                    reach: &reach,
+                }
+            } else {
+                linear::blend_into(&mut z, &a, &b, w);
+                Between::Blend
+            };
+            let src = InBetween {
+                a: a.view(),
+                b: b.view(),
+                max_a: &ma,
+                max_b: &mb,
+                w,
+                how,
+            };
+            let sigma = blend_sigma_m(0.08, 0.08, w as f64);
+            // Check: the whole-grid estimate of this module — same crest, bit for bit.
+            let (piece, whole) = (estimate_piecewise(&src, &g, sigma), estimate(&z, &g, sigma));
+            assert!(whole.is_some());
+            assert_eq!(piece, whole, "w {w} morph {morphing}");
+        }
+    }
+    // Too little data for any window: both fall back to the same highest cell.
+    let mut sparse = Array2::from_elem((90, 90), f32::NAN);
+    sparse[[10, 10]] = 3.0;
+    sparse[[50, 70]] = 4.0;
+    assert_eq!(
+        estimate_piecewise(&Whole::new(sparse.view()), &g, 0.1).map(|c| (c.row, c.col)),
+        Some((50.0, 70.0))
+    );
+}

@@ -104,6 +104,48 @@ impl FlowField {
             }
             return;
         }
+        assert!(
+            columns.len() == cols || self.east_m.is_empty(),
+            "column weights of this field"
+        );
+        self.blend_blocks(r, columns, east, north);
+    }
+
+    /// [`FlowField::row_at_with`] at some grid columns only (`at`, any order): `columns` holds
+    /// their entries of [`FlowField::column_weights`] (unused for a field at grid resolution).
+    /// The values are those `row_at_with` gives at the same columns, bit for bit.
+    pub fn row_at_columns(
+        &self,
+        r: usize,
+        at: &[usize],
+        columns: &[(u32, u32, f32)],
+        east: &mut Vec<f32>,
+        north: &mut Vec<f32>,
+    ) {
+        east.resize(at.len(), 0.0);
+        north.resize(at.len(), 0.0);
+        if self.step <= 1 {
+            let (er, nr) = (self.east_m.row(r), self.north_m.row(r));
+            for ((e, n), &c) in east.iter_mut().zip(north.iter_mut()).zip(at) {
+                (*e, *n) = (er[c], nr[c]);
+            }
+            return;
+        }
+        assert!(
+            columns.len() == at.len() || self.east_m.is_empty(),
+            "one column weight per column"
+        );
+        self.blend_blocks(r, columns, east, north);
+    }
+
+    /// The blocks around grid row `r` blended at the given column weights, one value per weight.
+    fn blend_blocks(
+        &self,
+        r: usize,
+        columns: &[(u32, u32, f32)],
+        east: &mut [f32],
+        north: &mut [f32],
+    ) {
         // The same arithmetic as `grid::sample_bilinear` (fine-cell centres always fall inside
         // the blocks' span), with the row's two block rows and weights found once.
         let k = self.step as f64;
@@ -113,7 +155,6 @@ impl FlowField {
             north.fill(f32::NAN);
             return;
         }
-        assert_eq!(columns.len(), cols, "column weights of this field");
         let rr = ((r as f64 + 0.5) / k - 0.5).clamp(0.0, (brows - 1) as f64);
         let r0 = rr.floor() as usize;
         let r1 = (r0 + 1).min(brows - 1);
