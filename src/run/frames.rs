@@ -10,7 +10,7 @@ use crate::align::AlignedStack;
 use crate::annotate::{
     self, Annotator, CrestFigure, CrestLabel, FrameStatus, InsetChart, Legend, Overlay,
 };
-use crate::change::crest::{self, Crest};
+use crate::change::crest;
 use crate::change::ChangeRecord;
 use crate::interp::flow::FlowResult;
 use crate::interp::piecewise::{self, Between, BlockMax, FieldReach, InBetween};
@@ -161,13 +161,19 @@ impl<'a> Painter<'a> {
             .z
             .as_slice_mut()
             .expect("a new array is row-major");
-        let (crest, highest_cell) = match t.kind {
+        // (The crest as (elevation, map x, map y), and the highest cell's elevation.)
+        let (crest, highest_cell_m) = match t.kind {
             FrameKind::Measured { survey } => {
-                let z = stack.z(survey);
-                gather(&plan, &z, out);
+                gather(&plan, &stack.z(survey), out);
+                // The record's figures of this survey: the same estimate on the same grid.
+                let s = &self.record.surveys[survey];
                 (
-                    crest::estimate(&z, geometry, sigma(survey)),
-                    crest::highest_cell(&z),
+                    s.crest_elevation_m.is_finite().then_some((
+                        s.crest_elevation_m,
+                        s.crest_x_crs,
+                        s.crest_y_crs,
+                    )),
+                    s.max_elevation_m.is_finite().then_some(s.max_elevation_m),
                 )
             }
             FrameKind::Interpolated { from, to } => {
@@ -210,12 +216,12 @@ impl<'a> Painter<'a> {
                 };
                 let sigma_t = crest::blend_sigma_m(sigma(from), sigma(to), t.weight);
                 (
-                    crest::estimate_piecewise(&src, geometry, sigma_t),
-                    piecewise::highest_cell(&src),
+                    crest::estimate_piecewise(&src, geometry, sigma_t)
+                        .map(|c| (c.elevation_m, c.x_crs, c.y_crs)),
+                    piecewise::highest_cell(&src).map(|(z, _, _)| f64::from(z)),
                 )
             }
         };
-        let highest_cell_m = highest_cell.map(|(z, _, _)| z as f64);
         // The shell: a grid from the job, or an earlier survey (none on the survey itself).
         // (Which grid: `usize::MAX` for the job's shell grid, else the survey's index.)
         let shell_z = match self.shell_grid {
@@ -255,7 +261,7 @@ impl<'a> Painter<'a> {
             _ => self.drape.map_or(Colouring::Elevation, Colouring::Drape),
         };
         let view = renderer.render_scene_into(&self.surface, shell, colouring, orbit, frame);
-        let crest_px = crest.and_then(|c| view.project(c.x_crs, c.y_crs, c.elevation_m));
+        let crest_px = crest.and_then(|(z, x, y)| view.project(x, y, z));
         let date_of = |i: usize| stack.surveys()[i].date.to_string();
         let status = match t.kind {
             FrameKind::Measured { survey } => FrameStatus::Surveyed {
@@ -267,9 +273,7 @@ impl<'a> Painter<'a> {
                 to_date: date_of(to),
             },
         };
-        let shown = crest.map_or(f64::NAN, |c| {
-            shown_crest_m(job, c.elevation_m) / unit.metres()
-        });
+        let shown = crest.map_or(f64::NAN, |(z, _, _)| shown_crest_m(job, z) / unit.metres());
         let name = crest_name(job);
         let overlay = Overlay {
             title: job.title.clone(),
@@ -301,7 +305,7 @@ impl<'a> Painter<'a> {
         };
         self.annotator.draw(frame, &overlay, &job.labels);
         FrameFigures {
-            crest_elevation_m: crest.map(|c: Crest| c.elevation_m),
+            crest_elevation_m: crest.map(|(z, _, _)| z),
             highest_cell_elevation_m: highest_cell_m,
         }
     }

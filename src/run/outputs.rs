@@ -75,10 +75,10 @@ pub(super) fn write_outputs(
     // frames at once: the serial parts of a frame (its crest, labels, the renderer's set-up) then
     // overlap instead of leaving a core idle. Each frame is painted whole by one painter, so the
     // frames are the same whichever painter paints them.
-    // Above 2048² cells a second painter's surfaces would cost 128 MB or more (a 4096² pair then
-    // peaked at 1.2 GiB instead of about 0.9), and most of a frame's work is parallel anyway.
+    // A painter holds only the cells its renderer reads (at most 16 per vertex, 4 MB at 4096²),
+    // so a second one costs little at any grid size.
     let (rows, cols) = (stack.geometry().rows, stack.geometry().cols);
-    let workers = if rayon::current_num_threads() > 1 && rows * cols <= SECOND_PAINTER_MAX_CELLS {
+    let workers = if rayon::current_num_threads() > 1 {
         2
     } else {
         1
@@ -187,7 +187,7 @@ pub(super) fn write_outputs(
     // are made side by side (each spreads over the pool as well), and their files are listed in
     // this fixed order whatever finishes first.
     // (On grids above 2048² one after another: their buffers together would raise the peak memory.)
-    let small = rows * cols <= SECOND_PAINTER_MAX_CELLS;
+    let small = rows * cols <= SIDE_BY_SIDE_MAX_CELLS;
     let ((gif_file, poster_file), (raster_files, figures)) = join_if(
         small,
         || {
@@ -442,8 +442,8 @@ fn files_under(dir: &Path, prefix: &str) -> Result<Vec<ExtraFile>> {
 /// to paint or to encode, few enough that memory does not grow with the animation.
 const PIPELINE_DEPTH: usize = 3;
 
-/// Largest grid (cells) painted by two painters at once; see `write_outputs`.
-const SECOND_PAINTER_MAX_CELLS: usize = 2048 * 2048;
+/// Largest grid (cells) whose closing outputs are made side by side; see `write_outputs`.
+const SIDE_BY_SIDE_MAX_CELLS: usize = 2048 * 2048;
 
 /// Where each finished frame goes, in frame order: the PNG sequence (with its index row), the
 /// video encoder, and the frames kept for the GIF's palette.

@@ -1,0 +1,88 @@
+//! Bench: what a larger grid costs a whole run, as issue 11 sets it. One survey pair of the demo
+//! (the first and the last survey, made by the demo generator) at 1024² and at 4096² cells over
+//! the same ground, the same 49 frames at 1280×720 (supersample 2, morph, shadows, the first
+//! survey as shell, GIF + PNG frames + poster + record). The two jobs run alternately as separate
+//! processes of the release binary, three times each, so a busy spell of the machine falls on
+//! both; the medians and their ratio are printed. Target: the 4096² pair ≤ 2× the 1024² pair.
+//!
+//! Also prints the largest peak resident memory of the runs (the 4096² pair's; `getrusage` of the
+//! finished children). Run with `cargo bench --bench pair` (about two minutes on two cores, half
+//! of it making the grids).
+
+use std::path::Path;
+use std::process::{Command, Stdio};
+use std::time::Instant;
+
+const FIRST: &str = "quellan-2026-04-14.tif";
+const LAST: &str = "quellan-2034-05-08.tif";
+const RUNS: usize = 3;
+
+fn main() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut jobs = Vec::new();
+    for cells in [1024, 4096] {
+        let grids = dir.path().join(format!("grids{cells}"));
+        let status = Command::new(env!("CARGO_BIN_EXE_make-demo-data"))
+            .args([grids.to_str().unwrap(), "--cells", &cells.to_string()])
+            .stdout(Stdio::null())
+            .status()
+            .unwrap();
+        assert!(status.success(), "the demo generator failed");
+        let text = format!(
+            "format_version: 1\n\
+             title: Pair bench {cells} (invented)\n\
+             surveys:\n\
+             \x20 - {{ date: 2026-04-14, grid: grids{cells}/{FIRST}, sigma_z_m: 0.10 }}\n\
+             \x20 - {{ date: 2034-05-08, grid: grids{cells}/{LAST}, sigma_z_m: 0.08 }}\n\
+             timeline: {{ frames_per_year: 6, fps: 12, hold_s: 1.0 }}\n\
+             in_between: {{ method: morph }}\n\
+             view: {{ width: 1280, height: 720, supersample: 2 }}\n\
+             sun: {{ shadows: true }}\n\
+             shell: {{ survey: first }}\n\
+             output: {{ folder: out{cells}, gif: pair.gif, png_frames: true, poster: true, overwrite: true }}\n"
+        );
+        let path = dir.path().join(format!("pair{cells}.yaml"));
+        std::fs::write(&path, text).unwrap();
+        jobs.push((cells, path));
+    }
+    let mut times: Vec<Vec<f64>> = vec![Vec::new(); jobs.len()];
+    for _ in 0..RUNS {
+        for (k, (cells, path)) in jobs.iter().enumerate() {
+            let s = run(path);
+            println!("  {cells}² pair: {s:.2} s");
+            times[k].push(s);
+        }
+    }
+    let median = |v: &mut Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v[v.len() / 2]
+    };
+    let (small, large) = (median(&mut times[0]), median(&mut times[1]));
+    println!(
+        "median of {RUNS}: 1024² pair {small:.2} s, 4096² pair {large:.2} s, ratio {:.2} (target ≤ 2)",
+        large / small
+    );
+    // SAFETY: getrusage only writes the struct it is given.
+    let peak_mib = unsafe {
+        let mut u: libc::rusage = std::mem::zeroed();
+        (libc::getrusage(libc::RUSAGE_CHILDREN, &mut u) == 0).then(|| u.ru_maxrss as f64 / 1024.0)
+    };
+    if let Some(mib) = peak_mib {
+        println!("largest peak resident memory of the runs: {mib:.0} MiB");
+    }
+}
+
+/// Runs one job with the release binary (no `-v`, which resets the high-water mark per stage) and
+/// returns its wall time in seconds.
+fn run(job: &Path) -> f64 {
+    let t0 = Instant::now();
+    let status = Command::new(env!("CARGO_BIN_EXE_dunereel"))
+        .args(["render", job.to_str().unwrap()])
+        .current_dir(job.parent().unwrap())
+        .stdout(Stdio::null())
+        .status()
+        .unwrap();
+    let s = t0.elapsed().as_secs_f64();
+    assert!(status.success(), "{} failed", job.display());
+    s
+}
