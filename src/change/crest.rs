@@ -24,7 +24,7 @@ use ndarray::ArrayRef2;
 use rayon::prelude::*;
 
 use crate::grid::GridGeometry;
-use crate::interp::piecewise::{self, Piecewise};
+use crate::interp::piecewise::{self, Piecewise, Whole};
 
 /// The standard error, metres, the neighbourhood grows to reach: a tenth of the usual lidar σ on
 /// bare sand (REFERENCES §12: 0.05–0.15 m, common practice, no source), below what a slide shows.
@@ -67,22 +67,15 @@ pub struct Crest {
 /// Estimates the crest of `z` (NaN = nodata) for a surface of vertical uncertainty `sigma_z_m`.
 /// None when every cell is nodata.
 pub fn estimate(z: &ArrayRef2<f32>, geometry: &GridGeometry, sigma_z_m: f64) -> Option<Crest> {
-    let sigma = if sigma_z_m.is_finite() && sigma_z_m > 0.0 {
-        sigma_z_m
-    } else {
-        // A stated σ of 0 would make every window "misfit"; a millimetre stands for exact data.
-        0.001
-    };
-    let top = smoothed_top(z, 3)?;
-    estimate_near(z, (0, 0), top, geometry, sigma, || highest_cell(z))
+    // The same search as for a surface made piece by piece: block maxima (one pass over the
+    // grid) bound every tile, and only the tiles that can hold the top are scored.
+    estimate_piecewise(&Whole::new(z.view()), geometry, sigma_z_m)
 }
 
 /// [`estimate`] of a surface computed piece by piece (an in-between surface, see
 /// `interp::piecewise`): the top is found by a search that computes only the tiles that can hold
-/// it, the fits run on a window around it, and the result is that of [`estimate`] on the whole
-/// surface. (The one difference: the moving means that find the top are summed cell by cell
-/// rather than from summed-area tables, so two windows whose means differ only in the last digits
-/// of a double might be ranked the other way.)
+/// it, and the fits run on a window around it; the result is that of [`estimate`] on the whole
+/// surface, bit for bit.
 pub fn estimate_piecewise(
     src: &dyn Piecewise,
     geometry: &GridGeometry,
@@ -91,6 +84,7 @@ pub fn estimate_piecewise(
     let sigma = if sigma_z_m.is_finite() && sigma_z_m > 0.0 {
         sigma_z_m
     } else {
+        // A stated σ of 0 would make every window "misfit"; a millimetre stands for exact data.
         0.001
     };
     let (rows, cols) = src.dim();
@@ -219,112 +213,10 @@ pub fn highest_cell(z: &ArrayRef2<f32>) -> Option<(f32, usize, usize)> {
     best.map(|(v, i)| (v, i / cols, i % cols))
 }
 
-/// The cell where the mean over a (2k+1)² window (cells with data only) is highest.
-///
-/// Window sums come from summed-area tables of values and of data counts, `(rows+1) × (cols+1)`,
-/// built a chunk of rows at a time: each row's running sums side by side, then added to the table
-/// row above in order, so every entry is the sum a whole table would hold. Only the table rows the
-/// chunk's windows reach are kept (at 4096² about 13 MB instead of 200 MB).
-fn smoothed_top(z: &ArrayRef2<f32>, k: usize) -> Option<(usize, usize)> {
-    /// Rows scored side by side; a chunk is several bands.
-    const BAND: usize = 32;
-    const CHUNK: usize = 8 * BAND;
-    let (rows, cols) = z.dim();
-    let laid_out = z.as_standard_layout();
-    let zs = laid_out.as_slice().expect("standard layout");
-    let w = cols + 1;
-    // Table rows `base..base + sum.len() / w`; table row 0 is all zero.
-    let (mut base, mut sum, mut cnt) = (0usize, vec![0.0f64; w], vec![0u32; w]);
-    let need = ((2 * k + 1) * (2 * k + 1) / 2) as u32;
-    let mut best: Option<(f64, usize, usize)> = None;
-    for r0 in (0..rows).step_by(CHUNK) {
-        let r1 = (r0 + CHUNK).min(rows);
-        // Keep the table rows from r0 - k on, then build them up to r1 + k + 1.
-        let keep_from = r0.saturating_sub(k).max(base);
-        sum.drain(..(keep_from - base) * w);
-        cnt.drain(..(keep_from - base) * w);
-        base = keep_from;
-        let built = base + sum.len() / w; // first table row not yet built
-        let upto = (r1 + k + 1).min(rows) + 1; // one past the last table row needed
-        if upto > built {
-            let start = sum.len();
-            sum.resize(start + (upto - built) * w, 0.0);
-            cnt.resize(start + (upto - built) * w, 0);
-            // Table row t holds data row t - 1.
-            sum[start..]
-                .par_chunks_mut(w)
-                .zip(cnt[start..].par_chunks_mut(w))
-                .zip(zs[(built - 1) * cols..(upto - 1) * cols].par_chunks(cols.max(1)))
-                .for_each(|((srow, crow), zrow)| {
-                    let (mut rs, mut rc) = (0.0f64, 0u32);
-                    for c in 0..cols {
-                        let v = zrow[c];
-                        if v.is_finite() {
-                            rs += v as f64;
-                            rc += 1;
-                        }
-                        srow[c + 1] = rs;
-                        crow[c + 1] = rc;
-                    }
-                });
-            for t in built..upto {
-                let i = (t - base) * w;
-                let (above, here) = sum.split_at_mut(i);
-                for (h, &a) in here[..w].iter_mut().zip(&above[i - w..]) {
-                    *h += a;
-                }
-                let (above, here) = cnt.split_at_mut(i);
-                for (h, &a) in here[..w].iter_mut().zip(&above[i - w..]) {
-                    *h += a;
-                }
-            }
-        }
-        let (sum, cnt) = (&sum, &cnt);
-        let at = |t: usize, c: usize| (t - base) * w + c;
-        // The best window of each band of rows, side by side; then the bands in order, so the
-        // first window in row order wins a tie, as in a single scan.
-        let band_best = |band_start: usize| -> Option<(f64, usize, usize)> {
-            let mut best: Option<(f64, usize, usize)> = None;
-            for r in band_start..(band_start + BAND).min(r1) {
-                let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
-                for c in 0..cols {
-                    if !zs[r * cols + c].is_finite() {
-                        continue;
-                    }
-                    let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
-                    let n = cnt[at(rb, cb)] + cnt[at(ra, ca)] - cnt[at(ra, cb)] - cnt[at(rb, ca)];
-                    if n < need.min(((rb - ra) * (cb - ca)) as u32) || n == 0 {
-                        continue;
-                    }
-                    let s = sum[at(rb, cb)] + sum[at(ra, ca)] - sum[at(ra, cb)] - sum[at(rb, ca)];
-                    let mean = s / n as f64;
-                    if best.is_none_or(|(b, _, _)| mean > b) {
-                        best = Some((mean, r, c));
-                    }
-                }
-            }
-            best
-        };
-        let bands: Vec<Option<(f64, usize, usize)>> = (r0..r1)
-            .step_by(BAND)
-            .collect::<Vec<_>>()
-            .into_par_iter()
-            .map(band_best)
-            .collect();
-        for (mean, r, c) in bands.into_iter().flatten() {
-            if best.is_none_or(|(b, _, _)| mean > b) {
-                best = Some((mean, r, c));
-            }
-        }
-    }
-    best.map(|(_, r, c)| (r, c)).or_else(|| {
-        // Data too sparse for any window: fall back to the highest cell.
-        highest_cell(z).map(|(_, r, c)| (r, c))
-    })
-}
-
-/// [`smoothed_top`] of a surface computed piece by piece: the search computes only tiles whose
-/// bound (the highest value within reach of their windows) can beat the best mean so far.
+/// The cell where the mean over a (2k+1)² window (cells with data only; at least half of the
+/// window, or of its part inside the grid) is highest, the first in row order on ties. The search
+/// (`interp::piecewise::search`) scores only tiles whose bound, the highest value within reach of
+/// their windows, can beat the best mean so far; each window is summed cell by cell in row order.
 fn smoothed_top_piecewise(src: &dyn Piecewise, k: usize) -> Option<(usize, usize)> {
     let need = ((2 * k + 1) * (2 * k + 1) / 2) as u32;
     piecewise::search(src, k, |tile, values| {

@@ -145,8 +145,13 @@ pub struct FieldReach {
 }
 
 impl FieldReach {
-    /// The reach of `field` (evaluated at every grid cell once, as the morph reads it).
+    /// The reach of `field`. A field at grid resolution is read cell by cell; one kept at blocks
+    /// (`step` > 1) is read at the blocks whose values a cell's bilinear blend can take in, since
+    /// the blend lies between them (the bound's margin of a cell covers the blend's rounding).
     pub fn new(field: &FlowField) -> FieldReach {
+        if field.step > 1 {
+            return FieldReach::from_blocks(field);
+        }
         let dim = field.grid_dim;
         let inv_cell = if field.cell_size_m.is_finite() && field.cell_size_m > 0.0 {
             (1.0 / field.cell_size_m) as f32
@@ -184,6 +189,70 @@ impl FieldReach {
                 *m = [f32::NAN; 4];
             }
         }
+        FieldReach { cols: bcols, reach }
+    }
+
+    /// [`FieldReach::new`] of a field kept at blocks of `step` cells.
+    fn from_blocks(field: &FlowField) -> FieldReach {
+        let dim = field.grid_dim;
+        let inv_cell = if field.cell_size_m.is_finite() && field.cell_size_m > 0.0 {
+            (1.0 / field.cell_size_m) as f32
+        } else {
+            0.0
+        };
+        let (brows, bcols) = (dim.0.div_ceil(MAX_BLOCK), dim.1.div_ceil(MAX_BLOCK));
+        let (frows, fcols) = field.east_m.dim();
+        let k = field.step as f64;
+        // The field blocks a run of grid cells blends: from the block below the first cell's
+        // centre to the one above the last's (as `FlowField::row_at_with` places them).
+        let blocks = |first: usize, last: usize, n: usize| {
+            let at = |x: usize| {
+                ((x as f64 + 0.5) / k - 0.5)
+                    .clamp(0.0, (n - 1) as f64)
+                    .floor()
+            };
+            at(first) as usize..=((at(last) as usize) + 1).min(n - 1)
+        };
+        let mut reach = vec![[f32::NAN; 4]; brows * bcols];
+        if frows == 0 || fcols == 0 {
+            return FieldReach { cols: bcols, reach };
+        }
+        reach
+            .par_chunks_mut(bcols.max(1))
+            .enumerate()
+            .for_each(|(br, out)| {
+                let r0 = br * MAX_BLOCK;
+                let rs = blocks(r0, (r0 + MAX_BLOCK).min(dim.0) - 1, frows);
+                for (bc, m) in out.iter_mut().enumerate() {
+                    let c0 = bc * MAX_BLOCK;
+                    let cs = blocks(c0, (c0 + MAX_BLOCK).min(dim.1) - 1, fcols);
+                    let mut acc = [
+                        f32::INFINITY,
+                        f32::NEG_INFINITY,
+                        f32::INFINITY,
+                        f32::NEG_INFINITY,
+                    ];
+                    for fr in rs.clone() {
+                        for fc in cs.clone() {
+                            let (du, dv) = (
+                                field.east_m[[fr, fc]] * inv_cell,
+                                -field.north_m[[fr, fc]] * inv_cell,
+                            );
+                            if du.is_finite() && dv.is_finite() {
+                                acc = [
+                                    acc[0].min(du),
+                                    acc[1].max(du),
+                                    acc[2].min(dv),
+                                    acc[3].max(dv),
+                                ];
+                            }
+                        }
+                    }
+                    if acc[0] <= acc[1] {
+                        *m = acc;
+                    }
+                }
+            });
         FieldReach { cols: bcols, reach }
     }
 
@@ -454,6 +523,19 @@ mod tests {
                 0.5,
             );
             let reach = FieldReach::new(&field);
+            // The same field kept at blocks of 4 cells, as large grids keep it.
+            let (fr, fc) = (rows.div_ceil(4), cols.div_ceil(4));
+            let blocky = FlowField {
+                east_m: Array2::from_shape_fn((fr, fc), |(r, c)| {
+                    3.0 + 0.08 * c as f32 - 0.04 * r as f32
+                }),
+                north_m: Array2::from_shape_fn((fr, fc), |(r, _)| -2.0 + 0.12 * r as f32),
+                quality: Array2::ones((fr, fc)),
+                cell_size_m: 0.5,
+                step: 4,
+                grid_dim: (rows, cols),
+            };
+            let blocky_reach = FieldReach::new(&blocky);
             // Check: the whole-grid scan — the branch-and-bound search gives the same cell and
             // value (common practice, no source).
             let whole = Whole::new(a.view());
@@ -465,8 +547,16 @@ mod tests {
                         field: &field,
                         reach: &reach,
                     },
+                    Between::Morph {
+                        field: &blocky,
+                        reach: &blocky_reach,
+                    },
                 ] {
                     let morphing = matches!(how, Between::Morph { .. });
+                    let field = match how {
+                        Between::Morph { field, .. } => field,
+                        Between::Blend => &field,
+                    };
                     let src = InBetween {
                         a: a.view(),
                         b: b.view(),
@@ -477,7 +567,7 @@ mod tests {
                     };
                     let mut z = Array2::zeros((rows, cols));
                     if morphing {
-                        morph::morph_into(&mut z, &a, &b, &field, w);
+                        morph::morph_into(&mut z, &a, &b, field, w);
                     } else {
                         linear::blend_into(&mut z, &a, &b, w);
                     }

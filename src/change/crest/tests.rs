@@ -254,3 +254,59 @@ fn a_surface_computed_piece_by_piece_gives_the_whole_grids_crest() {
         Some((50.0, 70.0))
     );
 }
+
+#[test]
+fn the_smoothed_top_is_the_best_window_of_a_brute_force_scan() {
+    use crate::interp::piecewise::Whole;
+    // Check: brute force — every 7×7 window (cells with data, at least half of the window inside
+    // the grid) averaged directly; the search must return the first cell of the highest mean.
+    let g = geometry(150, 1.0);
+    let mut z = with_noise(&surface(&g, dune(12.0, -20.0, 6.0)), 0.3, 5);
+    for i in (0..150 * 150).step_by(13) {
+        z[[i / 150, i % 150]] = f32::NAN;
+    }
+    let (rows, cols) = z.dim();
+    let k = 3usize;
+    let need = ((2 * k + 1) * (2 * k + 1) / 2) as u32;
+    let mut best: Option<(f64, usize, usize)> = None;
+    for r in 0..rows {
+        for c in 0..cols {
+            if !z[[r, c]].is_finite() {
+                continue;
+            }
+            let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
+            let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
+            let (mut s, mut n) = (0.0f64, 0u32);
+            for rr in ra..rb {
+                for cc in ca..cb {
+                    if z[[rr, cc]].is_finite() {
+                        s += f64::from(z[[rr, cc]]);
+                        n += 1;
+                    }
+                }
+            }
+            if n == 0 || n < need.min(((rb - ra) * (cb - ca)) as u32) {
+                continue;
+            }
+            let mean = s / f64::from(n);
+            if best.is_none_or(|(b, _, _)| mean > b) {
+                best = Some((mean, r, c));
+            }
+        }
+    }
+    let want = best.map(|(_, r, c)| (r, c));
+    assert_eq!(smoothed_top_piecewise(&Whole::new(z.view()), 3), want);
+    // Two equal plateaus: the first in row order.
+    let mut flat = Array2::from_elem((140, 140), 1.0f32);
+    for (r0, c0) in [(100, 10), (20, 120)] {
+        for r in r0..r0 + 9 {
+            for c in c0..c0 + 9 {
+                flat[[r, c]] = 4.0;
+            }
+        }
+    }
+    assert_eq!(
+        smoothed_top_piecewise(&Whole::new(flat.view()), 3),
+        Some((23, 123))
+    );
+}
