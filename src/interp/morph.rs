@@ -189,11 +189,74 @@ pub fn morph_at_into(
 ) {
     let dim = a.dim();
     assert!(
-        b.dim() == dim
-            && field.grid_dim == dim
-            && (field.step > 1 || (field.east_m.dim() == dim && field.north_m.dim() == dim))
-            && out.len() == rows.len() * cols.len(),
+        field.grid_dim == dim
+            && (field.step > 1 || (field.east_m.dim() == dim && field.north_m.dim() == dim)),
         "morph_at_into: arrays differ in shape"
+    );
+    let at = FieldAt::new(field, rows, cols);
+    morph_at_with(out, a, b, &at, w, rows, cols);
+}
+
+/// A displacement field at the cells `rows` × `cols` (row-major, metres east and north), as
+/// [`morph_at_into`] reads it: made once, it serves every frame of an interval.
+#[derive(Debug, Clone)]
+pub struct FieldAt {
+    east: Vec<f32>,
+    north: Vec<f32>,
+    inv_cell: f32,
+}
+
+impl FieldAt {
+    /// `field` at the cells `rows` × `cols`.
+    pub fn new(field: &FlowField, rows: &[usize], cols: &[usize]) -> FieldAt {
+        let n = rows.len() * cols.len();
+        let (mut east, mut north) = (vec![0.0f32; n], vec![0.0f32; n]);
+        let all = field.column_weights();
+        let weights: Vec<(u32, u32, f32)> = if all.is_empty() {
+            Vec::new()
+        } else {
+            cols.iter().map(|&c| all[c]).collect()
+        };
+        if n > 0 {
+            east.par_chunks_mut(cols.len())
+                .zip(north.par_chunks_mut(cols.len()))
+                .zip(rows.par_iter())
+                .for_each_init(
+                    || (Vec::new(), Vec::new()),
+                    |(e, nn), ((eo, no), &r)| {
+                        field.row_at_columns(r, cols, &weights, e, nn);
+                        eo.copy_from_slice(e);
+                        no.copy_from_slice(nn);
+                    },
+                );
+        }
+        FieldAt {
+            east,
+            north,
+            inv_cell: cells_per_metre(field),
+        }
+    }
+}
+
+/// [`morph_at_into`] with the field already at the cells (`FieldAt::new` with the same `rows`
+/// and `cols`); the values are the same bit for bit.
+///
+/// # Panics
+/// When `a` and `b` differ in shape, or `out` or `field` have the wrong length.
+pub fn morph_at_with(
+    out: &mut [f32],
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
+    field: &FieldAt,
+    w: f32,
+    rows: &[usize],
+    cols: &[usize],
+) {
+    let dim = a.dim();
+    let n = rows.len() * cols.len();
+    assert!(
+        b.dim() == dim && out.len() == n && field.east.len() == n && field.north.len() == n,
+        "morph_at_with: arrays differ in shape"
     );
     let w = if w.is_nan() { 0.0 } else { w.clamp(0.0, 1.0) };
     if w == 0.0 || w == 1.0 {
@@ -205,7 +268,7 @@ pub fn morph_at_into(
         }
         return;
     }
-    if rows.is_empty() || cols.is_empty() {
+    if n == 0 {
         return;
     }
     let a = a.as_standard_layout();
@@ -214,25 +277,25 @@ pub fn morph_at_into(
         a.as_slice().expect("standard layout"),
         b.as_slice().expect("standard layout"),
     );
-    let inv_cell = cells_per_metre(field);
+    let inv_cell = field.inv_cell;
     let d = RasterDims {
         rows: dim.0,
         cols: dim.1,
     };
-    let all = field.column_weights();
-    let weights: Vec<(u32, u32, f32)> = if all.is_empty() {
-        Vec::new()
-    } else {
-        cols.iter().map(|&c| all[c]).collect()
-    };
-    let band = (BAND_ROWS * dim.1).div_ceil(cols.len()).max(1);
-    out.par_chunks_mut(cols.len() * band)
+    let nc = cols.len();
+    let band = (BAND_ROWS * dim.1).div_ceil(nc).max(1);
+    out.par_chunks_mut(nc * band)
+        .zip(field.east.par_chunks(nc * band))
+        .zip(field.north.par_chunks(nc * band))
         .zip(rows.par_chunks(band))
-        .for_each(|(chunk, band_rows)| {
-            let (mut east, mut north) = (Vec::new(), Vec::new());
-            for (orow, &r) in chunk.chunks_exact_mut(cols.len()).zip(band_rows) {
-                field.row_at_columns(r, cols, &weights, &mut east, &mut north);
-                for (((o, &c), &e), &n) in orow.iter_mut().zip(cols).zip(&east).zip(&north) {
+        .for_each(|(((chunk, east), north), band_rows)| {
+            for (((orow, er), nr), &r) in chunk
+                .chunks_exact_mut(nc)
+                .zip(east.chunks_exact(nc))
+                .zip(north.chunks_exact(nc))
+                .zip(band_rows)
+            {
+                for (((o, &c), &e), &n) in orow.iter_mut().zip(cols).zip(er).zip(nr) {
                     *o = warp_blend(a, b, d, r, c, e, n, w, inv_cell);
                 }
             }

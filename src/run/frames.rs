@@ -149,6 +149,7 @@ impl<'a> Painter<'a> {
             self.surface = Surface::for_samples(stack.geometry(), plan.clone());
             self.shell = Surface::for_samples(stack.geometry(), plan.clone());
             self.shell_holds = None;
+            self.bounds = None;
             self.plan = Some(plan);
         }
         let plan = self.plan.clone().expect("made above");
@@ -191,14 +192,19 @@ impl<'a> Painter<'a> {
                     self.bounds = Some(IntervalBounds {
                         max_a: BlockMax::new(&a),
                         max_b: BlockMax::new(&b),
-                        reach: field.map(FieldReach::new),
+                        reach: field.map(|f| {
+                            (
+                                FieldReach::new(f),
+                                morph::FieldAt::new(f, &plan.rows, &plan.cols),
+                            )
+                        }),
                     });
                 }
                 let bounds = self.bounds.as_ref().expect("made above");
                 let w = t.weight as f32;
                 let how = match (field, &bounds.reach) {
-                    (Some(field), Some(reach)) => {
-                        morph::morph_at_into(out, &a, &b, field, w, &plan.rows, &plan.cols);
+                    (Some(field), Some((reach, at))) => {
+                        morph::morph_at_with(out, &a, &b, at, w, &plan.rows, &plan.cols);
                         Between::Morph { field, reach }
                     }
                     _ => {
@@ -405,11 +411,12 @@ fn legend(job: &Job, stack: &AlignedStack, change_limit_m: Option<f64>) -> Legen
     }
 }
 
-/// Per interval: the two surveys' block maxima and, for the morph, the field's reach.
+/// Per interval: the two surveys' block maxima and, for the morph, the field's reach and its
+/// values at the frame's samples (the field is the same for every frame of the interval).
 struct IntervalBounds {
     max_a: BlockMax,
     max_b: BlockMax,
-    reach: Option<FieldReach>,
+    reach: Option<(FieldReach, morph::FieldAt)>,
 }
 
 /// A surface without cells yet (see `Painter::plan`).
