@@ -186,8 +186,11 @@ pub(super) fn write_outputs(
     // The GIF, the poster, the record's rasters and its maps need only what is made by now: they
     // are made side by side (each spreads over the pool as well), and their files are listed in
     // this fixed order whatever finishes first.
-    // (On grids above 2048² one after another: their buffers together would raise the peak memory.)
-    let small = rows * cols <= SIDE_BY_SIDE_MAX_CELLS;
+    // One after another only for a long series of large grids (above 2048² cells, the stack in
+    // its scratch file): there each side would keep its own pair of grids resident besides its
+    // buffers, and twelve 4096² surveys then peaked at 992 MiB instead of about 800. A stack held
+    // in memory is resident anyway, and a 4096² pair side by side peaks at about 210 MB.
+    let small = rows * cols <= SIDE_BY_SIDE_MAX_CELLS || !stack.is_in_scratch_file();
     let ((gif_file, poster_file), (raster_files, figures)) = join_if(
         small,
         || {
@@ -442,7 +445,7 @@ fn files_under(dir: &Path, prefix: &str) -> Result<Vec<ExtraFile>> {
 /// to paint or to encode, few enough that memory does not grow with the animation.
 const PIPELINE_DEPTH: usize = 3;
 
-/// Largest grid (cells) whose closing outputs are made side by side; see `write_outputs`.
+/// Largest grid (cells) whose closing outputs are always made side by side; see `write_outputs`.
 const SIDE_BY_SIDE_MAX_CELLS: usize = 2048 * 2048;
 
 /// Where each finished frame goes, in frame order: the PNG sequence (with its index row), the
