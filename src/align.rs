@@ -107,7 +107,7 @@ impl AlignedStack {
     pub fn elevation_range(&self) -> Option<(f32, f32)> {
         let mut range: Option<(f32, f32)> = None;
         for i in 0..self.len() {
-            if let Some((lo, hi)) = crate::grid::finite_range(self.z(i).iter().copied()) {
+            if let Some((lo, hi)) = crate::grid::finite_range_par(&self.z(i)) {
                 range = Some(range.map_or((lo, hi), |(a, b)| (a.min(lo), b.max(hi))));
             }
             self.let_go();

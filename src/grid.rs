@@ -199,6 +199,19 @@ pub fn finite_range(values: impl Iterator<Item = f32>) -> Option<(f32, f32)> {
     (lo <= hi).then_some((lo, hi))
 }
 
+/// [`finite_range`] of a grid, rows side by side. The lowest and highest values do not depend on
+/// the order they are met in (a zero counts as +0, whatever its sign), so the result is the same on
+/// any thread count.
+pub fn finite_range_par(z: &ArrayRef2<f32>) -> Option<(f32, f32)> {
+    use rayon::prelude::*;
+    let rows: Vec<(f32, f32)> = (0..z.nrows())
+        .into_par_iter()
+        .with_min_len(16)
+        .filter_map(|r| finite_range(z.row(r).iter().map(|&v| v + 0.0)))
+        .collect();
+    finite_range(rows.iter().flat_map(|&(lo, hi)| [lo, hi]))
+}
+
 /// Bilinear sample of an array at continuous (row, col), cell centres at whole numbers.
 /// Points within half a cell outside the edge are clamped to the edge; further out gives NaN.
 /// Nodata (NaN) in any neighbour with non-zero weight propagates.

@@ -18,6 +18,7 @@
 //!    is then slid so the box sits in the middle of the free area, and the distance refitted.
 
 use ndarray::ArrayView2;
+use rayon::prelude::*;
 
 use super::camera::{self, Camera};
 use crate::grid::GridGeometry;
@@ -159,15 +160,23 @@ pub fn focus_of_change<'s>(
         if za.dim() != (rows, cols) || zb.dim() != (rows, cols) {
             continue;
         }
+        // Each row of blocks counted alone, side by side (counts do not depend on the order).
         let mut count = vec![(0u32, 0u32); br * bc];
-        for ((r, c), &va) in za.indexed_iter() {
-            let d = zb[[r, c]] - va;
-            if d.is_finite() {
-                let e = &mut count[(r / block) * bc + c / block];
-                e.0 += 1;
-                e.1 += u32::from(f64::from(d.abs()) >= lod);
-            }
-        }
+        count
+            .par_chunks_mut(bc)
+            .enumerate()
+            .for_each(|(brow, counts)| {
+                for r in brow * block..((brow + 1) * block).min(rows) {
+                    for (c, (&va, &vb)) in za.row(r).iter().zip(zb.row(r)).enumerate() {
+                        let d = vb - va;
+                        if d.is_finite() {
+                            let e = &mut counts[c / block];
+                            e.0 += 1;
+                            e.1 += u32::from(f64::from(d.abs()) >= lod);
+                        }
+                    }
+                }
+            });
         for (flag, &(n, hit)) in changed_block.iter_mut().zip(&count) {
             *flag |= n > 0 && f64::from(hit) >= BLOCK_CHANGED_SHARE * f64::from(n);
         }
@@ -255,17 +264,21 @@ fn envelope<'s>(
         })
         .collect();
     // One survey at a time over every node (lowest and highest do not depend on the order).
+    // (Nodes side by side; a zero counts as +0 whatever its sign, so nothing depends on the order.)
     let mut range = vec![(f32::INFINITY, f32::NEG_INFINITY); nodes.len()];
     for k in 0..count {
         let z = surface(k);
-        for ((_, _, rows, cols), (lo, hi)) in nodes.iter().zip(range.iter_mut()) {
-            for v in z.slice(ndarray::s![rows.clone(), cols.clone()]) {
-                if v.is_finite() {
-                    *lo = lo.min(*v);
-                    *hi = hi.max(*v);
+        nodes
+            .par_iter()
+            .zip(range.par_iter_mut())
+            .for_each(|((_, _, rows, cols), (lo, hi))| {
+                for v in z.slice(ndarray::s![rows.clone(), cols.clone()]) {
+                    if v.is_finite() {
+                        *lo = lo.min(*v + 0.0);
+                        *hi = hi.max(*v + 0.0);
+                    }
                 }
-            }
-        }
+            });
     }
     let mut out = Vec::with_capacity(nodes.len());
     for ((edge_r, edge_c, _, _), (lo, hi)) in nodes.into_iter().zip(range) {
