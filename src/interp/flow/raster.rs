@@ -205,51 +205,58 @@ pub(crate) fn base_plane_outside(a: &[f32], b: &[f32], skip: Option<&[bool]>, d:
         (x.is_finite() && y.is_finite() && !skip.is_some_and(|s| s[i]))
             .then_some(0.5 * (x as f64 + y as f64))
     };
-    let total = (0..n).filter(|&i| mean(i).is_some()).count();
-    let mut p = fit_plane(n, |i, _, _| mean(i), d);
+    let (mut p, total) = fit_plane(n, |i, _, _| mean(i), d);
     for _ in 0..2 {
         let q = p;
         let below = |i: usize, r: usize, c: usize| {
             mean(i).filter(|&z| z <= q[0] + q[1] * c as f64 + q[2] * r as f64)
         };
-        let count = cells(n, d.cols)
-            .filter(|&(i, r, c)| below(i, r, c).is_some())
-            .count();
+        // The refit counts its cells as it goes: too few below the plane, and the plane stays.
+        let (next, count) = fit_plane(n, below, d);
         if count < (total / 10).max(3) {
             break;
         }
-        p = fit_plane(n, below, d);
+        p = next;
     }
     p
 }
 
-/// The cells `0..n` of a grid `cols` wide, in order, as (index, row, column).
-fn cells(n: usize, cols: usize) -> impl Iterator<Item = (usize, usize, usize)> {
+/// Calls `f(index, row, column)` for the cells `0..n` of a grid `cols` wide, in order.
+#[inline]
+fn for_cells(n: usize, cols: usize, f: &mut impl FnMut(usize, usize, usize)) {
     let cols = cols.max(1);
-    (0..n.div_ceil(cols))
-        .flat_map(move |r| (0..cols).map(move |c| (r * cols + c, r, c)))
-        .take_while(move |&(i, _, _)| i < n)
+    for r in 0..n.div_ceil(cols) {
+        for c in 0..cols.min(n - r * cols) {
+            f(r * cols + c, r, c);
+        }
+    }
 }
 
-/// Least-squares plane through the cells `0..n` for which `z(index, row, column)` gives a value;
-/// level when they are collinear.
-fn fit_plane(n: usize, z: impl Fn(usize, usize, usize) -> Option<f64>, d: Dims) -> [f64; 3] {
-    let (mut count, mut sx, mut sy, mut sz) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
-    for (i, r, c) in cells(n, d.cols) {
+/// Least-squares plane through the cells `0..n` (row-major, `d.cols` wide) for which
+/// `z(index, row, column)` gives a value, and the number of those cells; level when they are
+/// collinear. Cells are visited in index order, by plain loops over rows and columns.
+fn fit_plane(
+    n: usize,
+    z: impl Fn(usize, usize, usize) -> Option<f64>,
+    d: Dims,
+) -> ([f64; 3], usize) {
+    let (mut count, mut sx, mut sy, mut sz) = (0usize, 0.0f64, 0.0f64, 0.0f64);
+    for_cells(n, d.cols, &mut |i, r, c| {
         if let Some(v) = z(i, r, c) {
-            count += 1.0;
+            count += 1;
             sx += c as f64;
             sy += r as f64;
             sz += v;
         }
+    });
+    if count == 0 {
+        return ([0.0; 3], 0);
     }
-    if count == 0.0 {
-        return [0.0; 3];
-    }
-    let (mx, my, mz) = (sx / count, sy / count, sz / count);
+    let k = count as f64;
+    let (mx, my, mz) = (sx / k, sy / k, sz / k);
     let (mut xx, mut xy, mut yy, mut xz, mut yz) = (0.0, 0.0, 0.0, 0.0, 0.0);
-    for (i, r, c) in cells(n, d.cols) {
-        let Some(v) = z(i, r, c) else { continue };
+    for_cells(n, d.cols, &mut |i, r, c| {
+        let Some(v) = z(i, r, c) else { return };
         let x = c as f64 - mx;
         let y = r as f64 - my;
         let zz = v - mz;
@@ -258,14 +265,14 @@ fn fit_plane(n: usize, z: impl Fn(usize, usize, usize) -> Option<f64>, d: Dims) 
         yy += y * y;
         xz += x * zz;
         yz += y * zz;
-    }
+    });
     let det = xx * yy - xy * xy;
     if det.abs() <= 1e-9 * (xx * yy).max(1.0) {
-        return [mz, 0.0, 0.0];
+        return ([mz, 0.0, 0.0], count);
     }
     let p1 = (xz * yy - yz * xy) / det;
     let p2 = (yz * xx - xz * xy) / det;
-    [mz - p1 * mx - p2 * my, p1, p2]
+    ([mz - p1 * mx - p2 * my, p1, p2], count)
 }
 
 #[cfg(test)]
