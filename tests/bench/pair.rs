@@ -5,8 +5,7 @@
 //! processes of the release binary, three times each, so a busy spell of the machine falls on
 //! both; the medians and their ratio are printed. Target: the 4096² pair ≤ 2× the 1024² pair.
 //!
-//! Also prints the largest peak resident memory of the runs (the 4096² pair's; `getrusage` of the
-//! finished children). Run with `cargo bench --bench pair` (about two minutes on two cores, half
+//! Also prints each pair's peak resident memory (`wait4`). Run with `cargo bench --bench pair` (about two minutes on two cores, half
 //! of it making the grids).
 
 use std::path::Path;
@@ -46,11 +45,13 @@ fn main() {
         jobs.push((cells, path));
     }
     let mut times: Vec<Vec<f64>> = vec![Vec::new(); jobs.len()];
+    let mut peaks = vec![0.0f64; jobs.len()];
     for _ in 0..RUNS {
         for (k, (cells, path)) in jobs.iter().enumerate() {
-            let s = run(path);
-            println!("  {cells}² pair: {s:.2} s");
+            let (s, mib) = run(path);
+            println!("  {cells}² pair: {s:.2} s, peak {mib:.0} MiB");
             times[k].push(s);
+            peaks[k] = peaks[k].max(mib);
         }
     }
     let median = |v: &mut Vec<f64>| {
@@ -62,27 +63,35 @@ fn main() {
         "median of {RUNS}: 1024² pair {small:.2} s, 4096² pair {large:.2} s, ratio {:.2} (target ≤ 2)",
         large / small
     );
-    // SAFETY: getrusage only writes the struct it is given.
-    let peak_mib = unsafe {
-        let mut u: libc::rusage = std::mem::zeroed();
-        (libc::getrusage(libc::RUSAGE_CHILDREN, &mut u) == 0).then(|| u.ru_maxrss as f64 / 1024.0)
-    };
-    if let Some(mib) = peak_mib {
-        println!("largest peak resident memory of the runs: {mib:.0} MiB");
-    }
+    println!(
+        "peak resident memory: 1024² pair {:.0} MiB, 4096² pair {:.0} MiB",
+        peaks[0], peaks[1]
+    );
 }
 
 /// Runs one job with the release binary (no `-v`, which resets the high-water mark per stage) and
-/// returns its wall time in seconds.
-fn run(job: &Path) -> f64 {
+/// returns its wall time in seconds and its peak resident memory in MiB (from `wait4`).
+fn run(job: &Path) -> (f64, f64) {
     let t0 = Instant::now();
-    let status = Command::new(env!("CARGO_BIN_EXE_dunereel"))
+    let child = Command::new(env!("CARGO_BIN_EXE_dunereel"))
         .args(["render", job.to_str().unwrap()])
         .current_dir(job.parent().unwrap())
         .stdout(Stdio::null())
-        .status()
+        .spawn()
         .unwrap();
+    let mut status = 0;
+    // SAFETY: wait4 on our own child, writing only the status and the struct it is given.
+    let usage = unsafe {
+        let mut u: libc::rusage = std::mem::zeroed();
+        let pid = libc::wait4(child.id() as libc::pid_t, &mut status, 0, &mut u);
+        assert_eq!(pid, child.id() as libc::pid_t, "wait4 failed");
+        u
+    };
     let s = t0.elapsed().as_secs_f64();
-    assert!(status.success(), "{} failed", job.display());
-    s
+    assert!(
+        libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0,
+        "{} failed",
+        job.display()
+    );
+    (s, usage.ru_maxrss as f64 / 1024.0)
 }
