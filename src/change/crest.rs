@@ -216,28 +216,43 @@ pub fn highest_cell(z: &ArrayRef2<f32>) -> Option<(f32, usize, usize)> {
 /// The cell where the mean over a (2k+1)² window (cells with data only; at least half of the
 /// window, or of its part inside the grid) is highest, the first in row order on ties. The search
 /// (`interp::piecewise::search`) scores only tiles whose bound, the highest value within reach of
-/// their windows, can beat the best mean so far; each window is summed cell by cell in row order.
+/// their windows, can beat the best mean so far; each window is summed along its rows, then down.
 fn smoothed_top_piecewise(src: &dyn Piecewise, k: usize) -> Option<(usize, usize)> {
     let need = ((2 * k + 1) * (2 * k + 1) / 2) as u32;
     piecewise::search(src, k, |tile, values| {
         let (rows, cols) = tile.grid;
+        let gr = tile.grown_rows.clone();
+        // Sums and counts along each row of the grown window first (the 2k + 1 cells centred on
+        // every column of the tile), then down the columns: 2(2k + 1) additions a cell instead
+        // of (2k + 1)², which matters where many tiles must be scored (a flat survey).
+        let width = tile.cols.len();
+        let mut across = vec![(0.0f64, 0u32); gr.len() * width];
+        for (i, r) in gr.clone().enumerate() {
+            for (j, c) in tile.cols.clone().enumerate() {
+                let (mut s, mut n) = (0.0f64, 0u32);
+                for cc in c.saturating_sub(k)..(c + k + 1).min(cols) {
+                    let v = tile.at(values, r, cc);
+                    if v.is_finite() {
+                        s += f64::from(v);
+                        n += 1;
+                    }
+                }
+                across[i * width + j] = (s, n);
+            }
+        }
         let mut best: Option<(f64, usize, usize)> = None;
         for r in tile.rows.clone() {
             let (ra, rb) = (r.saturating_sub(k), (r + k + 1).min(rows));
-            for c in tile.cols.clone() {
+            for (j, c) in tile.cols.clone().enumerate() {
                 if !tile.at(values, r, c).is_finite() {
                     continue;
                 }
                 let (ca, cb) = (c.saturating_sub(k), (c + k + 1).min(cols));
                 let (mut s, mut n) = (0.0f64, 0u32);
                 for rr in ra..rb {
-                    for cc in ca..cb {
-                        let v = tile.at(values, rr, cc);
-                        if v.is_finite() {
-                            s += f64::from(v);
-                            n += 1;
-                        }
-                    }
+                    let (rs, rn) = across[(rr - gr.start) * width + j];
+                    s += rs;
+                    n += rn;
                 }
                 if n < need.min(((rb - ra) * (cb - ca)) as u32) || n == 0 {
                     continue;
