@@ -73,6 +73,8 @@ fn main() {
 /// returns its wall time in seconds and its peak resident memory in MiB (from `wait4`).
 fn run(job: &Path) -> (f64, f64) {
     let t0 = Instant::now();
+    // Reaped by the wait4 below, which also gives its peak memory.
+    #[allow(clippy::zombie_processes)]
     let child = Command::new(env!("CARGO_BIN_EXE_dunereel"))
         .args(["render", job.to_str().unwrap()])
         .current_dir(job.parent().unwrap())
