@@ -69,23 +69,33 @@ pub fn reduce_into(z: &[f32], rows: usize, cols: usize, level: u32, scale: f32, 
                 let c0 = ocol * b;
                 let c1 = (c0 + b).min(cols);
                 let cfirst = if c0 + off < c1 { c0 + off } else { c0 };
-                let mut sum = 0.0f32;
-                let mut n = 0u32;
-                for r in (first..r1).step_by(step) {
-                    let row = &z[r * cols..r * cols + c1];
-                    for &h in row[cfirst..].iter().step_by(step) {
-                        let ok = h.is_finite();
-                        sum += if ok { h } else { 0.0 };
-                        n += u32::from(ok);
-                    }
-                }
-                *v = if n == 0 {
-                    f32::NAN
-                } else {
-                    sum / n as f32 * scale
-                };
+                *v = block_mean(
+                    (first..r1)
+                        .step_by(step)
+                        .flat_map(|r| z[r * cols + cfirst..r * cols + c1].iter().step_by(step)),
+                    scale,
+                );
             }
         });
+}
+
+/// The mean of a block's finite values in the order given, times `scale`; NaN when none is
+/// finite. Both reductions call it, so they agree bit for bit when given the same values in the
+/// same order.
+#[inline(always)]
+fn block_mean<'a>(values: impl Iterator<Item = &'a f32>, scale: f32) -> f32 {
+    let mut sum = 0.0f32;
+    let mut n = 0u32;
+    for &h in values {
+        let ok = h.is_finite();
+        sum += if ok { h } else { 0.0 };
+        n += u32::from(ok);
+    }
+    if n == 0 {
+        f32::NAN
+    } else {
+        sum / n as f32 * scale
+    }
 }
 
 /// The full-resolution cells a level reads, and which of them each reduced cell averages.
@@ -189,20 +199,10 @@ pub fn reduce_samples_into(plan: &SamplePlan, samples: &[f32], scale: f32, out: 
         .zip(plan.row_spans.par_iter())
         .for_each(|(o, &(ra, rb))| {
             for (v, &(ca, cb)) in o.iter_mut().zip(&plan.col_spans) {
-                let mut sum = 0.0f32;
-                let mut n = 0u32;
-                for i in ra..rb {
-                    for &h in &samples[i * nc + ca..i * nc + cb] {
-                        let ok = h.is_finite();
-                        sum += if ok { h } else { 0.0 };
-                        n += u32::from(ok);
-                    }
-                }
-                *v = if n == 0 {
-                    f32::NAN
-                } else {
-                    sum / n as f32 * scale
-                };
+                *v = block_mean(
+                    (ra..rb).flat_map(|i| &samples[i * nc + ca..i * nc + cb]),
+                    scale,
+                );
             }
         });
 }
