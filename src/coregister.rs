@@ -244,7 +244,8 @@ pub fn shifted(z: &ArrayRef2<f32>, g: &GridGeometry, east: f64, north: f64) -> A
     // once, by the arithmetic of `grid::sample_bilinear` (which this equals bit for bit): the
     // two neighbours and the weight of the second; None beyond half a cell outside the data.
     let place = |x: f64, n: usize| -> Option<(usize, usize, f32)> {
-        if !(x >= -0.5) || x > n as f64 - 0.5 {
+        // (NaN fails the first test, as in `sample_bilinear`.)
+        if x.is_nan() || x < -0.5 || x > n as f64 - 0.5 {
             return None;
         }
         let p = x.clamp(0.0, (n - 1) as f64);
