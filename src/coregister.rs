@@ -268,13 +268,13 @@ pub fn shifted(z: &ArrayRef2<f32>, g: &GridGeometry, east: f64, north: f64) -> A
                     &zs[r0 * cols..(r0 + 1) * cols],
                     &zs[r1 * cols..(r1 + 1) * cols],
                 );
-                let pick = |v: f32, w: f32| if w == 0.0 { 0.0 } else { v * w };
                 for (v, at_col) in row.iter_mut().zip(&at_cols) {
                     if let Some((c0, c1, fc)) = *at_col {
-                        *v = pick(top[c0], (1.0 - fr) * (1.0 - fc))
-                            + pick(top[c1], (1.0 - fr) * fc)
-                            + pick(bottom[c0], fr * (1.0 - fc))
-                            + pick(bottom[c1], fr * fc);
+                        *v = crate::grid::bilinear(
+                            [top[c0], top[c1], bottom[c0], bottom[c1]],
+                            fr,
+                            fc,
+                        );
                     }
                 }
             });

@@ -231,17 +231,20 @@ pub fn sample_bilinear(z: &ArrayRef2<f32>, row: f64, col: f64) -> f32 {
     let c1 = (c0 + 1).min(cols - 1);
     let fr = (r - r0 as f64) as f32;
     let fc = (c - c0 as f64) as f32;
-    let pick = |rr: usize, cc: usize, w: f32| -> f32 {
-        if w == 0.0 {
-            0.0
-        } else {
-            z[[rr, cc]] * w
-        }
-    };
-    pick(r0, c0, (1.0 - fr) * (1.0 - fc))
-        + pick(r0, c1, (1.0 - fr) * fc)
-        + pick(r1, c0, fr * (1.0 - fc))
-        + pick(r1, c1, fr * fc)
+    bilinear([z[[r0, c0]], z[[r0, c1]], z[[r1, c0]], z[[r1, c1]]], fr, fc)
+}
+
+/// The bilinear blend of four neighbours `[top left, top right, bottom left, bottom right]` at
+/// fractions `fr` (down) and `fc` (across). A weight of 0 takes nothing, not even a NaN. Callers
+/// that place many samples alike (`coregister::shifted`) use it to give the values of
+/// [`sample_bilinear`] bit for bit.
+#[inline(always)]
+pub(crate) fn bilinear(z: [f32; 4], fr: f32, fc: f32) -> f32 {
+    let pick = |v: f32, w: f32| if w == 0.0 { 0.0 } else { v * w };
+    pick(z[0], (1.0 - fr) * (1.0 - fc))
+        + pick(z[1], (1.0 - fr) * fc)
+        + pick(z[2], fr * (1.0 - fc))
+        + pick(z[3], fr * fc)
 }
 
 #[cfg(test)]

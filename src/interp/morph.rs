@@ -72,18 +72,27 @@ fn warp_blend(
     (1.0 - w) * za + w * zb
 }
 
-/// Cells per metre of `field`, or 0 (no warping, with a warning) when its cell size is unusable.
-fn cells_per_metre(field: &FlowField) -> f32 {
+/// Cells per metre of `field`, as the morph turns its vectors into cells; 0 (no warping) when its
+/// cell size is unusable. The field's reach (`piecewise::FieldReach`) converts with it too.
+pub(crate) fn cells_per_metre(field: &FlowField) -> f32 {
     if field.cell_size_m.is_finite() && field.cell_size_m > 0.0 {
         (1.0 / field.cell_size_m) as f32
     } else {
+        0.0
+    }
+}
+
+/// [`cells_per_metre`], warning when the field cannot be placed.
+fn cells_per_metre_warned(field: &FlowField) -> f32 {
+    let k = cells_per_metre(field);
+    if k == 0.0 {
         // A field without a usable cell size cannot be placed: blend without moving anything.
         log::warn!(
             "morph: displacement field has cell size {} m; blending without warping",
             field.cell_size_m
         );
-        0.0
     }
+    k
 }
 
 /// Rows per parallel task: 16 rows of a 1024-wide grid is 64 KiB of output, a few dozen tasks per frame.
@@ -135,7 +144,7 @@ pub fn morph_into(
         east.as_slice().expect("standard layout"),
         north.as_slice().expect("standard layout"),
     );
-    let inv_cell = cells_per_metre(field);
+    let inv_cell = cells_per_metre_warned(field);
     let d = RasterDims { rows, cols };
     let columns = field.column_weights();
     let write = |dst: &mut [f32]| {
@@ -233,7 +242,7 @@ impl FieldAt {
         FieldAt {
             east,
             north,
-            inv_cell: cells_per_metre(field),
+            inv_cell: cells_per_metre_warned(field),
         }
     }
 }

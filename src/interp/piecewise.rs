@@ -153,7 +153,7 @@ impl FieldReach {
             return FieldReach::from_blocks(field);
         }
         let dim = field.grid_dim;
-        let inv_cell = cells_per_metre(field);
+        let inv_cell = morph::cells_per_metre(field);
         let (brows, bcols) = (dim.0.div_ceil(MAX_BLOCK), dim.1.div_ceil(MAX_BLOCK));
         let empty = [
             f32::INFINITY,
@@ -191,7 +191,7 @@ impl FieldReach {
     /// [`FieldReach::new`] of a field kept at blocks of `step` cells.
     fn from_blocks(field: &FlowField) -> FieldReach {
         let dim = field.grid_dim;
-        let inv_cell = cells_per_metre(field);
+        let inv_cell = morph::cells_per_metre(field);
         let (brows, bcols) = (dim.0.div_ceil(MAX_BLOCK), dim.1.div_ceil(MAX_BLOCK));
         let (frows, fcols) = field.east_m.dim();
         let k = field.step as f64;
@@ -269,16 +269,6 @@ impl FieldReach {
             }
         }
         out
-    }
-}
-
-/// Cells per metre of `field`, as the morph turns its vectors into cells (0 when its cell size is
-/// unusable: the morph then blends without moving anything, and so does the reach).
-fn cells_per_metre(field: &FlowField) -> f32 {
-    if field.cell_size_m.is_finite() && field.cell_size_m > 0.0 {
-        (1.0 / field.cell_size_m) as f32
-    } else {
-        0.0
     }
 }
 

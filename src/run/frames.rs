@@ -143,9 +143,15 @@ impl<'a> Painter<'a> {
             self.interval = Some(t.from);
             self.bounds = None;
         }
-        let plan = renderer.sample_plan();
-        if self.plan.as_deref() != Some(&plan) {
-            let plan = Arc::new(plan);
+        // The plan depends only on the grid and the renderer's level (a `still` contact sheet
+        // may use renderers of other levels), so it is made again only when the level changes.
+        let grid = (stack.geometry().rows, stack.geometry().cols);
+        if self
+            .plan
+            .as_ref()
+            .is_none_or(|p| p.level != renderer.level_of_detail() || p.grid != grid)
+        {
+            let plan = Arc::new(renderer.sample_plan());
             self.surface = Surface::for_samples(stack.geometry(), plan.clone());
             self.shell = Surface::for_samples(stack.geometry(), plan.clone());
             self.shell_holds = None;
