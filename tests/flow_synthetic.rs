@@ -469,3 +469,73 @@ fn verdict_serialises_with_its_reason() {
     );
     assert!(v.to_string().contains("search_radius_m"));
 }
+
+#[test]
+fn dominant_alone_equals_the_full_estimate_bit_for_bit() {
+    // Check: common practice, no source — `estimate_dominant` runs the same whole-relief match
+    // (steps 1 and 2 of the method) as `estimate`, so east, north, distance, azimuth and NCC agree
+    // bit for bit, support is 0 (it needs the dense field), and an untrusted pair gets the same
+    // verdict. Cases: a translation, a static pair, a move beyond the search radius, a flat pair,
+    // and the block-mean path of the `_within` variants.
+    use dunereel::interp::flow::{
+        estimate_dominant, estimate_dominant_within, estimate_within, Dominant,
+    };
+    let same =
+        |full: &FlowResult, alone: &Result<Dominant, (Verdict, Option<Dominant>)>| match alone {
+            Ok(d) => {
+                let f = full.dominant.as_ref().unwrap();
+                assert!(full.verdict.is_trusted());
+                assert_eq!(
+                    (f.east_m, f.north_m, f.distance_m, f.azimuth_deg, f.ncc),
+                    (d.east_m, d.north_m, d.distance_m, d.azimuth_deg, d.ncc)
+                );
+                assert_eq!(d.support, 0.0);
+            }
+            Err((verdict, dom)) => {
+                assert_eq!(&full.verdict, verdict);
+                assert_eq!(
+                    full.dominant.map(|d| (d.east_m, d.north_m)),
+                    dom.map(|d| (d.east_m, d.north_m))
+                );
+            }
+        };
+    let narrow = FlowOptions {
+        search_radius_m: 15.0,
+        ..Default::default()
+    };
+    let flat = |seed| {
+        Array2::from_shape_fn((80, 80), move |(r, c)| {
+            3.0 + 0.01 * r as f32 + 0.02 * hash_noise(r, c, seed)
+        })
+    };
+    let cases = [
+        (
+            survey(150, 190, 70.0, 70.0, 0.02, 1),
+            survey(150, 190, 76.0, 87.0, 0.02, 2),
+            FlowOptions::default(),
+        ),
+        (
+            survey(100, 100, 50.0, 50.0, 0.02, 5),
+            survey(100, 100, 50.0, 50.0, 0.02, 6),
+            FlowOptions::default(),
+        ),
+        (
+            survey(120, 200, 60.0, 60.0, 0.01, 9),
+            survey(120, 200, 60.0, 100.0, 0.01, 10),
+            narrow,
+        ),
+        (flat(7), flat(8), FlowOptions::default()),
+    ];
+    let mut trusted = 0;
+    for (a, b, opts) in &cases {
+        let full = estimate(a, b, 1.0, opts);
+        trusted += usize::from(full.verdict.is_trusted());
+        same(&full, &estimate_dominant(a, b, 1.0, opts));
+        // Grids above 64 cells a side are matched on 3×3 or 4×4 block means.
+        same(
+            &estimate_within(a, b, 1.0, opts, 64),
+            &estimate_dominant_within(a, b, 1.0, opts, 64),
+        );
+    }
+    assert_eq!(trusted, 2, "two trusted cases and two refused");
+}

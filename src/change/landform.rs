@@ -339,11 +339,9 @@ fn region_migration(
             }
         })
     };
-    let result = flow::estimate_within(&crop(a), &crop(b), cell_m, flow_opts, max_side);
-    match (result.verdict.is_trusted(), result.dominant) {
-        (true, Some(d)) => Ok(d),
-        _ => Err(format!("no reliable displacement ({})", result.verdict)),
-    }
+    // The dominant displacement alone: the dense field is not needed for one vector a region.
+    flow::estimate_dominant_within(&crop(a), &crop(b), cell_m, flow_opts, max_side)
+        .map_err(|(verdict, _)| format!("no reliable displacement ({verdict})"))
 }
 
 /// Finds the moving landforms of one pair and measures their migration. Returns the landform rows

@@ -75,7 +75,7 @@ use ndarray::{Array2, ArrayRef2};
 use dense::{FillRule, QualityRule, Scratch};
 use raster::Dims;
 
-pub use reduce::estimate_within;
+pub use reduce::{estimate_dominant_within, estimate_within};
 pub use result::{Dominant, FlowField, FlowResult, Verdict};
 
 pub(crate) use raster::{base_plane_outside, sample_clamped, Dims as RasterDims};
@@ -266,14 +266,81 @@ pub fn estimate(
         dominant,
         verdict,
     };
+    let m = match match_whole(a, b, &s) {
+        Ok(m) => m,
+        Err((verdict, dom)) => return untrusted(verdict, dom),
+    };
+    let (g_row, g_col) = m.shift;
+    let (u, v, q) = dense_field(&m.levels, &s, m.shift);
+    let support = landform_support(&m.levels[0].a, &q, &s);
+    let dominant =
+        Dominant::from_components(g_col * s.cell_m, -g_row * s.cell_m, m.peak.ncc, support);
+    if let Some(verdict) = beyond_radius(&dominant, &s) {
+        return untrusted(verdict, Some(dominant));
+    }
+    let to_array =
+        |f: Vec<f32>| Array2::from_shape_vec((rows, cols), f).expect("field has the grid's shape");
+    let k = s.cell_m as f32;
+    FlowResult {
+        field: FlowField::full(
+            to_array(u.iter().map(|x| x * k).collect()),
+            to_array(v.iter().map(|y| -y * k).collect()),
+            to_array(q),
+            s.cell_m,
+        ),
+        dominant: Some(dominant),
+        verdict: Verdict::Trusted,
+    }
+}
+
+/// The dominant displacement alone, as [`estimate`] finds it (method steps 1 and 2), without the
+/// dense field: the same east, north, distance, azimuth and NCC bit for bit, and the same verdict
+/// whenever the verdict does not depend on the dense field (it never does). `support` is 0, as
+/// it needs the dense field. For callers that want one vector per landform, at a fraction of the
+/// cost.
+///
+/// # Errors
+/// The verdict that stops the estimate, with the displacement found so far when there is one.
+pub fn estimate_dominant(
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
+    cell_size_m: f64,
+    opts: &FlowOptions,
+) -> Result<Dominant, (Verdict, Option<Dominant>)> {
+    let s = Settings::new(opts, cell_size_m);
+    let m = match_whole(a, b, &s)?;
+    let (g_row, g_col) = m.shift;
+    let dominant = Dominant::from_components(g_col * s.cell_m, -g_row * s.cell_m, m.peak.ncc, 0.0);
+    match beyond_radius(&dominant, &s) {
+        Some(verdict) => Err((verdict, Some(dominant))),
+        None => Ok(dominant),
+    }
+}
+
+/// The whole-relief match both [`estimate`] and [`estimate_dominant`] start from: the reliefs'
+/// pyramid, the whole-cell correlation peak and the refined (rows, cols) shift in level-0 cells.
+struct WholeMatch {
+    levels: Vec<Level>,
+    peak: global::Peak,
+    shift: (f64, f64),
+}
+
+/// Method steps 1 and 2: overlap and texture checks, base plane and reliefs, pyramid, dominant
+/// shift, refined by one Gauss–Newton translation of the whole relief.
+fn match_whole(
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
+    s: &Settings,
+) -> Result<WholeMatch, (Verdict, Option<Dominant>)> {
+    let (rows, cols) = a.dim();
     if a.dim() != b.dim() {
-        return untrusted(
+        return Err((
             Verdict::ShapeMismatch {
                 earlier: a.dim(),
                 later: b.dim(),
             },
             None,
-        );
+        ));
     }
     let d = Dims { rows, cols };
     let fa: Vec<f32> = a.iter().copied().collect();
@@ -294,13 +361,13 @@ pub fn estimate(
         both as f64 / either as f64
     };
     if either == 0 || share < s.min_overlap || both < 16 {
-        return untrusted(
+        return Err((
             Verdict::LittleOverlap {
                 share,
                 required: s.min_overlap,
             },
             None,
-        );
+        ));
     }
 
     let p = raster::base_plane(&fa, &fb, d);
@@ -316,47 +383,32 @@ pub fn estimate(
     drop((fa, fb));
     let relief_std_m = relief_std(&ra, &rb).min(relief_std(&rb, &ra));
     if relief_std_m.is_nan() || relief_std_m < s.min_relief_m || relief_std_m == 0.0 {
-        return untrusted(
+        return Err((
             Verdict::NoTexture {
                 relief_std_m,
                 required_m: s.min_relief_m,
             },
             None,
-        );
+        ));
     }
 
     let levels = pyramid(ra, rb, d, s.radius_m / s.cell_m);
-    let (peak, coarse) = match dominant_shift(&levels, &s) {
-        Ok(found) => found,
-        Err((verdict, dom)) => return untrusted(verdict, dom),
-    };
+    let (peak, coarse) = dominant_shift(&levels, s)?;
     let l0 = &levels[0];
-    let (g_row, g_col) =
-        global::refine_translation(&l0.a, &l0.b, l0.d, coarse, 12).unwrap_or(coarse);
-    let (u, v, q) = dense_field(&levels, &s, (g_row, g_col));
-    let support = landform_support(&levels[0].a, &q, &s);
-    let dominant =
-        Dominant::from_components(g_col * s.cell_m, -g_row * s.cell_m, peak.ncc, support);
-    if dominant.distance_m > s.radius_m {
-        let verdict = Verdict::AtSearchLimit {
-            distance_m: dominant.distance_m,
-            radius_m: s.radius_m,
-        };
-        return untrusted(verdict, Some(dominant));
-    }
-    let to_array =
-        |f: Vec<f32>| Array2::from_shape_vec((rows, cols), f).expect("field has the grid's shape");
-    let k = s.cell_m as f32;
-    FlowResult {
-        field: FlowField::full(
-            to_array(u.iter().map(|x| x * k).collect()),
-            to_array(v.iter().map(|y| -y * k).collect()),
-            to_array(q),
-            s.cell_m,
-        ),
-        dominant: Some(dominant),
-        verdict: Verdict::Trusted,
-    }
+    let shift = global::refine_translation(&l0.a, &l0.b, l0.d, coarse, 12).unwrap_or(coarse);
+    Ok(WholeMatch {
+        levels,
+        peak,
+        shift,
+    })
+}
+
+/// [`Verdict::AtSearchLimit`] when the refined dominant displacement lies beyond the search radius.
+fn beyond_radius(dominant: &Dominant, s: &Settings) -> Option<Verdict> {
+    (dominant.distance_m > s.radius_m).then_some(Verdict::AtSearchLimit {
+        distance_m: dominant.distance_m,
+        radius_m: s.radius_m,
+    })
 }
 
 /// Halves the reliefs until the search radius is about [`COARSE_RADIUS_CELLS`] on the top level

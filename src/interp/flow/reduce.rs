@@ -8,7 +8,7 @@
 
 use ndarray::{Array2, ArrayRef2};
 
-use super::{estimate, FlowField, FlowOptions, FlowResult};
+use super::{estimate, estimate_dominant, Dominant, FlowField, FlowOptions, FlowResult, Verdict};
 
 /// Like [`estimate`], but on grids larger than `max_side` cells a side works on block means of
 /// `k × k` cells (the smallest whole `k` that brings both sides within `max_side`), then
@@ -43,6 +43,32 @@ pub fn estimate_within(
         dominant: coarse.dominant,
         verdict: coarse.verdict,
     }
+}
+
+/// Like [`estimate_dominant`], on block means of `k × k` cells when the grids are larger than
+/// `max_side` cells a side (the same `k` as [`estimate_within`], so the vector is the same as the
+/// dominant displacement [`estimate_within`] reports, bit for bit).
+///
+/// # Errors
+/// The verdict that stops the estimate, with the displacement found so far when there is one.
+pub fn estimate_dominant_within(
+    a: &ArrayRef2<f32>,
+    b: &ArrayRef2<f32>,
+    cell_size_m: f64,
+    opts: &FlowOptions,
+    max_side: usize,
+) -> Result<Dominant, (Verdict, Option<Dominant>)> {
+    let (rows, cols) = a.dim();
+    let k = rows.max(cols).div_ceil(max_side.max(16));
+    if k <= 1 {
+        return estimate_dominant(a, b, cell_size_m, opts);
+    }
+    estimate_dominant(
+        &block_mean(a, k),
+        &block_mean(b, k),
+        cell_size_m * k as f64,
+        opts,
+    )
 }
 
 /// Means of `k × k` blocks over the cells with data; a block with no data is NaN. The last row and
