@@ -227,14 +227,6 @@ fn draw_band(
     let band_rows = BAND_OUT_ROWS * ss;
     let y0 = bi * band_rows;
     let rows = depth.len() / iw;
-    // Sky gradient.
-    for y in 0..rows {
-        let t = ((y0 + y) as f32 + 0.5) / ih as f32;
-        let c = [0, 1, 2].map(|k| sky.0[k] + (sky.1[k] - sky.0[k]) * t);
-        for px in rgb[y * iw * 3..(y + 1) * iw * 3].chunks_exact_mut(3) {
-            px.copy_from_slice(&c);
-        }
-    }
     depth.iter_mut().for_each(|d| *d = 0.0);
     let mut band = Band {
         y0,
@@ -249,6 +241,21 @@ fn draw_band(
         for s in sides.iter().filter(|s| s.ymax >= fy0 && s.ymin <= fy1) {
             draw_triangle(&mut band, &s.v[0], &s.v[1], &s.v[2], true);
             draw_triangle(&mut band, &s.v[0], &s.v[2], &s.v[3], true);
+        }
+    }
+    // Sky gradient where nothing was drawn: a drawn sample's colour was written with its depth, so
+    // the sky is needed (and written) only where the depth is still 0.
+    for y in 0..rows {
+        let t = ((y0 + y) as f32 + 0.5) / ih as f32;
+        let c = [0, 1, 2].map(|k| sky.0[k] + (sky.1[k] - sky.0[k]) * t);
+        let (crow, drow) = (
+            &mut band.rgb[y * iw * 3..(y + 1) * iw * 3],
+            &band.depth[y * iw..(y + 1) * iw],
+        );
+        for (px, &d) in crow.chunks_exact_mut(3).zip(drow) {
+            if d == 0.0 {
+                px.copy_from_slice(&c);
+            }
         }
     }
     if let Some((lrgb, ldepth)) = layer {
@@ -337,6 +344,25 @@ fn draw_band(
     // Resolve: box filter of ss × ss samples, then sRGB.
     let out_rows = out.len() / (out_w * 4);
     let norm = 1.0 / (ss * ss) as f32;
+    if ss == 2 {
+        // The usual case, without the general loop's indexing; the same sums in the same order
+        // (s00 + s01 + s10 + s11; a leading 0 changes only the sign of a zero sum), so the same bytes.
+        for (oy, orow) in out.chunks_exact_mut(out_w * 4).enumerate() {
+            let top = &band.rgb[2 * oy * iw * 3..(2 * oy + 1) * iw * 3];
+            let bottom = &band.rgb[(2 * oy + 1) * iw * 3..(2 * oy + 2) * iw * 3];
+            for ((o, t), b) in orow
+                .chunks_exact_mut(4)
+                .zip(top.chunks_exact(6))
+                .zip(bottom.chunks_exact(6))
+            {
+                for k in 0..3 {
+                    o[k] = enc.byte((t[k] + t[k + 3] + b[k] + b[k + 3]) * norm);
+                }
+                o[3] = 255;
+            }
+        }
+        return;
+    }
     for oy in 0..out_rows {
         for ox in 0..out_w {
             let mut acc = [0.0f32; 3];
