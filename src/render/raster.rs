@@ -263,19 +263,24 @@ mod tests {
         assert!((band.rgb[(w + 1) * 3] - 0.2).abs() < 1e-6);
     }
 
+    /// A band covering a whole `w` × `h` frame.
+    fn whole_band<'a>(w: usize, h: usize, rgb: &'a mut [f32], depth: &'a mut [f32]) -> Band<'a> {
+        Band {
+            y0: 0,
+            rows: h,
+            width: w,
+            rgb,
+            depth,
+        }
+    }
+
     /// Coverage by the full bounding-box scan: every pixel of the clipped bounding box whose three
     /// edge functions, stepped from its first column as `draw_triangle` steps them, are ≥ 0, with
     /// no early stop (the reference for the row scan's stop).
     fn covered_by_full_scan(w: usize, h: usize, a: &Vert, b: &Vert, c: &Vert) -> Vec<bool> {
         let mut out = vec![false; w * h];
         let (mut rgb, mut depth) = (vec![0.0; w * h * 3], vec![0.0; w * h]);
-        let band = Band {
-            y0: 0,
-            rows: h,
-            width: w,
-            rgb: &mut rgb,
-            depth: &mut depth,
-        };
+        let band = whole_band(w, h, &mut rgb, &mut depth);
         let Some((x0, x1, y0, y1)) = bounds(&band, a, b, c) else {
             return out;
         };
@@ -323,24 +328,12 @@ mod tests {
             let (a, b, c) = if area > 0.0 { (a, b, c) } else { (a, c, b) };
             let reference = covered_by_full_scan(w, h, &a, &b, &c);
             let (mut rgb, mut depth) = (vec![0.0; w * h * 3], vec![0.0; w * h]);
-            let mut band = Band {
-                y0: 0,
-                rows: h,
-                width: w,
-                rgb: &mut rgb,
-                depth: &mut depth,
-            };
+            let mut band = whole_band(w, h, &mut rgb, &mut depth);
             draw_triangle(&mut band, &a, &b, &c, false);
             let drawn: Vec<bool> = band.depth.iter().map(|&d| d > 0.0).collect();
             assert_eq!(drawn, reference, "{a:?} {b:?} {c:?}");
             let (mut lrgb, mut ldepth) = (vec![0.0; w * h * 4], vec![0.0; w * h]);
-            let mut layer = Band {
-                y0: 0,
-                rows: h,
-                width: w,
-                rgb: &mut lrgb,
-                depth: &mut ldepth,
-            };
+            let mut layer = whole_band(w, h, &mut lrgb, &mut ldepth);
             draw_triangle_layer(&mut layer, &vec![0.0; w * h], &a, &b, &c);
             let layered: Vec<bool> = layer.depth.iter().map(|&d| d > 0.0).collect();
             // The layer evaluates its edge functions per pixel rather than stepping them, so

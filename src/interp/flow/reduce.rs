@@ -21,7 +21,7 @@ pub fn estimate_within(
     max_side: usize,
 ) -> FlowResult {
     let (rows, cols) = a.dim();
-    let k = rows.max(cols).div_ceil(max_side.max(16));
+    let k = block_side(a.dim(), max_side);
     if k <= 1 {
         return estimate(a, b, cell_size_m, opts);
     }
@@ -58,8 +58,7 @@ pub fn estimate_dominant_within(
     opts: &FlowOptions,
     max_side: usize,
 ) -> Result<Dominant, (Verdict, Option<Dominant>)> {
-    let (rows, cols) = a.dim();
-    let k = rows.max(cols).div_ceil(max_side.max(16));
+    let k = block_side(a.dim(), max_side);
     if k <= 1 {
         return estimate_dominant(a, b, cell_size_m, opts);
     }
@@ -69,6 +68,12 @@ pub fn estimate_dominant_within(
         cell_size_m * k as f64,
         opts,
     )
+}
+
+/// The block side `k` the `_within` estimates work on: the smallest whole `k` that brings both
+/// sides of a `(rows, cols)` grid within `max_side` cells (at least 16); 1 means the grid itself.
+fn block_side((rows, cols): (usize, usize), max_side: usize) -> usize {
+    rows.max(cols).div_ceil(max_side.max(16))
 }
 
 /// Means of `k × k` blocks over the cells with data; a block with no data is NaN. The last row and
