@@ -82,14 +82,15 @@ fn bounds(band: &Band, a: &Vert, b: &Vert, c: &Vert) -> Option<(usize, usize, us
     Some((x0, x1, y0, y1))
 }
 
-/// Why a row's scan may stop at the first uncovered pixel after a covered one: along a row each
-/// edge function is monotone in x, also as computed (adding one constant step, or evaluating one
+/// Draws a triangle with depth test; `area > 0` (clockwise on a y-down screen) is front-facing.
+/// Back-facing, degenerate and NaN triangles are skipped unless `two_sided`.
+///
+/// A row's scan stops at the first uncovered pixel after a covered one: along a row each edge
+/// function is monotone in x, also as computed (adding one constant step, or evaluating one
 /// product per pixel, are both monotone under round-to-nearest), so the pixels where one edge
 /// function is ≥ 0 form a prefix or a suffix of the row, and where all three are, one run.
 /// Stopping there skips only pixels the test would reject: the image is the same bit for bit.
-///
-/// Draws a triangle with depth test; `area > 0` (clockwise on a y-down screen) is front-facing.
-/// Back-facing, degenerate and NaN triangles are skipped unless `two_sided`.
+/// [`draw_triangle_layer`] stops the same way.
 #[inline]
 #[allow(clippy::neg_cmp_op_on_partial_ord, clippy::needless_range_loop)] // `!(a > 0)` also rejects NaN
 pub fn draw_triangle(band: &mut Band, a: &Vert, b: &Vert, c: &Vert, two_sided: bool) {
