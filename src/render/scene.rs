@@ -303,45 +303,66 @@ const SMOOTH_RADIUS: usize = 2;
 
 /// Smooths a row-major `lr` × `lc` field in place: two passes of a (2R+1)² box mean that skips
 /// nodata (NaN stays NaN). Rows in parallel, each written from inputs fixed before the pass.
+///
+/// Each cell's finite neighbours are summed in ascending order along the pass (as a plain loop over
+/// the window would), but tap by tap across the whole row, so the inner loops run over contiguous
+/// cells: an out-of-grid tap is skipped, which leaves the sum as adding 0 would.
 fn smooth_in_place(z: &mut [f32], lr: usize, lc: usize, tmp: &mut Vec<f32>) {
     assert_eq!(z.len(), lr * lc);
     tmp.resize(lr * lc, 0.0);
     let r = SMOOTH_RADIUS;
+    let sums = || (vec![0.0f32; lc], vec![0.0f32; lc]);
     for _ in 0..2 {
         // Along rows: z -> tmp.
         tmp.par_chunks_mut(lc)
             .zip(z.par_chunks(lc))
-            .for_each(|(out, row)| {
-                for (c, o) in out.iter_mut().enumerate() {
-                    let (a, b) = (c.saturating_sub(r), (c + r + 1).min(lc));
-                    *o = mean_finite(row[a..b].iter().copied(), row[c]);
+            .for_each_init(sums, |(s, n), (out, row)| {
+                s.fill(0.0);
+                n.fill(0.0);
+                for k in 0..=2 * r {
+                    // Tap k reads column c + k - r, for the cells c where that is in the row.
+                    let lo = r.saturating_sub(k);
+                    let hi = (lc + r).saturating_sub(k).min(lc);
+                    if lo >= hi {
+                        continue;
+                    }
+                    let src = &row[lo + k - r..hi + k - r];
+                    add_finite(&mut s[lo..hi], &mut n[lo..hi], src);
                 }
+                finish_mean(out, row, s, n);
             });
         // Along columns: tmp -> z.
         let src: &[f32] = tmp;
-        z.par_chunks_mut(lc).enumerate().for_each(|(row, out)| {
-            let (a, b) = (row.saturating_sub(r), (row + r + 1).min(lr));
-            for (c, o) in out.iter_mut().enumerate() {
-                let centre = src[row * lc + c];
-                *o = mean_finite((a..b).map(|rr| src[rr * lc + c]), centre);
-            }
-        });
+        z.par_chunks_mut(lc)
+            .enumerate()
+            .for_each_init(sums, |(s, n), (row, out)| {
+                let (a, b) = (row.saturating_sub(r), (row + r + 1).min(lr));
+                s.fill(0.0);
+                n.fill(0.0);
+                for rr in a..b {
+                    add_finite(s, n, &src[rr * lc..(rr + 1) * lc]);
+                }
+                finish_mean(out, &src[row * lc..(row + 1) * lc], s, n);
+            });
     }
 }
 
-/// Mean of the finite values, or NaN when `centre` is not finite (nodata stays nodata).
+/// Adds each finite `v` to its sum `s` and counts it in `n` (a non-finite value adds 0).
 #[inline]
-fn mean_finite(values: impl Iterator<Item = f32>, centre: f32) -> f32 {
-    if !centre.is_finite() {
-        return f32::NAN;
-    }
-    let (mut s, mut n) = (0.0f32, 0.0f32);
-    for v in values {
+fn add_finite(s: &mut [f32], n: &mut [f32], v: &[f32]) {
+    for ((s, n), &v) in s.iter_mut().zip(n.iter_mut()).zip(v) {
         let ok = v.is_finite();
-        s += if ok { v } else { 0.0 };
-        n += f32::from(u8::from(ok));
+        *s += if ok { v } else { 0.0 };
+        *n += f32::from(u8::from(ok));
     }
-    s / n
+}
+
+/// `out = s / n`, or NaN where the centre value is not finite (nodata stays nodata).
+#[inline]
+fn finish_mean(out: &mut [f32], centre: &[f32], s: &[f32], n: &[f32]) {
+    for (((o, &c), &s), &n) in out.iter_mut().zip(centre).zip(s).zip(n) {
+        *o = if c.is_finite() { s / n } else { f32::NAN };
+    }
 }
 
 /// Smooth ramp 3t² − 2t³ of t clamped to [0, 1]; common practice, no source.
@@ -716,5 +737,67 @@ impl Renderer {
     #[cfg(test)]
     pub(crate) fn depth_at(&self, x: usize, y: usize) -> f32 {
         self.buffers.depth[y * self.buffers.iw + x]
+    }
+}
+
+#[cfg(test)]
+mod smooth_tests {
+    use super::*;
+
+    /// The box mean written the plain way: every cell sums its window in ascending order.
+    fn smooth_by_windows(z: &mut [f32], lr: usize, lc: usize) {
+        let r = SMOOTH_RADIUS;
+        let mean = |vals: &mut dyn Iterator<Item = f32>, centre: f32| {
+            let (mut s, mut n) = (0.0f32, 0.0f32);
+            for v in vals {
+                let ok = v.is_finite();
+                s += if ok { v } else { 0.0 };
+                n += f32::from(u8::from(ok));
+            }
+            if centre.is_finite() {
+                s / n
+            } else {
+                f32::NAN
+            }
+        };
+        for _ in 0..2 {
+            let src = z.to_vec();
+            let mut tmp = vec![0.0f32; lr * lc];
+            for row in 0..lr {
+                for c in 0..lc {
+                    let (a, b) = (c.saturating_sub(r), (c + r + 1).min(lc));
+                    let mut it = (a..b).map(|cc| src[row * lc + cc]);
+                    tmp[row * lc + c] = mean(&mut it, src[row * lc + c]);
+                }
+            }
+            for row in 0..lr {
+                let (a, b) = (row.saturating_sub(r), (row + r + 1).min(lr));
+                for c in 0..lc {
+                    let mut it = (a..b).map(|rr| tmp[rr * lc + c]);
+                    z[row * lc + c] = mean(&mut it, tmp[row * lc + c]);
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn tap_by_tap_smoothing_equals_the_plain_window_bit_for_bit() {
+        // Grids narrower and shorter than the window, and a wider one with nodata at the edges.
+        for (lr, lc) in [(1, 1), (2, 3), (4, 4), (9, 31), (17, 6)] {
+            let mut z: Vec<f32> = (0..lr * lc)
+                .map(|i| ((i * 37) % 23) as f32 * 0.173 - 1.1 + (i as f32 * 0.41).sin())
+                .collect();
+            for i in (0..lr * lc).step_by(7) {
+                z[i] = f32::NAN;
+            }
+            let mut want = z.clone();
+            smooth_by_windows(&mut want, lr, lc);
+            let mut tmp = Vec::new();
+            smooth_in_place(&mut z, lr, lc, &mut tmp);
+            // Check: common practice, no source — the same sums in the same order give the same bits.
+            for (i, (x, y)) in z.iter().zip(&want).enumerate() {
+                assert!(x.to_bits() == y.to_bits(), "{lr}x{lc} cell {i}: {x} vs {y}");
+            }
+        }
     }
 }
