@@ -3,7 +3,9 @@
 //! supersample 2, shadows, morph, the first survey as the earlier surface, GIF + PNG frames + record.
 //! Targets: ≤ 12 s on the 2-core machine, ≥ 180 % CPU; 2 threads ≥ 1.8× faster than 1.
 //!
-//! Prints, per supersample (2, then 1) and thread count, the median wall time of several runs and
+//! The one- and two-thread runs are taken in turn (order swapped every round), so that drift in
+//! the machine's speed over the bench falls on both. Prints, per supersample (2, then 1) and
+//! thread count, the median wall time of several runs and
 //! the process CPU share (CPU seconds / wall seconds, from /proc/self/stat), then the stage table
 //! (`RunReport::timings`) of the median two-thread run at supersample 2. Run with
 //! `cargo bench --bench job`; `JOB_BENCH_RUNS=1` for a quick look, `JOB_BENCH_SS=2` for one
@@ -97,9 +99,18 @@ fn main() {
         let path = dir.path().join(format!("job-ss{ss}.yaml"));
         std::fs::write(&path, JOB.replace("SS", &ss.to_string())).unwrap();
         let job = job::load(Path::new(&path)).unwrap();
+        // One- and two-thread runs taken in turn, the order swapped every round, so that a
+        // machine whose speed drifts during the bench (shared hosts do) slows both alike.
+        let mut results: [Vec<Run>; 2] = [Vec::new(), Vec::new()];
+        for round in 0..runs {
+            let order = if round % 2 == 0 { [1, 2] } else { [2, 1] };
+            for threads in order {
+                results[threads - 1].push(run_once(&job, threads));
+            }
+        }
         let mut medians = Vec::new();
-        for threads in [1, 2] {
-            let mut results: Vec<Run> = (0..runs).map(|_| run_once(&job, threads)).collect();
+        for (k, mut results) in results.into_iter().enumerate() {
+            let threads = k + 1;
             results.sort_by(|a, b| a.0.total_cmp(&b.0));
             let share = median(results.iter().map(|r| r.1).collect());
             let (wall, _, timings) = results.swap_remove(results.len() / 2);
