@@ -539,3 +539,33 @@ fn dominant_alone_equals_the_full_estimate_bit_for_bit() {
     }
     assert_eq!(trusted, 2, "two trusted cases and two refused");
 }
+
+#[test]
+fn a_radius_far_beyond_the_grid_searches_only_shifts_that_overlap() {
+    // A library caller is not held to the job file's limit on `search_radius_m`. Shifts of a whole
+    // grid side or more leave no overlap, so the search stops there: 1e30 m gives what a radius of
+    // the grid's diagonal gives, in the time that one takes (before, the loop ran over 2^62
+    // shifts). Check: common practice, no source — a shift with no overlap has no correlation.
+    let (rows, cols) = (60, 80);
+    let a = survey(rows, cols, 28.0, 30.0, 0.02, 11);
+    let b = survey(rows, cols, 31.0, 37.0, 0.02, 12);
+    let diagonal = FlowOptions {
+        search_radius_m: 100.0,
+        ..Default::default()
+    };
+    let huge = FlowOptions {
+        search_radius_m: 1e30,
+        ..Default::default()
+    };
+    let (d, h) = (
+        estimate(&a, &b, 1.0, &diagonal),
+        estimate(&a, &b, 1.0, &huge),
+    );
+    assert_eq!(d.verdict, h.verdict);
+    let (dd, hd) = (d.dominant.unwrap(), h.dominant.unwrap());
+    assert_eq!((dd.east_m, dd.north_m), (hd.east_m, hd.north_m));
+    assert!(
+        (hd.east_m - 7.0).abs() < 0.2 && (hd.north_m + 3.0).abs() < 0.2,
+        "{hd:?}"
+    );
+}

@@ -79,6 +79,10 @@ pub(crate) fn ncc_shift(
 
 /// Best NCC over all whole-cell shifts within `radius` cells. The flag is true when the best shift
 /// has a neighbour outside the searched disc, i.e. the true peak may lie beyond the search.
+///
+/// Shifts of a whole grid side or more leave no overlap, so the loops stop short of them: a radius
+/// far beyond the grid (a library caller's 1e30 m) costs what the grid's own size costs, and the
+/// result is the one the whole disc would give.
 pub(crate) fn search_disc(
     a: &[f32],
     b: &[f32],
@@ -86,11 +90,17 @@ pub(crate) fn search_disc(
     radius: f64,
     min_pairs: usize,
 ) -> Option<(Peak, bool)> {
-    let ri = radius.floor().max(0.0) as i32;
-    let inside = |r: i32, c: i32| ((r * r + c * c) as f64) <= radius * radius;
+    let ri = radius.floor().max(0.0) as i64;
+    let rr = ri.min(d.rows as i64 - 1).max(0) as i32;
+    let rc = ri.min(d.cols as i64 - 1).max(0) as i32;
+    // In f64: the squares of shifts near the radius's own size would overflow i32.
+    let inside = |r: i32, c: i32| {
+        let (r, c) = (r as f64, c as f64);
+        r * r + c * c <= radius * radius
+    };
     let mut best: Option<Peak> = None;
-    for tr in -ri..=ri {
-        for tc in -ri..=ri {
+    for tr in -rr..=rr {
+        for tc in -rc..=rc {
             if !inside(tr, tc) {
                 continue;
             }
