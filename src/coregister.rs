@@ -298,19 +298,16 @@ fn median(v: &mut [f32]) -> f64 {
 }
 
 /// Median and NMAD of `dh` over the cells where `keep` holds.
-///
-/// The values are gathered and their deviations taken on all threads; a median does not depend on
-/// the order its values come in, so the result is the same on any number of threads.
-fn median_nmad(dh: &[f32], keep: impl Fn(usize) -> bool + Sync) -> (f64, f64, usize) {
+fn median_nmad(dh: &[f32], keep: impl Fn(usize) -> bool) -> (f64, f64, usize) {
     let mut v: Vec<f32> = (0..dh.len())
-        .into_par_iter()
         .filter(|&k| keep(k) && dh[k].is_finite())
         .map(|k| dh[k])
         .collect();
     let n = v.len();
     let med = median(&mut v);
-    v.par_iter_mut()
-        .for_each(|x| *x = (*x as f64 - med).abs() as f32);
+    for x in v.iter_mut() {
+        *x = (*x as f64 - med).abs() as f32;
+    }
     // Check: Höhle & Höhle (2009) — NMAD = 1.4826 · median |x − median|; REFERENCES.md §14
     (med, NMAD_FACTOR * median(&mut v), n)
 }
@@ -588,7 +585,6 @@ fn estimate(
         let lo_eff = lo.max((SLOPE_NOISE_FACTOR * slope_noise(nmad_stable, g)) as f32);
         // Cell indices as u32 (half the memory of usize; a grid has far fewer than 2³² cells).
         let fit: Vec<u32> = (0..dh.len())
-            .into_par_iter()
             .filter(|&k| {
                 stable[k] && {
                     let tan = t.tan_slope(k);
@@ -634,9 +630,9 @@ fn estimate(
         Cow::Borrowed(z)
     };
     let zs = moved.as_slice().expect("standard layout");
-    dh.par_iter_mut()
-        .zip(zs.par_iter().zip(reference.par_iter()))
-        .for_each(|(d, (&b, &a))| *d = b - a);
+    for (k, d) in dh.iter_mut().enumerate() {
+        *d = zs[k] - reference[k];
+    }
     let (med, nmad, _) = median_nmad(&dh, cand);
     let band = lod_m.max(3.0 * nmad) as f32;
     select_stable(&mut stable, &dh, med, band, &cand, found, g, opts);
@@ -656,7 +652,6 @@ fn estimate(
         let lo_eff = lo.max((SLOPE_NOISE_FACTOR * slope_noise(nmad_stable, g)) as f32);
         let half = |parity: usize| -> Vec<u32> {
             (0..dh.len())
-                .into_par_iter()
                 .filter(|&k| {
                     let (r, c) = (k / g.cols, k % g.cols);
                     stable[k] && (r / 32 + c / 32) % 2 == parity && {
