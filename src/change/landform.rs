@@ -195,37 +195,54 @@ pub(crate) fn dilate(x: &[u8], rows: usize, cols: usize, r: usize) -> Vec<bool> 
             }
         });
     // Column pass, the same both ways: rows in order, each column remembering its last set row
-    // (whole rows at a time, so the loops run over contiguous memory).
+    // (whole rows at a time, so the loops run over contiguous memory). Bands of rows run side by
+    // side; each band first reads the r rows above it (and, going up, the r rows below it), the
+    // only ones whose set cells can reach into the band, so every cell gets the same answer as in
+    // one pass over the whole grid.
     let mut out = vec![false; x.len()];
     let far = usize::MAX / 2;
-    let mut last = vec![far; cols];
-    for row in 0..rows {
-        let (line, o) = (
-            &h[row * cols..(row + 1) * cols],
-            &mut out[row * cols..(row + 1) * cols],
-        );
-        for c in 0..cols {
-            if line[c] != 0 {
-                last[c] = row;
+    // A radius beyond the grid makes one band of the whole grid.
+    let band = DILATE_BAND_ROWS.max(r).min(rows);
+    out.par_chunks_mut(band * cols)
+        .enumerate()
+        .for_each(|(b, chunk)| {
+            let (r0, r1) = (b * band, (b * band + band).min(rows));
+            let line = |row: usize| &h[row * cols..(row + 1) * cols];
+            let mut last = vec![far; cols];
+            for row in r0.saturating_sub(r)..r1 {
+                for (l, &v) in last.iter_mut().zip(line(row)) {
+                    if v != 0 {
+                        *l = row;
+                    }
+                }
+                if row >= r0 {
+                    let o = &mut chunk[(row - r0) * cols..(row - r0 + 1) * cols];
+                    for (o, &l) in o.iter_mut().zip(&last) {
+                        *o = l != far && row - l <= r;
+                    }
+                }
             }
-            o[c] = last[c] != far && row - last[c] <= r;
-        }
-    }
-    let mut next = vec![far; cols];
-    for row in (0..rows).rev() {
-        let (line, o) = (
-            &h[row * cols..(row + 1) * cols],
-            &mut out[row * cols..(row + 1) * cols],
-        );
-        for c in 0..cols {
-            if line[c] != 0 {
-                next[c] = row;
+            let mut next = vec![far; cols];
+            for row in (r0..r1.saturating_add(r).min(rows)).rev() {
+                for (n, &v) in next.iter_mut().zip(line(row)) {
+                    if v != 0 {
+                        *n = row;
+                    }
+                }
+                if row < r1 {
+                    let o = &mut chunk[(row - r0) * cols..(row - r0 + 1) * cols];
+                    for (o, &n) in o.iter_mut().zip(&next) {
+                        *o |= n != far && n - row <= r;
+                    }
+                }
             }
-            o[c] |= next[c] != far && next[c] - row <= r;
-        }
-    }
+        });
     out
 }
+
+/// Rows per band of [`dilate`]'s column pass (at least the radius, so a band's halo is no larger
+/// than the band).
+const DILATE_BAND_ROWS: usize = 64;
 
 /// Regions of kept change, grown by `join_cells`, largest detected area first; `detected` is the
 /// change before speckle removal, counted inside each region.
@@ -506,9 +523,10 @@ mod tests {
     fn dilation_marks_the_cells_whose_window_holds_a_set_cell() {
         // Check: analytic — the square dilation is "window count > 0", for radii smaller and
         // larger than the grid.
-        for (rows, cols, one_in) in [(37, 53, 7), (150, 7, 40), (20, 30, 500)] {
+        // Also bands of rows with halos: 300 rows are five bands of 64.
+        for (rows, cols, one_in) in [(37, 53, 7), (150, 7, 40), (20, 30, 500), (300, 5, 97)] {
             let x = mask(rows, cols, one_in);
-            for r in [0, 1, 3, 9, 60, 200] {
+            for r in [0, 1, 3, 9, 60, 63, 64, 65, 200, usize::MAX / 4] {
                 let fast = dilate(&x, rows, cols, r);
                 let want = brute_counts(&x, rows, cols, r);
                 assert!(
